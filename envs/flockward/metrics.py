@@ -1,0 +1,439 @@
+"""Flock metrics over batches of worlds: pure functions backed by compiled per-world kernels.
+
+Inputs are batch-first: ``pos`` and ``vel`` (B, N, 2) float64 in m and m/s, ``count`` (B,) int64
+active birds per world. Birds at index >= count[b] are padding; nothing here reads them.
+
+Empty worlds (count 0): centroid and mean velocity are NaN (there is no flock to locate), sizes
+(diameter, radius of gyration) and polarisation are 0, there are 0 components with
+largest_fraction 1 (nothing is split off), and the nearest bird is at infinity.
+
+``step_metrics`` computes what the environment needs each step in one compiled call.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Literal, NamedTuple
+
+import numba
+import numpy as np
+
+from flockward.geometry import (
+    _enclosing_circle_of,
+    _signed_distance_xy,
+    convex_hull,
+    signed_distance,
+)
+
+GRID_MIN_BIRDS = 400  # from this many active birds, components() searches a cell grid
+_AUTO, _PAIRS, _GRID = 0, 1, 2  # neighbour-search method codes for the kernels
+_METHODS = {"auto": _AUTO, "pairs": _PAIRS, "grid": _GRID}
+_MAX_CELLS_PER_AXIS = 1 << 30  # beyond this the cell keys could overflow; use all pairs instead
+
+
+class StepMetrics(NamedTuple):
+    """Everything the environment reads from the flock in one step (B worlds, N bird slots)."""
+
+    centroid: np.ndarray  # (B, 2) m
+    mean_velocity: np.ndarray  # (B, 2) m/s
+    polarisation: np.ndarray  # (B,) in [0, 1]
+    diameter: np.ndarray  # (B,) m, twice the smallest enclosing circle radius
+    n_components: np.ndarray  # (B,) int64, fragments of the link-radius proximity graph
+    largest_fraction: np.ndarray  # (B,) share of active birds in the largest fragment
+    nearest_distance: np.ndarray  # (B,) m, pursuer to the closest active bird
+    goal_distance: np.ndarray  # (B,) m, signed distance from the centroid to the goal zone
+    in_protected: np.ndarray  # (B, N) bool, bird strictly inside the protected zone
+    in_goal: np.ndarray  # (B, N) bool, bird strictly inside the goal zone
+    on_hull: np.ndarray  # (B, N) bool, bird is a convex-hull vertex (the flock's rim)
+
+
+def _check_batch(pos: np.ndarray, count: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Contiguous float64 (B, N, 2) positions and int64 (B,) counts, or a ValueError saying why."""
+    pos = np.ascontiguousarray(pos, dtype=np.float64)
+    count = np.ascontiguousarray(count, dtype=np.int64)
+    if pos.ndim != 3 or pos.shape[2] != 2:
+        raise ValueError(f"expected a (worlds, birds, 2) array, got shape {pos.shape}")
+    if count.shape != (pos.shape[0],):
+        raise ValueError(f"count must have shape ({pos.shape[0]},), got {count.shape}")
+    if count.size and (count.min() < 0 or count.max() > pos.shape[1]):
+        raise ValueError(f"count must lie in [0, {pos.shape[1]}] (the number of bird slots)")
+    return pos, count
+
+
+def _check_points(points: np.ndarray, worlds: int) -> np.ndarray:
+    """Contiguous float64 (B, 2) points, one per world."""
+    points = np.ascontiguousarray(points, dtype=np.float64)
+    if points.shape != (worlds, 2):
+        raise ValueError(f"expected one (x, y) point per world ({worlds}, 2), got {points.shape}")
+    return points
+
+
+# ---------------------------------------------------------------- per-world compiled helpers
+
+
+@numba.njit(cache=True)
+def _find(parent: np.ndarray, i: int) -> int:
+    """Union-find root of i, halving the path on the way."""
+    while parent[i] != i:
+        parent[i] = parent[parent[i]]
+        i = parent[i]
+    return i
+
+
+@numba.njit(cache=True)
+def _union(parent: np.ndarray, i: int, j: int) -> None:
+    """Join the sets of i and j under the smaller root index."""
+    ri, rj = _find(parent, i), _find(parent, j)
+    if ri < rj:
+        parent[rj] = ri
+    elif rj < ri:
+        parent[ri] = rj
+
+
+@numba.njit(cache=True)
+def _link_pairs(p: np.ndarray, n: int, radius: float, parent: np.ndarray) -> None:
+    """Union every pair of the first n points closer than radius, testing all pairs."""
+    r2 = radius * radius
+    for i in range(n):
+        for j in range(i + 1, n):
+            dx = p[i, 0] - p[j, 0]
+            dy = p[i, 1] - p[j, 1]
+            if dx * dx + dy * dy <= r2:
+                _union(parent, i, j)
+
+
+@numba.njit(cache=True)
+def _link_grid(p: np.ndarray, n: int, radius: float, parent: np.ndarray) -> bool:
+    """Union every pair closer than radius using square cells a little wider than radius, so
+    linked birds always sit in neighbouring cells. Returns False (doing nothing) if the cell keys
+    would overflow."""
+    x0, y0 = np.inf, np.inf
+    x1, y1 = -np.inf, -np.inf
+    for i in range(n):
+        x0, x1 = min(x0, p[i, 0]), max(x1, p[i, 0])
+        y0, y1 = min(y0, p[i, 1]), max(y1, p[i, 1])
+    inv_cell = 1.0 / (radius * (1.0 + 1e-9))
+    span = max(x1 - x0, y1 - y0) * inv_cell
+    if not span < _MAX_CELLS_PER_AXIS:
+        return False
+    rows = int((y1 - y0) * inv_cell) + 3  # row index is stored +1 so row +-1 never wraps a column
+    cx = np.empty(n, dtype=np.int64)
+    cy = np.empty(n, dtype=np.int64)
+    key = np.empty(n, dtype=np.int64)
+    for i in range(n):
+        cx[i] = int((p[i, 0] - x0) * inv_cell)
+        cy[i] = int((p[i, 1] - y0) * inv_cell) + 1
+        key[i] = cx[i] * rows + cy[i]
+    order = np.argsort(key, kind="mergesort")
+    sorted_key = key[order]
+    r2 = radius * radius
+    for s in range(n):
+        a = order[s]
+        # Half stencil: own column rows (row, row+1) after this bird, next column rows row-1..row+1.
+        for dcol in range(2):
+            column = (cx[a] + dcol) * rows
+            if dcol == 0:
+                lo = s + 1
+            else:
+                lo = np.searchsorted(sorted_key, column + cy[a] - 1, side="left")
+            hi = np.searchsorted(sorted_key, column + cy[a] + 1, side="right")
+            for t in range(lo, hi):
+                b = order[t]
+                dx = p[a, 0] - p[b, 0]
+                dy = p[a, 1] - p[b, 1]
+                if dx * dx + dy * dy <= r2:
+                    _union(parent, a, b)
+    return True
+
+
+@numba.njit(cache=True)
+def _world_components(
+    p: np.ndarray, n: int, radius: float, method: int, labels: np.ndarray
+) -> tuple[int, float]:
+    """Label the first n birds by proximity-graph component (0, 1, ... in order of each
+    component's first bird) into labels[:n]; return the component count and largest share."""
+    if n == 0:
+        return 0, 1.0
+    parent = np.arange(n)
+    use_grid = method == _GRID or (method == _AUTO and n >= GRID_MIN_BIRDS)
+    if radius > 0.0:
+        if not (use_grid and math.isfinite(radius) and _link_grid(p, n, radius, parent)):
+            _link_pairs(p, n, radius, parent)
+    root_label = np.full(n, -1, dtype=np.int64)
+    size = np.zeros(n, dtype=np.int64)
+    k = 0
+    for i in range(n):
+        root = _find(parent, i)
+        if root_label[root] < 0:
+            root_label[root] = k
+            k += 1
+        labels[i] = root_label[root]
+        size[labels[i]] += 1
+    return k, size[:k].max() / n
+
+
+@numba.njit(cache=True)
+def _world_hull(p: np.ndarray, n: int, mask: np.ndarray) -> float:
+    """Mark the hull vertices among the first n birds in mask[:n]; return the flock diameter."""
+    hull = convex_hull(p[:n])
+    for h in hull:
+        mask[h] = True
+    return 2.0 * _enclosing_circle_of(p, hull)[2]
+
+
+# ---------------------------------------------------------------- batched compiled kernels
+
+
+@numba.njit(cache=True)
+def _mean_kernel(x: np.ndarray, count: np.ndarray) -> np.ndarray:
+    out = np.full((x.shape[0], 2), np.nan)
+    for b in range(x.shape[0]):
+        n = count[b]
+        if n == 0:
+            continue
+        sx, sy = 0.0, 0.0
+        for i in range(n):
+            sx += x[b, i, 0]
+            sy += x[b, i, 1]
+        out[b, 0] = sx / n
+        out[b, 1] = sy / n
+    return out
+
+
+@numba.njit(cache=True)
+def _gyration_kernel(pos: np.ndarray, count: np.ndarray) -> np.ndarray:
+    out = np.zeros(pos.shape[0])
+    centre = _mean_kernel(pos, count)
+    for b in range(pos.shape[0]):
+        s = 0.0
+        for i in range(count[b]):
+            s += (pos[b, i, 0] - centre[b, 0]) ** 2 + (pos[b, i, 1] - centre[b, 1]) ** 2
+        if count[b] > 0:
+            out[b] = math.sqrt(s / count[b])
+    return out
+
+
+@numba.njit(cache=True)
+def _polarisation_world(v: np.ndarray, n: int) -> float:
+    sx, sy = 0.0, 0.0
+    for i in range(n):
+        speed = math.hypot(v[i, 0], v[i, 1])
+        if speed > 0.0:
+            sx += v[i, 0] / speed
+            sy += v[i, 1] / speed
+    return math.hypot(sx, sy) / n if n > 0 else 0.0
+
+
+@numba.njit(cache=True)
+def _polarisation_kernel(vel: np.ndarray, count: np.ndarray) -> np.ndarray:
+    out = np.zeros(vel.shape[0])
+    for b in range(vel.shape[0]):
+        out[b] = _polarisation_world(vel[b], count[b])
+    return out
+
+
+@numba.njit(cache=True)
+def _nearest_world(p: np.ndarray, n: int, x: float, y: float) -> float:
+    best2 = np.inf
+    for i in range(n):
+        best2 = min(best2, (p[i, 0] - x) ** 2 + (p[i, 1] - y) ** 2)
+    return math.sqrt(best2)
+
+
+@numba.njit(cache=True)
+def _nearest_kernel(pos: np.ndarray, count: np.ndarray, point: np.ndarray) -> np.ndarray:
+    out = np.empty(pos.shape[0])
+    for b in range(pos.shape[0]):
+        out[b] = _nearest_world(pos[b], count[b], point[b, 0], point[b, 1])
+    return out
+
+
+@numba.njit(cache=True)
+def _inside_kernel(zone_arr: np.ndarray, pos: np.ndarray, count: np.ndarray) -> np.ndarray:
+    out = np.zeros(pos.shape[:2], dtype=np.bool_)
+    for b in range(pos.shape[0]):
+        for i in range(count[b]):
+            out[b, i] = _signed_distance_xy(zone_arr, pos[b, i, 0], pos[b, i, 1]) < 0.0
+    return out
+
+
+@numba.njit(cache=True)
+def _hull_kernel(pos: np.ndarray, count: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    mask = np.zeros(pos.shape[:2], dtype=np.bool_)
+    diam = np.zeros(pos.shape[0])
+    for b in range(pos.shape[0]):
+        diam[b] = _world_hull(pos[b], count[b], mask[b])
+    return mask, diam
+
+
+@numba.njit(cache=True)
+def _components_kernel(
+    pos: np.ndarray, count: np.ndarray, radius: float, method: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    labels = np.full(pos.shape[:2], -1, dtype=np.int64)
+    n_comp = np.zeros(pos.shape[0], dtype=np.int64)
+    largest = np.ones(pos.shape[0])
+    for b in range(pos.shape[0]):
+        n_comp[b], largest[b] = _world_components(pos[b], count[b], radius, method, labels[b])
+    return labels, n_comp, largest
+
+
+@numba.njit(cache=True)
+def _step_kernel(
+    pos: np.ndarray,
+    vel: np.ndarray,
+    count: np.ndarray,
+    pursuer: np.ndarray,
+    link_radius: float,
+    protected_arr: np.ndarray,
+    goal_arr: np.ndarray,
+):
+    worlds, slots = pos.shape[0], pos.shape[1]
+    centroid = np.full((worlds, 2), np.nan)
+    mean_vel = np.full((worlds, 2), np.nan)
+    polar = np.zeros(worlds)
+    diam = np.zeros(worlds)
+    n_comp = np.zeros(worlds, dtype=np.int64)
+    largest = np.ones(worlds)
+    nearest = np.empty(worlds)
+    goal_dist = np.full(worlds, np.nan)
+    in_protected = np.zeros((worlds, slots), dtype=np.bool_)
+    in_goal = np.zeros((worlds, slots), dtype=np.bool_)
+    on_hull = np.zeros((worlds, slots), dtype=np.bool_)
+    labels = np.empty(slots, dtype=np.int64)  # scratch, reused by every world
+    for b in range(worlds):
+        n = count[b]
+        p = pos[b]
+        sx, sy, svx, svy = 0.0, 0.0, 0.0, 0.0
+        for i in range(n):
+            sx += p[i, 0]
+            sy += p[i, 1]
+            svx += vel[b, i, 0]
+            svy += vel[b, i, 1]
+            in_protected[b, i] = _signed_distance_xy(protected_arr, p[i, 0], p[i, 1]) < 0.0
+            in_goal[b, i] = _signed_distance_xy(goal_arr, p[i, 0], p[i, 1]) < 0.0
+        if n > 0:
+            centroid[b, 0], centroid[b, 1] = sx / n, sy / n
+            mean_vel[b, 0], mean_vel[b, 1] = svx / n, svy / n
+            goal_dist[b] = _signed_distance_xy(goal_arr, sx / n, sy / n)
+        polar[b] = _polarisation_world(vel[b], n)
+        nearest[b] = _nearest_world(p, n, pursuer[b, 0], pursuer[b, 1])
+        n_comp[b], largest[b] = _world_components(p, n, link_radius, _AUTO, labels)
+        diam[b] = _world_hull(p, n, on_hull[b])
+    return (
+        centroid,
+        mean_vel,
+        polar,
+        diam,
+        n_comp,
+        largest,
+        nearest,
+        goal_dist,
+        in_protected,
+        in_goal,
+        on_hull,
+    )
+
+
+# ---------------------------------------------------------------- public batched functions
+
+
+def centroid(pos: np.ndarray, count: np.ndarray) -> np.ndarray:
+    """Mean position of the active birds, (B, 2) m."""
+    return _mean_kernel(*_check_batch(pos, count))
+
+
+def mean_velocity(vel: np.ndarray, count: np.ndarray) -> np.ndarray:
+    """Mean velocity of the active birds, (B, 2) m/s."""
+    return _mean_kernel(*_check_batch(vel, count))
+
+
+def diameter(pos: np.ndarray, count: np.ndarray) -> np.ndarray:
+    """Flock diameter, (B,) m: twice the radius of the smallest circle enclosing the flock."""
+    return _hull_kernel(*_check_batch(pos, count))[1]
+
+
+def hull_mask(pos: np.ndarray, count: np.ndarray) -> np.ndarray:
+    """Which birds are convex-hull vertices (the flock's rim), (B, N) bool; birds lying on a hull
+    edge between two vertices, and padding, are False."""
+    return _hull_kernel(*_check_batch(pos, count))[0]
+
+
+def radius_of_gyration(pos: np.ndarray, count: np.ndarray) -> np.ndarray:
+    """Root-mean-square distance of the active birds from their centroid, (B,) m."""
+    return _gyration_kernel(*_check_batch(pos, count))
+
+
+def components(
+    pos: np.ndarray,
+    count: np.ndarray,
+    radius: float,
+    method: Literal["auto", "pairs", "grid"] = "auto",
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Connected components of the graph linking birds closer than radius (strictly), per world.
+
+    Returns labels (B, N) int64 (-1 for padding), n_components (B,) int64 and largest_fraction
+    (B,). "auto" tests all pairs below GRID_MIN_BIRDS active birds and a cell grid from there on;
+    both give the same partition.
+    """
+    if method not in _METHODS:
+        raise ValueError(f"method must be one of {sorted(_METHODS)}, got {method!r}")
+    pos, count = _check_batch(pos, count)
+    return _components_kernel(pos, count, float(radius), _METHODS[method])
+
+
+def polarisation(vel: np.ndarray, count: np.ndarray) -> np.ndarray:
+    """Vicsek order parameter |sum of unit headings| / count, (B,) in [0, 1]; a bird with zero
+    speed has no heading and adds nothing to the sum."""
+    return _polarisation_kernel(*_check_batch(vel, count))
+
+
+def nearest_distance(pos: np.ndarray, count: np.ndarray, point: np.ndarray) -> np.ndarray:
+    """Distance from each world's point (B, 2) to its nearest active bird, (B,) m (inf if none)."""
+    pos, count = _check_batch(pos, count)
+    return _nearest_kernel(pos, count, _check_points(point, pos.shape[0]))
+
+
+def inside_zone(zone_arr: np.ndarray, pos: np.ndarray, count: np.ndarray) -> np.ndarray:
+    """Which active birds are strictly inside the zone, (B, N) bool (padding False)."""
+    pos, count = _check_batch(pos, count)
+    return _inside_kernel(np.ascontiguousarray(zone_arr, np.float64), pos, count)
+
+
+def count_inside(zone_arr: np.ndarray, pos: np.ndarray, count: np.ndarray) -> np.ndarray:
+    """Number of active birds strictly inside the zone, (B,) int64."""
+    return inside_zone(zone_arr, pos, count).sum(axis=1)
+
+
+def zone_distance(zone_arr: np.ndarray, points: np.ndarray) -> np.ndarray:
+    """Signed distance of one point per world (B, 2) to the zone boundary, (B,) m; pass the
+    centroid for the flock-to-goal distance."""
+    points = np.asarray(points, dtype=np.float64)
+    return signed_distance(zone_arr, _check_points(points, points.shape[0]))
+
+
+def step_metrics(
+    pos: np.ndarray,
+    vel: np.ndarray,
+    count: np.ndarray,
+    pursuer_pos: np.ndarray,
+    link_radius: float,
+    protected_arr: np.ndarray,
+    goal_arr: np.ndarray,
+) -> StepMetrics:
+    """All per-step flock metrics in one compiled pass per world (see StepMetrics)."""
+    pos, count = _check_batch(pos, count)
+    vel = np.ascontiguousarray(vel, dtype=np.float64)
+    if vel.shape != pos.shape:
+        raise ValueError(f"vel must have the shape of pos {pos.shape}, got {vel.shape}")
+    return StepMetrics(
+        *_step_kernel(
+            pos,
+            vel,
+            count,
+            _check_points(pursuer_pos, pos.shape[0]),
+            float(link_radius),
+            np.ascontiguousarray(protected_arr, np.float64),
+            np.ascontiguousarray(goal_arr, np.float64),
+        )
+    )

@@ -1,0 +1,108 @@
+"""The native Gymnasium vector environment: B worlds stepped in one batched call.
+
+Autoreset is next-step (Gymnasium's default): the step after a world's episode ends resets that
+world, ignores its action and returns its first observation with reward 0. Each world keeps its own
+generator, seeded ``seed + i`` for an integer seed (as Gymnasium's sync vector env does) or from a
+list, so world i follows exactly the trajectory of a single DivertEnv reset with the same seed.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import gymnasium as gym
+import numpy as np
+from gymnasium.utils import seeding
+from gymnasium.vector import AutoresetMode, VectorEnv
+from gymnasium.vector.utils import batch_space
+
+from flockward.env import resolve_scenario
+from flockward.task import DivertTask, check_actions
+from flockward.types import Scenario
+
+
+def world_seeds(seed: int | list[int | None] | None, worlds: int) -> list[int | None]:
+    """Per-world seeds from an int (seed + i), a list (one each) or None (fresh entropy)."""
+    if seed is None:
+        return [None] * worlds
+    if isinstance(seed, int | np.integer):
+        return [int(seed) + i for i in range(worlds)]
+    seeds = list(seed)
+    if len(seeds) != worlds:
+        raise ValueError(f"seed list has {len(seeds)} entries; expected one per world ({worlds})")
+    return seeds
+
+
+class DivertVectorEnv(VectorEnv):
+    """``flockward/Divert-v0`` batched natively (see DivertEnv for the task itself)."""
+
+    metadata = {
+        "render_modes": [],
+        "render_fps": 20,
+        "autoreset_mode": AutoresetMode.NEXT_STEP,
+    }
+
+    def __init__(
+        self,
+        num_envs: int = 1,
+        scenario: str | Path | Scenario = "headon",
+        overrides: dict[str, Any] | None = None,
+        observation: str = "vector",
+        rim_birds: int = 4,
+        max_birds: int | None = None,
+        neighbour_search: str = "auto",
+        max_episode_steps: int | None = None,
+        render_mode: str | None = None,
+    ):
+        if render_mode is not None:
+            raise ValueError("the vector env does not render; render a single DivertEnv instead")
+        self.scenario = resolve_scenario(scenario, overrides)
+        self.num_envs = int(num_envs)
+        self.task = DivertTask(
+            self.scenario,
+            self.num_envs,
+            observation,
+            rim_birds,
+            max_birds,
+            neighbour_search,
+            max_episode_steps,
+        )
+        self.render_mode = None
+        self.single_action_space = gym.spaces.Box(-1.0, 1.0, (2,), np.float32)
+        self.single_observation_space = self.task.observations.space()
+        self.action_space = batch_space(self.single_action_space, self.num_envs)
+        self.observation_space = batch_space(self.single_observation_space, self.num_envs)
+        self._needs_reset = np.zeros(self.num_envs, dtype=np.bool_)
+        self._ones = np.ones(self.num_envs, dtype=np.bool_)
+
+    def reset(self, *, seed=None, options: dict[str, Any] | None = None):
+        seeds = world_seeds(seed, self.num_envs)
+        if seed is not None:
+            self._np_random, self._np_random_seed = seeding.np_random(seeds[0])
+        mask = None if options is None else options.get("reset_mask")
+        indices = np.arange(self.num_envs) if mask is None else np.flatnonzero(mask)
+        rngs = [seeding.np_random(seeds[i])[0] for i in indices]
+        obs = self.task.reset(indices, rngs)
+        self._needs_reset[indices] = False
+        return obs, self._batched_info(self.task.metrics_info())
+
+    def step(self, actions):
+        actions = check_actions(actions, self.num_envs)
+        restarting = self._needs_reset.copy()
+        if restarting.any():
+            self.task.reset(np.flatnonzero(restarting))
+        batch = self.task.step(actions, ~restarting)
+        reward = np.where(restarting, 0.0, batch.reward)
+        terminated = batch.terminated & ~restarting
+        truncated = batch.truncated & ~restarting
+        self._needs_reset = terminated | truncated
+        return batch.observation, reward, terminated, truncated, self._batched_info(batch.info)
+
+    def _batched_info(self, info: dict[str, Any]) -> dict[str, Any]:
+        """Gymnasium's vector info layout: each key's array plus a '_key' presence mask."""
+        out: dict[str, Any] = {}
+        for key, value in info.items():
+            out[key] = value
+            out[f"_{key}"] = self._ones
+        return out
