@@ -98,7 +98,7 @@ def _link_pairs(p: np.ndarray, n: int, radius: float, parent: np.ndarray) -> Non
         for j in range(i + 1, n):
             dx = p[i, 0] - p[j, 0]
             dy = p[i, 1] - p[j, 1]
-            if dx * dx + dy * dy <= r2:
+            if dx * dx + dy * dy < r2:
                 _union(parent, i, j)
 
 
@@ -141,7 +141,7 @@ def _link_grid(p: np.ndarray, n: int, radius: float, parent: np.ndarray) -> bool
                 b = order[t]
                 dx = p[a, 0] - p[b, 0]
                 dy = p[a, 1] - p[b, 1]
-                if dx * dx + dy * dy <= r2:
+                if dx * dx + dy * dy < r2:
                     _union(parent, a, b)
     return True
 

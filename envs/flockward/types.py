@@ -32,7 +32,7 @@ class FlockParams:
     cruise_speed: float = 12.5  # m/s, airspeed the bird steers toward its destination at
     min_speed: float = 7.0  # m/s, birds in flapping flight cannot hover
     max_speed: float = 20.0  # m/s, burst airspeed when fleeing
-    max_accel: float = 8.0  # m/s^2, steering acceleration cap
+    max_accel: float = 10.0  # m/s^2, steering acceleration cap
     separation_radius: float = 2.0  # m
     separation_gain: float = 12.0  # m^2/s^2 (inverse-distance repulsion, Reynolds 1987)
     alignment_radius: float = 15.0  # m
@@ -41,9 +41,9 @@ class FlockParams:
     alignment_beta: float = 0.25  # Cucker-Smale exponent (beta < 1/2: unconditional flocking)
     cohesion_radius: float = 25.0  # m
     cohesion_gain: float = 0.4  # 1/s^2
-    destination_gain: float = 0.5  # 1/s, pull toward cruise velocity aimed at the destination
-    alarm_radius: float = 60.0  # m, inside it a bird flees the pursuer radially
-    flee_gain: float = 10.0  # m/s^2 at zero distance, falling linearly to 0 at alarm_radius
+    destination_gain: float = 0.25  # 1/s, pull toward cruise velocity aimed at the destination
+    alarm_radius: float = 80.0  # m, inside it a bird flees the pursuer radially
+    flee_gain: float = 20.0  # m/s^2 at zero distance, falling linearly to 0 at alarm_radius
     dodge_radius: float = 15.0  # m, inside it a bird also dodges sideways
     dodge_gain: float = 10.0  # m/s^2 at zero distance, falling linearly to 0 at dodge_radius
     noise_std: float = 0.0  # m/s^2, standard deviation of Gaussian acceleration noise

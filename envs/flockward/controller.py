@@ -1,0 +1,71 @@
+"""The controller protocol: what a herding strategy implements to be scored by flockward.
+
+A controller declares what it may see. ``"observation"``: only the Gymnasium observation, like a
+learned policy. ``"state"``: privileged simulator state as well (every bird's position and
+velocity). The leaderboard prints the level beside each entry, so the two are never confused.
+"""
+
+from __future__ import annotations
+
+import importlib
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from flockward.types import FlockParams, Scenario
+
+INFORMATION_LEVELS = ("observation", "state")
+
+
+@dataclass(frozen=True)
+class StateView:
+    """Privileged state of one world, for controllers of information level "state"."""
+
+    bird_pos: np.ndarray  # (n, 2) m, active birds only
+    bird_vel: np.ndarray  # (n, 2) m/s
+    pursuer_pos: np.ndarray  # (2,) m
+    pursuer_vel: np.ndarray  # (2,) m/s
+    flock: FlockParams  # this episode's (possibly randomised) behaviour parameters
+    scenario: Scenario  # site geometry, pursuer limits, episode rules
+    step: int  # steps since reset
+
+
+class Controller:
+    """Base class: override ``act``; override ``reset`` if the controller keeps memory."""
+
+    name: str = "unnamed"
+    information_level: str = "observation"
+
+    def reset(self, scenario: Scenario, seed: int | None = None) -> None:
+        """Called before each episode with the scenario and the episode's seed."""
+
+    def act(self, observation: Any, state: StateView | None) -> np.ndarray:
+        """The normalised pursuer acceleration, shape (2,), each component in [-1, 1]."""
+        raise NotImplementedError
+
+    def parameters(self) -> dict[str, Any]:
+        """The controller's settings, recorded in result files for provenance."""
+        return {}
+
+
+def load_controller_class(spec: str) -> type:
+    """The class named by an import path ``package.module:Name``; clear errors otherwise."""
+    if ":" not in spec:
+        raise ValueError(f"controller {spec!r}: expected an import path 'package.module:Name'")
+    module_name, _, attr = spec.partition(":")
+    try:
+        module = importlib.import_module(module_name)
+    except ImportError as error:
+        raise ValueError(f"controller {spec!r}: cannot import module {module_name!r} ({error})")
+    try:
+        cls = getattr(module, attr)
+    except AttributeError:
+        raise ValueError(f"controller {spec!r}: module {module_name!r} has no {attr!r}") from None
+    level = getattr(cls, "information_level", None)
+    if level not in INFORMATION_LEVELS or not callable(getattr(cls, "act", None)):
+        raise ValueError(
+            f"controller {spec!r}: needs an act(observation, state) method and an "
+            f"information_level in {INFORMATION_LEVELS} (see flockward.controller.Controller)"
+        )
+    return cls

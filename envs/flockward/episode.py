@@ -1,0 +1,188 @@
+"""Play one episode of a controller on a scenario and summarise it as a flat record."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass
+from typing import Any
+
+import numpy as np
+
+from flockward.controller import Controller, StateView
+from flockward.env import DivertEnv
+from flockward.types import Scenario
+
+
+@dataclass(frozen=True)
+class EpisodeRecord:
+    """Per-episode metrics written to result files (units in comments)."""
+
+    scenario: str
+    seed: int
+    birds: int
+    success: bool
+    outcome: str  # success | breach | timeout | error
+    steps: int
+    time_to_success: float | None  # s, None unless success
+    breached_birds: int  # distinct birds that entered the protected zone
+    peak_components: int  # most flock fragments at any step
+    min_largest_fraction: float  # lowest share of birds in the largest fragment
+    collision_steps: int  # steps with the pursuer inside its safety radius of a bird
+    closest_approach: float  # m, pursuer to nearest bird over the episode
+    diameter_growth: float  # largest diameter / initial diameter
+    path_length: float  # m, pursuer track length
+    energy: float  # (m/s^2)^2 s, integral of the commanded acceleration squared
+    episode_return: float
+    error: str | None = None  # why the controller failed the episode, if it did
+
+    def as_dict(self) -> dict[str, Any]:
+        return asdict(self)
+
+
+class ControllerFault(Exception):
+    """The controller raised or returned an unusable action; the episode is failed, not the run."""
+
+
+def _checked_action(raw: Any) -> np.ndarray:
+    action = np.asarray(raw, dtype=np.float64)
+    if action.shape != (2,):
+        raise ControllerFault(f"action has shape {action.shape}, expected (2,)")
+    if not np.all(np.isfinite(action)):
+        raise ControllerFault(f"action is not finite: {action.tolist()}")
+    return action
+
+
+def play_episode(
+    scenario: Scenario,
+    controller: Controller,
+    seed: int,
+    record_frames: bool = False,
+    env_kwargs: dict[str, Any] | None = None,
+) -> tuple[EpisodeRecord, list[dict[str, Any]]]:
+    """Run ``controller`` for one episode from ``seed``; return its record and optional frames."""
+    env = DivertEnv(scenario, **(env_kwargs or {}))
+    obs, info = env.reset(seed=seed)
+    try:
+        controller.reset(scenario, seed)
+    except Exception as error:  # a user's controller may raise anything
+        return _failed(scenario, seed, env, f"reset raised {type(error).__name__}: {error}"), []
+    task = env.task
+    state = task.state
+    wants_state = controller.information_level == "state"
+    dt = scenario.episode.dt
+    amax = scenario.pursuer.max_accel
+    d0 = max(info["diameter"], 1e-9)
+    frames: list[dict[str, Any]] = []
+    peak_components = info["n_components"]
+    min_largest = info["largest_fraction"]
+    max_diameter = info["diameter"]
+    closest = math.inf
+    collisions = 0
+    path = 0.0
+    energy = 0.0
+    total = 0.0
+    step = 0
+    outcome = "timeout"
+    error = None
+    success_time = None
+    breached = int(task.ever_inside[0].sum())
+    if record_frames:
+        frames.append(_frame(state, 0, info))
+    while True:
+        view = None
+        if wants_state:
+            n = int(state.count[0])
+            view = StateView(
+                state.bird_pos[0, :n].copy(),
+                state.bird_vel[0, :n].copy(),
+                state.pursuer_pos[0].copy(),
+                state.pursuer_vel[0].copy(),
+                task.world.flocks[0],
+                scenario,
+                step,
+            )
+        try:
+            action = _checked_action(controller.act(obs, view))
+        except ControllerFault as fault:
+            outcome, error = "error", str(fault)
+            break
+        except Exception as fault:
+            outcome, error = "error", f"act raised {type(fault).__name__}: {fault}"
+            break
+        before = state.pursuer_pos[0].copy()
+        obs, reward, terminated, truncated, info = env.step(action)
+        step += 1
+        u = np.clip(action, -1.0, 1.0)
+        u = u / max(1.0, float(np.hypot(*u)))
+        energy += float((u * amax) @ (u * amax)) * dt
+        path += float(np.hypot(*(state.pursuer_pos[0] - before)))
+        total += reward
+        peak_components = max(peak_components, info["n_components"])
+        min_largest = min(min_largest, info["largest_fraction"])
+        max_diameter = max(max_diameter, info["diameter"])
+        closest = min(closest, info["nearest_distance"])
+        collisions += int(info["collision"])
+        breached = info["breached_birds"]
+        if record_frames:
+            frames.append(_frame(state, step, info))
+        if terminated or truncated:
+            outcome = info["outcome"]
+            if outcome == "success":
+                success_time = step * dt
+            break
+    record = EpisodeRecord(
+        scenario=scenario.name,
+        seed=int(seed),
+        birds=int(state.count[0]),
+        success=outcome == "success",
+        outcome=outcome,
+        steps=step,
+        time_to_success=success_time,
+        breached_birds=int(breached),
+        peak_components=int(peak_components),
+        min_largest_fraction=float(min_largest),
+        collision_steps=collisions,
+        closest_approach=float(closest),
+        diameter_growth=float(max_diameter / d0),
+        path_length=path,
+        energy=energy,
+        episode_return=float(total),
+        error=error,
+    )
+    return record, frames
+
+
+def _frame(state, step: int, info: dict[str, Any]) -> dict[str, Any]:
+    n = int(state.count[0])
+    return {
+        "bird_pos": state.bird_pos[0, :n].copy(),
+        "bird_vel": state.bird_vel[0, :n].copy(),
+        "pursuer_pos": state.pursuer_pos[0].copy(),
+        "step": step,
+        "goal_distance": info.get("goal_distance", math.nan),
+        "diameter": info.get("diameter", math.nan),
+        "n_components": info.get("n_components", 1),
+        "outcome": info.get("outcome", "running"),
+    }
+
+
+def _failed(scenario: Scenario, seed: int, env: DivertEnv, error: str) -> EpisodeRecord:
+    return EpisodeRecord(
+        scenario=scenario.name,
+        seed=int(seed),
+        birds=int(env.task.state.count[0]),
+        success=False,
+        outcome="error",
+        steps=0,
+        time_to_success=None,
+        breached_birds=0,
+        peak_components=1,
+        min_largest_fraction=1.0,
+        collision_steps=0,
+        closest_approach=math.inf,
+        diameter_growth=1.0,
+        path_length=0.0,
+        energy=0.0,
+        episode_return=0.0,
+        error=error,
+    )

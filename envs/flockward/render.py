@@ -1,0 +1,431 @@
+"""Pictures of episodes: live frames, a whole-episode still (PNG) and an animation (GIF).
+
+Everything headless draws on ``matplotlib.figure.Figure`` with an Agg canvas, so rendering works
+without a display and never changes the global matplotlib backend. Only ``interactive=True`` (the
+environment's "human" mode) imports ``matplotlib.pyplot`` and opens a window.
+
+All coordinates are world metres; one frame shows one world of a batched ``WorldState``.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from collections.abc import Callable, Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from matplotlib import patches
+from matplotlib.axes import Axes
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.collections import LineCollection
+from matplotlib.colors import to_rgb, to_rgba
+from matplotlib.figure import Figure
+from matplotlib.gridspec import GridSpec
+
+from flockward.types import Circle, Polygon, Scenario, WorldState, Zone
+
+# Palette (hex RGB): light colours for areas, dark ones for things that move.
+SLATE = "#d5dbe1"  # map background
+INK = "#1f262d"  # text, axes
+AMBER = "#d9962b"  # protected zone
+TEAL = "#2f9c95"  # goal region
+PLUM = "#6b4f8a"  # the flock's destination
+CHARCOAL = "#33373b"  # birds
+SMOKE = "#5d6b78"  # bird trails in the still
+CRIMSON = "#b8283f"  # the drone and its track
+PAPER = "#f4f5f2"  # figure background of the still
+
+ZONE_FILL_ALPHA = 0.28  # translucency of zone interiors
+TICK_SECONDS = 0.6  # s, a velocity tick shows where a bird would be after this time
+TRACK_MIN_ALPHA = 0.08  # opacity of the oldest visible part of a fading line
+SITE_MARGIN_FRACTION = 0.08  # share of the site's span added as margin on each side
+SITE_MARGIN_MIN = 40.0  # m, smallest margin, so a tiny site still shows the flock around it
+STILL_MAX_TRAIL_POINTS = 400  # time samples per bird trail in the still (longer ones are thinned)
+ANIMATION_TRACK_STEPS = 200  # steps of drone track shown per animation frame
+GIF_COLOURS = 64  # palette size of animation frames
+INFO_KEYS = ("outcome", "n_components", "breached_birds")  # info entries printed on a frame
+
+Extent = tuple[float, float, float, float]  # (x_min, x_max, y_min, y_max) m
+
+
+def zone_extent(zone: Zone) -> Extent:
+    """Axis-aligned bounding box of a zone."""
+    if isinstance(zone, Circle):
+        (cx, cy), r = zone.center, zone.radius
+        return cx - r, cx + r, cy - r, cy + r
+    if isinstance(zone, Polygon):
+        v = np.asarray(zone.vertices, dtype=np.float64)
+        return float(v[:, 0].min()), float(v[:, 0].max()), float(v[:, 1].min()), float(v[:, 1].max())
+    raise TypeError(f"expected a Circle or Polygon zone, got {type(zone).__name__}")
+
+
+def site_extent(scenario: Scenario, points: np.ndarray | None = None) -> Extent:
+    """A view holding both zones, the destination, both start points (and ``points``), plus margin.
+
+    Computed from the scenario alone, so every frame of an episode shares one view.
+    """
+    site = scenario.site
+    boxes = [zone_extent(site.protected), zone_extent(site.goal)]
+    xy = [site.destination, site.flock_start, scenario.pursuer.start]
+    xs = [b[0] for b in boxes] + [b[1] for b in boxes] + [p[0] for p in xy]
+    ys = [b[2] for b in boxes] + [b[3] for b in boxes] + [p[1] for p in xy]
+    if points is not None:
+        finite = np.asarray(points, dtype=np.float64).reshape(-1, 2)
+        finite = finite[np.all(np.isfinite(finite), axis=1)]
+        if len(finite):
+            xs += [float(finite[:, 0].min()), float(finite[:, 0].max())]
+            ys += [float(finite[:, 1].min()), float(finite[:, 1].max())]
+    x0, x1, y0, y1 = min(xs), max(xs), min(ys), max(ys)
+    margin = max(SITE_MARGIN_FRACTION * max(x1 - x0, y1 - y0), SITE_MARGIN_MIN)
+    return x0 - margin, x1 + margin, y0 - margin, y1 + margin
+
+
+def fit_aspect(extent: Extent, width_over_height: float) -> Extent:
+    """Grow the shorter side of ``extent`` about its centre so it has the given aspect ratio."""
+    x0, x1, y0, y1 = extent
+    w, h = x1 - x0, y1 - y0
+    if w / h < width_over_height:
+        grow = (h * width_over_height - w) / 2.0
+        return x0 - grow, x1 + grow, y0, y1
+    grow = (w / width_over_height - h) / 2.0
+    return x0, x1, y0 - grow, y1 + grow
+
+
+def zone_patch(zone: Zone, colour: str, zorder: float) -> patches.Patch:
+    """A translucent filled patch of the zone with an opaque outline."""
+    style = dict(
+        facecolor=to_rgba(colour, ZONE_FILL_ALPHA),
+        edgecolor=to_rgba(colour, 1.0),
+        linewidth=1.5,
+        zorder=zorder,
+    )
+    if isinstance(zone, Circle):
+        return patches.Circle(zone.center, zone.radius, **style)
+    return patches.Polygon(np.asarray(zone.vertices, dtype=np.float64), closed=True, **style)
+
+
+def draw_site(ax: Axes, scenario: Scenario) -> None:
+    """Protected zone, goal region and the flock's destination: the static part of every view."""
+    ax.add_patch(zone_patch(scenario.site.protected, AMBER, zorder=1))
+    ax.add_patch(zone_patch(scenario.site.goal, TEAL, zorder=1))
+    dx, dy = scenario.site.destination
+    ax.plot([dx], [dy], marker="X", markersize=8, color=PLUM, linestyle="none", zorder=2)
+
+
+def fading_colours(colour: str, n: int, max_alpha: float = 1.0) -> np.ndarray:
+    """(n, 4) RGBA rows of one colour, opacity rising from faint (first) to ``max_alpha`` (last)."""
+    out = np.empty((n, 4))
+    out[:, :3] = to_rgb(colour)
+    out[:, 3] = np.linspace(TRACK_MIN_ALPHA, max_alpha, n) if n > 1 else max_alpha
+    return out
+
+
+def path_segments(path: np.ndarray) -> np.ndarray:
+    """Consecutive point pairs of a (T, 2) path as (T - 1, 2, 2) line segments."""
+    path = np.asarray(path, dtype=np.float64).reshape(-1, 2)
+    if len(path) < 2:
+        return np.empty((0, 2, 2))
+    return np.stack([path[:-1], path[1:]], axis=1)
+
+
+def velocity_ticks(pos: np.ndarray, vel: np.ndarray) -> np.ndarray:
+    """(n, 2, 2) segments from each bird along its velocity for TICK_SECONDS."""
+    return np.stack([pos, pos + TICK_SECONDS * vel], axis=1)
+
+
+def status_line(scenario: Scenario, info: Mapping[str, Any]) -> str:
+    """The text printed on a frame: scenario, step and the INFO_KEYS present in ``info``."""
+    parts = [scenario.name, f"step {info.get('steps', 0)}"]
+    parts += [f"{key.replace('_', ' ')} {info[key]}" for key in INFO_KEYS if key in info]
+    return "  |  ".join(parts)
+
+
+class FrameRenderer:
+    """Draws frames of one world, reusing one figure whose artists only change their data.
+
+    ``interactive=False`` renders off-screen (Agg) and is safe headless; ``interactive=True`` also
+    shows the figure in a pyplot window, pausing ``1 / fps`` s per frame.
+    """
+
+    def __init__(
+        self,
+        scenario: Scenario,
+        interactive: bool = False,
+        size_px: tuple[int, int] = (640, 640),
+        fps: float = 20.0,
+        dpi: int = 100,
+    ):
+        width, height = size_px
+        if width < 16 or height < 16:
+            raise ValueError(f"size_px = {size_px}: give (width, height) of at least 16 pixels")
+        self.scenario = scenario
+        self.interactive = interactive
+        self.pause = 1.0 / fps
+        figsize = (width / dpi, height / dpi)
+        if interactive:
+            import matplotlib.pyplot as plt
+
+            self._plt = plt
+            self.fig = plt.figure(figsize=figsize, dpi=dpi)
+        else:
+            self._plt = None
+            self.fig = Figure(figsize=figsize, dpi=dpi)
+            FigureCanvasAgg(self.fig)
+        self.fig.patch.set_facecolor(SLATE)
+        ax = self.fig.add_axes((0.0, 0.0, 1.0, 1.0))
+        ax.set_facecolor(SLATE)
+        ax.set_axis_off()
+        x0, x1, y0, y1 = fit_aspect(site_extent(scenario), width / height)
+        ax.set_xlim(x0, x1)
+        ax.set_ylim(y0, y1)
+        ax.set_aspect("equal", adjustable="box")
+        ax.set_autoscale_on(False)
+        draw_site(ax, scenario)
+        self.ax = ax
+        self.track = LineCollection([], linewidths=1.2, zorder=3)
+        ax.add_collection(self.track)
+        self.ticks = LineCollection([], colors=CHARCOAL, linewidths=0.8, zorder=4)
+        ax.add_collection(self.ticks)
+        self.birds = ax.scatter(
+            np.empty(0), np.empty(0), s=9.0, color=CHARCOAL, linewidths=0.0, zorder=5
+        )
+        (self.pursuer,) = ax.plot(
+            [],
+            [],
+            marker="D",
+            markersize=7,
+            markerfacecolor=CRIMSON,
+            markeredgecolor=INK,
+            markeredgewidth=0.8,
+            linestyle="none",
+            zorder=6,
+        )
+        self.text = ax.text(
+            0.015,
+            0.985,
+            "",
+            transform=ax.transAxes,
+            ha="left",
+            va="top",
+            fontsize=8,
+            family="monospace",
+            color=INK,
+            zorder=7,
+        )
+
+    def draw(
+        self, state: WorldState, index: int, track: np.ndarray, info: Mapping[str, Any]
+    ) -> np.ndarray:
+        """An (H, W, 3) uint8 RGB frame of world ``index``; ``track`` (T, 2) is the drone's path."""
+        n = int(state.count[index])
+        pos = np.asarray(state.bird_pos[index, :n], dtype=np.float64)
+        vel = np.asarray(state.bird_vel[index, :n], dtype=np.float64)
+        self.birds.set_offsets(pos)
+        self.ticks.set_segments(velocity_ticks(pos, vel))
+        segments = path_segments(track)
+        self.track.set_segments(segments)
+        self.track.set_color(fading_colours(CRIMSON, len(segments), max_alpha=0.9))
+        px, py = np.asarray(state.pursuer_pos[index], dtype=np.float64)
+        self.pursuer.set_data([px], [py])
+        self.text.set_text(status_line(self.scenario, info))
+        canvas = self.fig.canvas
+        canvas.draw()
+        frame = np.asarray(canvas.buffer_rgba())[..., :3].copy()
+        if self._plt is not None:
+            self._plt.pause(self.pause)
+        return frame
+
+    def close(self) -> None:
+        """Release the figure (and its window, if interactive). Safe to call twice."""
+        if self._plt is not None:
+            self._plt.close(self.fig)
+            self._plt = None
+        self.fig.clear()
+
+
+def _atomic_write(out_path: str | os.PathLike[str], write: Callable[[Path], None]) -> Path:
+    """Run ``write`` on a temporary file beside ``out_path``, then move it into place.
+
+    A reader never sees a half-written file, and a failed write leaves no temporary behind.
+    """
+    out = Path(out_path)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp_name = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".tmp", dir=out.parent)
+    os.close(fd)
+    tmp = Path(tmp_name)
+    try:
+        write(tmp)
+        os.replace(tmp, out)
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
+    return out
+
+
+def _stack_birds(frames: Sequence[Mapping[str, Any]]) -> np.ndarray:
+    """Bird positions of all frames as (T, n, 2); the flock size must not change in an episode."""
+    sizes = {np.shape(f["bird_pos"]) for f in frames}
+    if len(sizes) != 1:
+        raise ValueError(
+            f"frames hold bird_pos of shapes {sorted(sizes)}; record the same (n, 2) active birds "
+            "in every frame of an episode"
+        )
+    return np.stack([np.asarray(f["bird_pos"], dtype=np.float64) for f in frames])
+
+
+def _check_frames(frames: Sequence[Mapping[str, Any]]) -> None:
+    if len(frames) == 0:
+        raise ValueError("frames is empty; record at least the reset state of the episode")
+
+
+def episode_still(
+    scenario: Scenario, frames: Sequence[Mapping[str, Any]], out_path: str | os.PathLike[str]
+) -> Path:
+    """Write a PNG summary of one episode: a map of trails and three metrics over time.
+
+    ``frames`` holds one dict per recorded step with ``bird_pos`` (n, 2), ``bird_vel`` (n, 2),
+    ``pursuer_pos`` (2,), ``step``, ``goal_distance`` (m), ``diameter`` (m) and ``n_components``.
+    """
+    _check_frames(frames)
+    birds = _stack_birds(frames)  # (T, n, 2)
+    drone = np.stack([np.asarray(f["pursuer_pos"], dtype=np.float64) for f in frames])  # (T, 2)
+    seconds = np.array([f["step"] for f in frames], dtype=np.float64) * scenario.episode.dt
+
+    fig = Figure(figsize=(12.0, 7.0), dpi=100, facecolor=PAPER)
+    FigureCanvasAgg(fig)
+    grid = GridSpec(3, 2, figure=fig, width_ratios=(2.1, 1.0), wspace=0.18, hspace=0.45)
+    grid.update(left=0.04, right=0.98, top=0.93, bottom=0.08)
+    ax = fig.add_subplot(grid[:, 0])
+    ax.set_facecolor(SLATE)
+    x0, x1, y0, y1 = site_extent(scenario, np.concatenate([birds.reshape(-1, 2), drone]))
+    ax.set_xlim(x0, x1)
+    ax.set_ylim(y0, y1)
+    ax.set_aspect("equal", adjustable="box")
+    ax.set_autoscale_on(False)
+    ax.tick_params(labelsize=8, colors=INK)
+    ax.set_xlabel("x (m)", fontsize=9, color=INK)
+    ax.set_ylabel("y (m)", fontsize=9, color=INK)
+    draw_site(ax, scenario)
+
+    thin = max(1, -(-len(frames) // STILL_MAX_TRAIL_POINTS))  # ceil: keep at most the cap
+    keep = np.unique(np.r_[np.arange(0, len(frames), thin), len(frames) - 1])
+    trail = birds[keep]  # (T', n, 2)
+    if len(keep) > 1 and trail.shape[1] > 0:
+        pairs = np.stack([trail[:-1], trail[1:]], axis=2)  # (T'-1, n, 2, 2)
+        colours = np.repeat(fading_colours(SMOKE, len(keep) - 1, 0.55), trail.shape[1], axis=0)
+        ax.add_collection(
+            LineCollection(pairs.reshape(-1, 2, 2), colors=colours, linewidths=0.5, zorder=2)
+        )
+    drone_segments = path_segments(drone)
+    ax.add_collection(
+        LineCollection(
+            drone_segments,
+            colors=fading_colours(CRIMSON, len(drone_segments), 0.95),
+            linewidths=1.3,
+            zorder=3,
+        )
+    )
+    last = frames[-1]
+    final_pos = birds[-1]
+    final_vel = np.asarray(last["bird_vel"], dtype=np.float64).reshape(-1, 2)
+    ax.add_collection(
+        LineCollection(
+            velocity_ticks(final_pos, final_vel), colors=CHARCOAL, linewidths=0.8, zorder=4
+        )
+    )
+    ax.scatter(final_pos[:, 0], final_pos[:, 1], s=10.0, color=CHARCOAL, linewidths=0, zorder=5)
+    ax.plot(*drone[0], marker="o", markersize=6, color="none", markeredgecolor=CRIMSON, zorder=6)
+    ax.plot(*drone[-1], marker="D", markersize=7, color=CRIMSON, markeredgecolor=INK, zorder=6)
+    handles = [
+        patches.Patch(facecolor=to_rgba(AMBER, ZONE_FILL_ALPHA), edgecolor=AMBER, label="protected"),
+        patches.Patch(facecolor=to_rgba(TEAL, ZONE_FILL_ALPHA), edgecolor=TEAL, label="goal"),
+        ax.plot([], [], "X", color=PLUM, label="destination")[0],
+        ax.plot([], [], "o", color=CHARCOAL, markersize=4, label="final flock")[0],
+        ax.plot([], [], "-D", color=CRIMSON, markersize=5, label="drone")[0],
+    ]
+    ax.legend(handles=handles, loc="lower right", fontsize=8, framealpha=0.85)
+    fig.suptitle(
+        f"{scenario.name}: {int(last['step'])} steps ({seconds[-1]:.1f} s)",
+        fontsize=12,
+        color=INK,
+    )
+
+    series = (
+        ("goal_distance", "distance to goal (m)", False),
+        ("diameter", "flock diameter (m)", False),
+        ("n_components", "clusters", True),
+    )
+    for row, (key, title, steps) in enumerate(series):
+        panel = fig.add_subplot(grid[row, 1])
+        values = np.array([f[key] for f in frames], dtype=np.float64)
+        if steps:
+            panel.step(seconds, values, where="post", color=INK, linewidth=1.2)
+            panel.yaxis.get_major_locator().set_params(integer=True)
+        else:
+            panel.plot(seconds, values, color=INK, linewidth=1.2)
+        panel.set_title(title, fontsize=9, color=INK, loc="left")
+        panel.tick_params(labelsize=8, colors=INK)
+        panel.grid(True, color=SLATE, linewidth=0.6)
+        panel.set_facecolor("white")
+        if row == len(series) - 1:
+            panel.set_xlabel("time (s)", fontsize=9, color=INK)
+
+    return _atomic_write(out_path, lambda tmp: fig.savefig(tmp, format="png", facecolor=PAPER))
+
+
+def episode_animation(
+    scenario: Scenario,
+    frames: Sequence[Mapping[str, Any]],
+    out_path: str | os.PathLike[str],
+    fps: float = 20.0,
+    stride: int = 2,
+    size_px: tuple[int, int] = (480, 480),
+) -> Path:
+    """Write a looping GIF of every ``stride``-th recorded frame, played at ``fps``.
+
+    ``frames`` is as for ``episode_still``; optional ``outcome`` and ``breached_birds`` entries are
+    printed too. Frames share one palette of GIF_COLOURS colours to keep the file small.
+    """
+    from PIL import Image
+
+    _check_frames(frames)
+    if stride < 1 or fps <= 0:
+        raise ValueError(f"stride = {stride}, fps = {fps}: need stride >= 1 and fps > 0")
+    drone = np.stack([np.asarray(f["pursuer_pos"], dtype=np.float64) for f in frames])
+    renderer = FrameRenderer(scenario, size_px=size_px)
+    images: list[Image.Image] = []
+    try:
+        for t in range(0, len(frames), stride):
+            frame = frames[t]
+            pos = np.asarray(frame["bird_pos"], dtype=np.float64).reshape(-1, 2)
+            state = WorldState(
+                bird_pos=pos[None],
+                bird_vel=np.asarray(frame["bird_vel"], dtype=np.float64).reshape(1, -1, 2),
+                pursuer_pos=drone[t][None],
+                pursuer_vel=np.zeros((1, 2)),
+                count=np.array([len(pos)], dtype=np.int64),
+            )
+            info = {key: frame[key] for key in INFO_KEYS if key in frame}
+            info["steps"] = int(frame["step"])
+            track = drone[max(0, t - ANIMATION_TRACK_STEPS) : t + 1]
+            rgb = Image.fromarray(renderer.draw(state, 0, track, info))
+            if images:
+                images.append(rgb.quantize(palette=images[0], dither=Image.Dither.NONE))
+            else:
+                images.append(rgb.quantize(GIF_COLOURS, method=Image.Quantize.MEDIANCUT))
+    finally:
+        renderer.close()
+
+    def write(tmp: Path) -> None:
+        images[0].save(
+            tmp,
+            format="GIF",
+            save_all=True,
+            append_images=images[1:],
+            duration=round(1000.0 / fps),
+            loop=0,
+        )
+
+    return _atomic_write(out_path, write)
