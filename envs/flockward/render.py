@@ -23,6 +23,7 @@ from matplotlib.collections import LineCollection
 from matplotlib.colors import to_rgb, to_rgba
 from matplotlib.figure import Figure
 from matplotlib.gridspec import GridSpec
+from matplotlib.ticker import MaxNLocator
 
 from flockward.types import Circle, Polygon, Scenario, WorldState, Zone
 
@@ -45,7 +46,8 @@ SITE_MARGIN_MIN = 40.0  # m, smallest margin, so a tiny site still shows the flo
 STILL_MAX_TRAIL_POINTS = 400  # time samples per bird trail in the still (longer ones are thinned)
 ANIMATION_TRACK_STEPS = 200  # steps of drone track shown per animation frame
 GIF_COLOURS = 64  # palette size of animation frames
-INFO_KEYS = ("outcome", "n_components", "breached_birds")  # info entries printed on a frame
+# info entries printed on a frame, with their labels ("" prints the value alone)
+INFO_LABELS = {"outcome": "", "n_components": "clusters", "breached_birds": "breached"}
 
 Extent = tuple[float, float, float, float]  # (x_min, x_max, y_min, y_max) m
 
@@ -136,10 +138,10 @@ def velocity_ticks(pos: np.ndarray, vel: np.ndarray) -> np.ndarray:
 
 
 def status_line(scenario: Scenario, info: Mapping[str, Any]) -> str:
-    """The text printed on a frame: scenario, step and the INFO_KEYS present in ``info``."""
+    """The text printed on a frame: scenario, step and the INFO_LABELS entries in ``info``."""
     parts = [scenario.name, f"step {info.get('steps', 0)}"]
-    parts += [f"{key.replace('_', ' ')} {info[key]}" for key in INFO_KEYS if key in info]
-    return "  |  ".join(parts)
+    parts += [f"{label} {info[key]}".strip() for key, label in INFO_LABELS.items() if key in info]
+    return "   ".join(parts)
 
 
 class FrameRenderer:
@@ -296,10 +298,13 @@ def episode_still(
     fig = Figure(figsize=(12.0, 7.0), dpi=100, facecolor=PAPER)
     FigureCanvasAgg(fig)
     grid = GridSpec(3, 2, figure=fig, width_ratios=(2.1, 1.0), wspace=0.18, hspace=0.45)
-    grid.update(left=0.04, right=0.98, top=0.93, bottom=0.08)
+    grid.update(left=0.06, right=0.98, top=0.93, bottom=0.08)
     ax = fig.add_subplot(grid[:, 0])
     ax.set_facecolor(SLATE)
-    x0, x1, y0, y1 = site_extent(scenario, np.concatenate([birds.reshape(-1, 2), drone]))
+    box = ax.get_position()
+    panel_aspect = (box.width * fig.get_figwidth()) / (box.height * fig.get_figheight())
+    everything = site_extent(scenario, np.concatenate([birds.reshape(-1, 2), drone]))
+    x0, x1, y0, y1 = fit_aspect(everything, panel_aspect)
     ax.set_xlim(x0, x1)
     ax.set_ylim(y0, y1)
     ax.set_aspect("equal", adjustable="box")
@@ -362,7 +367,8 @@ def episode_still(
         values = np.array([f[key] for f in frames], dtype=np.float64)
         if steps:
             panel.step(seconds, values, where="post", color=INK, linewidth=1.2)
-            panel.yaxis.get_major_locator().set_params(integer=True)
+            panel.yaxis.set_major_locator(MaxNLocator(integer=True))
+            panel.set_ylim(0, np.nanmax(values, initial=1.0) + 1)
         else:
             panel.plot(seconds, values, color=INK, linewidth=1.2)
         panel.set_title(title, fontsize=9, color=INK, loc="left")
@@ -407,7 +413,7 @@ def episode_animation(
                 pursuer_vel=np.zeros((1, 2)),
                 count=np.array([len(pos)], dtype=np.int64),
             )
-            info = {key: frame[key] for key in INFO_KEYS if key in frame}
+            info = {key: frame[key] for key in INFO_LABELS if key in frame}
             info["steps"] = int(frame["step"])
             track = drone[max(0, t - ANIMATION_TRACK_STEPS) : t + 1]
             rgb = Image.fromarray(renderer.draw(state, 0, track, info))
