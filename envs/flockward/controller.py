@@ -57,7 +57,9 @@ def load_controller_class(spec: str) -> type:
     try:
         module = importlib.import_module(module_name)
     except ImportError as error:
-        raise ValueError(f"controller {spec!r}: cannot import module {module_name!r} ({error})")
+        raise ValueError(
+            f"controller {spec!r}: cannot import module {module_name!r} ({error})"
+        ) from None
     try:
         cls = getattr(module, attr)
     except AttributeError:

@@ -45,7 +45,7 @@ SITE_MARGIN_FRACTION = 0.08  # share of the site's span added as margin on each 
 SITE_MARGIN_MIN = 40.0  # m, smallest margin, so a tiny site still shows the flock around it
 STILL_MAX_TRAIL_POINTS = 400  # time samples per bird trail in the still (longer ones are thinned)
 ANIMATION_TRACK_STEPS = 200  # steps of drone track shown per animation frame
-GIF_COLOURS = 64  # palette size of animation frames
+GIF_BLEND_LEVELS = 12  # opacity steps per colour pair in the animation's fixed palette
 # info entries printed on a frame, with their labels ("" prints the value alone)
 INFO_LABELS = {"outcome": "", "n_components": "clusters", "breached_birds": "breached"}
 
@@ -59,7 +59,12 @@ def zone_extent(zone: Zone) -> Extent:
         return cx - r, cx + r, cy - r, cy + r
     if isinstance(zone, Polygon):
         v = np.asarray(zone.vertices, dtype=np.float64)
-        return float(v[:, 0].min()), float(v[:, 0].max()), float(v[:, 1].min()), float(v[:, 1].max())
+        return (
+            float(v[:, 0].min()),
+            float(v[:, 0].max()),
+            float(v[:, 1].min()),
+            float(v[:, 1].max()),
+        )
     raise TypeError(f"expected a Circle or Polygon zone, got {type(zone).__name__}")
 
 
@@ -344,7 +349,9 @@ def episode_still(
     ax.plot(*drone[0], marker="o", markersize=6, color="none", markeredgecolor=CRIMSON, zorder=6)
     ax.plot(*drone[-1], marker="D", markersize=7, color=CRIMSON, markeredgecolor=INK, zorder=6)
     handles = [
-        patches.Patch(facecolor=to_rgba(AMBER, ZONE_FILL_ALPHA), edgecolor=AMBER, label="protected"),
+        patches.Patch(
+            facecolor=to_rgba(AMBER, ZONE_FILL_ALPHA), edgecolor=AMBER, label="protected"
+        ),
         patches.Patch(facecolor=to_rgba(TEAL, ZONE_FILL_ALPHA), edgecolor=TEAL, label="goal"),
         ax.plot([], [], "X", color=PLUM, label="destination")[0],
         ax.plot([], [], "o", color=CHARCOAL, markersize=4, label="final flock")[0],
@@ -381,6 +388,23 @@ def episode_still(
     return _atomic_write(out_path, lambda tmp: fig.savefig(tmp, format="png", facecolor=PAPER))
 
 
+def blend_palette() -> np.ndarray:
+    """(K, 3) uint8 colours a frame can contain: each drawing colour blended over each area colour.
+
+    Anti-aliased edges and fading tracks are such blends, so one palette fits every frame of any
+    episode, unlike a palette fitted to the first frame (which has no track yet).
+    """
+    slate = np.array(to_rgb(SLATE))
+    areas = [slate] + [
+        (1 - ZONE_FILL_ALPHA) * slate + ZONE_FILL_ALPHA * np.array(to_rgb(c)) for c in (AMBER, TEAL)
+    ]
+    inks = [np.array(to_rgb(c)) for c in (INK, AMBER, TEAL, PLUM, CHARCOAL, CRIMSON)]
+    alpha = np.linspace(0.0, 1.0, GIF_BLEND_LEVELS)[:, None]
+    rows = [(1 - alpha) * area + alpha * ink for area in areas for ink in inks]
+    colours = np.unique(np.round(np.concatenate(rows) * 255).astype(np.uint8), axis=0)
+    return colours[:256]
+
+
 def episode_animation(
     scenario: Scenario,
     frames: Sequence[Mapping[str, Any]],
@@ -392,7 +416,7 @@ def episode_animation(
     """Write a looping GIF of every ``stride``-th recorded frame, played at ``fps``.
 
     ``frames`` is as for ``episode_still``; optional ``outcome`` and ``breached_birds`` entries are
-    printed too. Frames share one palette of GIF_COLOURS colours to keep the file small.
+    printed too. Frames share one fixed palette (``blend_palette``) to keep the file small.
     """
     from PIL import Image
 
@@ -400,6 +424,8 @@ def episode_animation(
     if stride < 1 or fps <= 0:
         raise ValueError(f"stride = {stride}, fps = {fps}: need stride >= 1 and fps > 0")
     drone = np.stack([np.asarray(f["pursuer_pos"], dtype=np.float64) for f in frames])
+    palette = Image.new("P", (1, 1))
+    palette.putpalette(blend_palette().ravel().tolist())
     renderer = FrameRenderer(scenario, size_px=size_px)
     images: list[Image.Image] = []
     try:
@@ -417,10 +443,7 @@ def episode_animation(
             info["steps"] = int(frame["step"])
             track = drone[max(0, t - ANIMATION_TRACK_STEPS) : t + 1]
             rgb = Image.fromarray(renderer.draw(state, 0, track, info))
-            if images:
-                images.append(rgb.quantize(palette=images[0], dither=Image.Dither.NONE))
-            else:
-                images.append(rgb.quantize(GIF_COLOURS, method=Image.Quantize.MEDIANCUT))
+            images.append(rgb.quantize(palette=palette, dither=Image.Dither.NONE))
     finally:
         renderer.close()
 

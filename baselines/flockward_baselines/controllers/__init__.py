@@ -1,0 +1,46 @@
+"""Reference controllers: a registry of built-in names and a factory that also loads user classes.
+
+``make_controller("boundary-arc", push_fraction=0.4)`` builds a built-in controller;
+``make_controller("mypackage.mymodule:MyController")`` loads any class that follows
+``flockward.controller.Controller``.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from flockward.controller import Controller, load_controller_class
+
+from flockward_baselines.controllers.boundary_arc import BoundaryArc
+from flockward_baselines.controllers.collect_drive import CollectDrive
+from flockward_baselines.controllers.direct_pursuit import DirectPursuit
+from flockward_baselines.controllers.idle import Idle
+
+BUILTIN: dict[str, type[Controller]] = {
+    "boundary-arc": BoundaryArc,
+    "direct-pursuit": DirectPursuit,
+    "collect-drive": CollectDrive,
+    "idle": Idle,
+}
+
+__all__ = ["BUILTIN", "BoundaryArc", "CollectDrive", "DirectPursuit", "Idle", "make_controller"]
+
+
+def make_controller(name_or_import_path: str, **params: Any) -> Controller:
+    """A controller from a built-in name or an import path ``package.module:Name``.
+
+    ``params`` are passed to the class's constructor.
+    """
+    if name_or_import_path in BUILTIN:
+        cls: type = BUILTIN[name_or_import_path]
+    elif ":" in name_or_import_path:
+        cls = load_controller_class(name_or_import_path)
+    else:
+        raise ValueError(
+            f"unknown controller {name_or_import_path!r}; built-in names: "
+            f"{', '.join(BUILTIN)}, or an import path 'package.module:Name'"
+        )
+    try:
+        return cls(**params)
+    except TypeError as error:
+        raise ValueError(f"controller {name_or_import_path!r}: bad parameters ({error})") from None

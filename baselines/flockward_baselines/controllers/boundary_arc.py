@@ -1,0 +1,203 @@
+"""Boundary arc: stand off behind the most threatening rim birds and sweep an arc along the rim.
+
+The standard geometric strategy for herding a flock with one pursuer (common practice): never fly
+into the flock; pick the rim birds that threaten most, here the convex-hull birds that are nearest
+the protected zone and farthest from the goal; fly at full speed to a standoff point behind them,
+on the side opposite the push direction; then sweep an arc about the flock centroid along the
+rim, turning at the ends of the arc span, so every rim bird on that side keeps being pushed.
+
+The push distance comes from the flock's own radii. Inside ``alarm_radius`` a bird flees radially;
+inside the smaller ``dodge_radius`` it also darts sideways, which splits flocks. Standing in the
+band between them pushes the rim without scattering it:
+``push = dodge + push_fraction * (alarm - dodge)``, measured from the nearest rim bird. Every
+point of the arc is placed by the flock's support function, so no bird is closer than ``push``.
+
+Assumes the state view (every bird's position and velocity, the episode's flock radii).
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from typing import Any
+
+import numpy as np
+
+from flockward.controller import Controller, StateView
+from flockward.geometry import convex_hull, signed_distance, zone_arrays, zone_center
+from flockward.types import FlockParams, Scenario
+
+from flockward_baselines.controllers.steering import around, fly_to
+
+
+def _unit(v: np.ndarray) -> np.ndarray:
+    norm = float(np.hypot(v[0], v[1]))
+    return v / norm if norm > 1e-12 else np.array([1.0, 0.0])
+
+
+def _bearing(angle: float) -> np.ndarray:
+    return np.array([math.cos(angle), math.sin(angle)])
+
+
+class BoundaryArc(Controller):
+    """Push the flock toward the goal and away from the zone from a standoff arc behind its rim."""
+
+    name = "boundary-arc"
+    information_level = "state"
+
+    def __init__(
+        self,
+        push_fraction: float = 0.3,
+        push_distance: float | None = None,
+        arc_span_deg: float = 60.0,
+        sweep_speed: float = 6.0,
+        approach_speed: float = 1.0,
+        zone_weight: float = 2.0,
+        zone_margin: float = 150.0,
+        arrive_tolerance: float = 15.0,
+        smoothing_time: float = 2.0,
+    ) -> None:
+        if not 0.0 < push_fraction < 1.0:
+            raise ValueError(f"push_fraction = {push_fraction}: must lie in (0, 1)")
+        if push_distance is not None and not push_distance > 0.0:
+            raise ValueError(f"push_distance = {push_distance}: must be positive metres or None")
+        if not 0.0 <= arc_span_deg <= 180.0:
+            raise ValueError(f"arc_span_deg = {arc_span_deg}: must lie in [0, 180]")
+        if not 0.0 < approach_speed <= 1.0:
+            raise ValueError(f"approach_speed = {approach_speed}: a fraction in (0, 1]")
+        # Low in the band: close enough that the flee push is strong, far from the dodge radius.
+        self.push_fraction = push_fraction
+        # An absolute push distance (m) replaces the fraction; warned about outside the band.
+        self.push_distance = push_distance
+        # Wide enough to cover a compact flock's back side from a few bird spacings out.
+        self.arc_span_deg = arc_span_deg
+        # m/s along the arc: slow enough that the drone keeps up with a fleeing flock.
+        self.sweep_speed = sweep_speed
+        # Fraction of the drone's top speed on the way to the standoff point: full speed.
+        self.approach_speed = approach_speed
+        # How many metres of goal distance one metre nearer the zone is worth, in the threat score.
+        self.zone_weight = zone_weight
+        # m: closer than this to the zone, the push turns away from the zone as well as goalward.
+        self.zone_margin = zone_margin
+        # m: within this of the standoff point the approach ends and the sweep starts.
+        self.arrive_tolerance = arrive_tolerance
+        # s: time constant smoothing the arc's centre bearing, so rim-bird ties do not chatter.
+        self.smoothing_time = smoothing_time
+        self._warned = False
+        self._prepared: Scenario | None = None
+
+    def parameters(self) -> dict[str, Any]:
+        return {
+            "push_fraction": self.push_fraction,
+            "push_distance": self.push_distance,
+            "arc_span_deg": self.arc_span_deg,
+            "sweep_speed": self.sweep_speed,
+            "approach_speed": self.approach_speed,
+            "zone_weight": self.zone_weight,
+            "zone_margin": self.zone_margin,
+            "arrive_tolerance": self.arrive_tolerance,
+            "smoothing_time": self.smoothing_time,
+        }
+
+    def push_for(self, flock: FlockParams) -> float:
+        """Standoff distance (m) from the nearest rim bird for a flock with these radii."""
+        dodge, alarm = flock.dodge_radius, flock.alarm_radius
+        if self.push_distance is None:
+            return dodge + self.push_fraction * (alarm - dodge)
+        if not dodge < self.push_distance < alarm and not self._warned:
+            self._warned = True
+            warnings.warn(
+                f"boundary-arc: push_distance = {self.push_distance:g} m lies outside the band "
+                f"({dodge:g}, {alarm:g}) m between the flock's dodge and alarm radii; birds will "
+                "scatter (too close) or ignore the drone (too far). Use push_fraction instead.",
+                stacklevel=2,
+            )
+        return self.push_distance
+
+    def reset(self, scenario: Scenario, seed: int | None = None) -> None:
+        self._prepare(scenario)
+        self._mode = "approach"
+        self._phase = 0.0  # rad, sweep offset from the arc centre
+        self._direction = 1.0  # sweep sense, +1 counter-clockwise
+        self._centre: np.ndarray | None = None  # smoothed unit bearing of the arc centre
+
+    def _prepare(self, scenario: Scenario) -> None:
+        self._prepared = scenario
+        self._zone = zone_arrays(scenario.site.protected)
+        self._goal = np.array(zone_center(scenario.site.goal))
+
+    def push_direction(self, centroid: np.ndarray) -> np.ndarray:
+        """Unit vector the flock should move along: toward the goal, bent away near the zone."""
+        toward_goal = _unit(self._goal - centroid)
+        gap = float(signed_distance(self._zone, centroid))
+        if gap >= self.zone_margin:
+            return toward_goal
+        h = 1.0
+        grad = np.array(
+            [
+                float(signed_distance(self._zone, centroid + [h, 0.0])) - gap,
+                float(signed_distance(self._zone, centroid + [0.0, h])) - gap,
+            ]
+        )
+        closeness = 1.0 - max(gap, 0.0) / self.zone_margin
+        away = _unit(grad)
+        # Never push toward the zone: drop the part of the goal direction that points into it.
+        into = min(0.0, float(toward_goal @ away))
+        return _unit(toward_goal - into * away + closeness * away)
+
+    def act(self, observation: Any, state: StateView | None) -> np.ndarray:
+        if state is None or len(state.bird_pos) == 0:
+            return np.zeros(2)
+        if self._prepared is not state.scenario:
+            self.reset(state.scenario)
+        pos, vel = state.pursuer_pos, state.pursuer_vel
+        birds = state.bird_pos
+        dt = state.scenario.episode.dt
+        centroid = birds.mean(axis=0)
+        flock_vel = state.bird_vel.mean(axis=0)
+        push = self.push_for(state.flock)
+        push_dir = self.push_direction(centroid)
+
+        hull = convex_hull(np.ascontiguousarray(birds))
+        rim = birds[hull]
+        threat = np.hypot(*(rim - self._goal).T) - self.zone_weight * signed_distance(
+            self._zone, rim
+        )
+        focus = rim[int(np.argmax(threat))]
+        behind = _unit(focus - push * push_dir - centroid)
+        if self._centre is None:
+            self._centre = behind
+        else:
+            blend = min(1.0, dt / self.smoothing_time)
+            self._centre = _unit((1.0 - blend) * self._centre + blend * behind)
+
+        rel = birds - centroid
+        radius = float(np.max(np.hypot(*rel.T)))
+        centre_angle = math.atan2(self._centre[1], self._centre[0])
+
+        def station(offset: float) -> tuple[np.ndarray, float]:
+            u = _bearing(centre_angle + offset)
+            reach = float(np.max(rel @ u)) + push  # support function: every bird >= push away
+            return centroid + reach * u, reach
+
+        target, reach = station(self._phase)
+        if self._mode == "approach":
+            if float(np.hypot(*(target - pos))) < self.arrive_tolerance:
+                self._mode = "sweep"
+        elif float(np.hypot(*(target - pos))) > 3.0 * self.arrive_tolerance:
+            self._mode = "approach"
+        if self._mode == "approach":
+            waypoint = around(pos, target, centroid, radius + 0.9 * push)
+            speed = self.approach_speed * state.scenario.pursuer.max_speed
+            return fly_to(pos, vel, waypoint, state.scenario.pursuer, speed, flock_vel)
+
+        half = math.radians(self.arc_span_deg) / 2.0
+        self._phase += self._direction * self.sweep_speed / max(reach, 1.0) * dt
+        if abs(self._phase) >= half:
+            self._phase = math.copysign(half, self._phase)
+            self._direction = -math.copysign(1.0, self._phase)
+        target, reach = station(self._phase)
+        tangent = self._direction * _bearing(centre_angle + self._phase + math.pi / 2.0)
+        return fly_to(
+            pos, vel, target, state.scenario.pursuer, None, flock_vel + self.sweep_speed * tangent
+        )

@@ -1,0 +1,39 @@
+"""Idle: the drone holds station where the episode starts it.
+
+The control experiment of the benchmark: it shows what the flock does unherded (on the shipped
+scenarios it flies on toward its destination, across the protected zone).
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from flockward.controller import Controller, StateView
+from flockward.types import Scenario
+
+from flockward_baselines.controllers.steering import fly_to
+
+
+class Idle(Controller):
+    """Hover at the start position (brakes to rest, then corrects any drift)."""
+
+    name = "idle"
+    information_level = "state"
+
+    def __init__(self) -> None:
+        self._home: np.ndarray | None = None
+
+    def reset(self, scenario: Scenario, seed: int | None = None) -> None:
+        self._home = None
+
+    def act(self, observation: Any, state: StateView | None) -> np.ndarray:
+        if state is None:
+            return np.zeros(2)
+        if self._home is None:
+            self._home = state.pursuer_pos.copy()
+        return fly_to(state.pursuer_pos, state.pursuer_vel, self._home, state.scenario.pursuer)
+
+    def parameters(self) -> dict[str, Any]:
+        return {}

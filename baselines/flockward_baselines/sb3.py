@@ -1,0 +1,123 @@
+"""Stable-Baselines3 bridge: a VecEnv over the same batched task as the Gymnasium faces.
+
+SB3 expects its own VecEnv protocol: reset returns observations only; step returns four values;
+a world whose episode ends is reset within the same step and its last observation is passed in
+``info["terminal_observation"]``. ``info["TimeLimit.truncated"]`` marks step-limit ends so SB3
+bootstraps their value. Infos are empty dicts except on a world's last step (cheap in the hot
+path); that one also carries the episode's ``outcome`` and final flock metrics.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import gymnasium as gym
+import numpy as np
+from gymnasium.utils import seeding
+from stable_baselines3.common.vec_env.base_vec_env import VecEnv
+
+from flockward.env import resolve_scenario, scalar_info
+from flockward.task import DivertTask, check_actions
+
+ENV_ID = "flockward/Divert-v0"
+
+
+class FlockwardVecEnv(VecEnv):
+    """B worlds of ``flockward/Divert-v0`` as one SB3 VecEnv (no subprocesses needed).
+
+    Attributes and methods reached through get_attr / set_attr / env_method belong to the shared
+    batched task, so every index sees the same object: get_attr returns one value per index.
+    """
+
+    def __init__(self, num_envs: int = 16, **env_kwargs: Any):
+        scenario = resolve_scenario(
+            env_kwargs.pop("scenario", "headon"), env_kwargs.pop("overrides", None)
+        )
+        allowed = {"observation", "rim_birds", "max_birds", "neighbour_search", "max_episode_steps"}
+        unknown = sorted(set(env_kwargs) - allowed)
+        if unknown:
+            raise TypeError(
+                f"unknown environment argument(s) {unknown}; allowed: scenario, overrides, "
+                + ", ".join(sorted(allowed))
+            )
+        max_steps = env_kwargs.pop("max_episode_steps", None)
+        self.task = DivertTask(scenario, int(num_envs), max_steps=max_steps, **env_kwargs)
+        self.scenario = scenario
+        self.render_mode = None
+        super().__init__(
+            int(num_envs),
+            self.task.observations.space(),
+            gym.spaces.Box(-1.0, 1.0, (2,), np.float32),
+        )
+        self._actions = np.zeros((self.num_envs, 2))
+        self._generators: list[np.random.Generator] | None = None
+
+    def reset(self):
+        if self._generators is None or any(s is not None for s in self._seeds):
+            self._generators = [seeding.np_random(s)[0] for s in self._seeds]
+        obs = self.task.reset(np.arange(self.num_envs), self._generators)
+        self._reset_seeds()
+        self._reset_options()
+        return obs
+
+    def step_async(self, actions: np.ndarray) -> None:
+        self._actions = check_actions(actions, self.num_envs)
+
+    def step_wait(self):
+        batch = self.task.step(self._actions)
+        dones = batch.terminated | batch.truncated
+        infos: list[dict[str, Any]] = [{} for _ in range(self.num_envs)]
+        obs = batch.observation
+        finished = np.flatnonzero(dones)
+        if finished.size:
+            for i in finished:
+                info = scalar_info(batch.info, int(i))
+                info["terminal_observation"] = _row(obs, int(i))
+                info["TimeLimit.truncated"] = bool(batch.truncated[i] and not batch.terminated[i])
+                infos[i] = info
+            fresh = self.task.reset(finished)
+            obs = _merge(obs, fresh, finished)
+        return obs, batch.reward.astype(np.float32), dones, infos
+
+    def close(self) -> None:
+        return None
+
+    def get_attr(self, attr_name: str, indices=None) -> list[Any]:
+        value = getattr(self.task, attr_name)
+        return [value for _ in self._get_indices(indices)]
+
+    def set_attr(self, attr_name: str, value: Any, indices=None) -> None:
+        setattr(self.task, attr_name, value)
+
+    def env_method(self, method_name: str, *method_args, indices=None, **method_kwargs):
+        method = getattr(self.task, method_name)
+        return [method(*method_args, **method_kwargs) for _ in self._get_indices(indices)]
+
+    def env_is_wrapped(self, wrapper_class, indices=None) -> list[bool]:
+        return [False for _ in self._get_indices(indices)]
+
+
+def _row(obs, i: int):
+    if isinstance(obs, dict):
+        return {key: value[i].copy() for key, value in obs.items()}
+    return obs[i].copy()
+
+
+def _merge(obs, fresh, rows: np.ndarray):
+    """``obs`` with the given rows taken from ``fresh`` (both batched alike)."""
+    if isinstance(obs, dict):
+        return {key: _merge(obs[key], fresh[key], rows) for key in obs}
+    out = obs.copy()
+    out[rows] = fresh[rows]
+    return out
+
+
+def make_vec_env(
+    env_id: str = ENV_ID, num_envs: int = 16, seed: int | None = 0, **env_kwargs: Any
+) -> FlockwardVecEnv:
+    """An SB3 VecEnv of ``num_envs`` worlds; world i is seeded ``seed + i`` at the first reset."""
+    if env_id != ENV_ID:
+        raise ValueError(f"env_id = {env_id!r}: flockward registers only {ENV_ID!r}")
+    env = FlockwardVecEnv(num_envs, **env_kwargs)
+    env.seed(seed)
+    return env
