@@ -264,9 +264,10 @@ def test_vector_wrappers_accept_the_vector_env():
         NormalizeObservation(DivertVectorEnv(4, "trio", max_episode_steps=10))
     )
     venv.reset(seed=0)
-    for _ in range(12):
-        *_, info = venv.step(venv.action_space.sample())
-    assert "episode" in info
+    for _ in range(10):
+        *_, truncated, info = venv.step(venv.action_space.sample())
+    assert truncated.all()
+    np.testing.assert_array_equal(info["episode"]["l"], 10)
 
 
 @pytest.mark.expensive
