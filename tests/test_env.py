@@ -55,13 +55,13 @@ def test_make_vec_passes_max_episode_steps():
         ENV_ID, num_envs=2, vectorization_mode="vector_entry_point", max_episode_steps=5
     )
     venv.reset(seed=1)
-    for step in range(5):
+    for _ in range(5):
         _, _, terminated, truncated, _ = venv.step(np.zeros((2, 2)))
-    assert truncated.all() and not terminated.any(), step
+    assert truncated.all() and not terminated.any()
 
 
 def test_unknown_override_names_the_key():
-    with pytest.raises(ValueError, match="flock.cout"):
+    with pytest.raises(ValueError, match=r"flock\.cout"):
         DivertEnv("headon", overrides={"flock.cout": 10})
 
 
@@ -88,7 +88,7 @@ def test_shaping_term_is_potential_based():
     phi0 = -max(env.task.metrics.goal_distance[0], 0.0) / scale
     total = 0.0
     for t in range(40):
-        _, _, terminated, truncated, info = env.step(np.zeros(2))
+        _, _, terminated, _, info = env.step(np.zeros(2))
         total += gamma**t * info["reward_terms"]["progress"] / env.scenario.reward.progress
         assert not terminated
     phi_t = -max(info["goal_distance"], 0.0) / scale
