@@ -43,7 +43,7 @@ from flockward.types import K
 GRID_MIN_BIRDS = 350
 NEIGHBOUR_SEARCH = ("auto", "all-pairs", "grid")
 
-_SEP_MIN_D2 = 1e-2  # m^2: separation distance floor, so coincident birds push apart finitely
+_SEP_MIN_D2 = 1e-2  # m^2: separation distance floor, so very close birds push apart finitely
 _TINY = 1e-12
 # Exact IEEE semantics except fused multiply-add and fast transcendental approximations: the same
 # compiled code runs for single and vector envs, so results stay bit-identical between them.

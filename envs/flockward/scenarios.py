@@ -55,6 +55,11 @@ __all__ = [
 ]
 
 
+# Largest alignment_radius / alignment_sigma: beyond it the kernel's tabulated weight drifts from
+# the formula by more than 1e-4 relative (flockward.dynamics.alignment_table).
+MAX_ALIGNMENT_REACH = 10.0
+
+
 class ConfigError(ValueError):
     """A config file or override is invalid; the message is one line: FILE: key ... : allowed."""
 
@@ -665,6 +670,14 @@ def _check_flock(flock: FlockParams, where: Callable[[str], _Origin]) -> None:
             getattr(flock, blamed),
             "must keep dodge_radius < alarm_radius, birds dodge only once alarmed "
             f"(now {_num(flock.dodge_radius)} and {_num(flock.alarm_radius)} m)",
+        )
+    if flock.alignment_radius > MAX_ALIGNMENT_REACH * flock.alignment_sigma:
+        blamed, origin = _blame(where, "alignment_radius", "alignment_sigma")
+        raise origin.error(
+            getattr(flock, blamed),
+            f"must keep alignment_radius <= {MAX_ALIGNMENT_REACH:g} * alignment_sigma, where "
+            "the tabulated Cucker-Smale weight is accurate to 1e-4 "
+            f"(now {_num(flock.alignment_radius)} and {_num(flock.alignment_sigma)} m)",
         )
 
 
