@@ -81,7 +81,7 @@ class Batch:
         m = max(n, 1)
         self.work = np.zeros((4, m))
         self.acc = np.zeros((7, m))
-        self.keys = np.zeros(m, dtype=np.int64)
+        self.index_work = np.zeros((2, m), dtype=np.int64)
 
     def step(self, steps: int = 1) -> None:
         for _ in range(steps):
@@ -103,7 +103,7 @@ class Batch:
                 self.live,
                 self.work,
                 self.acc,
-                self.keys,
+                self.index_work,
             )
 
 

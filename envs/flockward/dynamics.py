@@ -27,7 +27,7 @@ advances by the mean of the old and the clamped new velocity. The pursuer uses t
 Neighbour search: all pairs (each pair visited once, contributions applied to both birds) for small
 flocks; for large flocks a cell grid with cell size equal to the interaction cut-off (birds sorted
 by cell key, neighbouring cells found by binary search, so memory stays O(N) however far birds
-spread). Both traversals call the same pair function, so they agree to rounding.
+spread). Both traversals run the same pair arithmetic, so they agree to rounding.
 """
 
 from __future__ import annotations
@@ -87,88 +87,6 @@ def alignment_table(beta: float) -> np.ndarray:
     return table
 
 
-@numba.njit(cache=True, inline="always", fastmath=_FAST)
-def _pair(dx, dy, dvx, dvy, d2, r_sep2, r_ali2, r_coh2, inv_sig2, table):
-    """What neighbour j at offset (dx, dy) = x_j - x_i, relative velocity dv, gives bird i."""
-    sx = 0.0
-    sy = 0.0
-    ax = 0.0
-    ay = 0.0
-    cx = 0.0
-    cy = 0.0
-    cn = 0.0
-    if d2 < r_sep2:
-        inv = 1.0 / max(d2, _SEP_MIN_D2)
-        sx = -dx * inv
-        sy = -dy * inv
-    if d2 < r_ali2:
-        u = d2 * inv_sig2
-        t = ALIGN_TABLE_SIZE * u / (1.0 + u)
-        k = int(t)
-        w = table[k] + (t - k) * (table[k + 1] - table[k])
-        ax = w * dvx
-        ay = w * dvy
-    if d2 < r_coh2:
-        cx = dx
-        cy = dy
-        cn = 1.0
-    return sx, sy, ax, ay, cx, cy, cn
-
-
-@numba.njit(cache=True, inline="always")
-def _cutoffs(prm):
-    r_sep2 = prm[_C_RSEP] ** 2
-    r_ali2 = prm[_C_RALI] ** 2
-    r_coh2 = prm[_C_RCOH] ** 2
-    return r_sep2, r_ali2, r_coh2, max(r_sep2, r_ali2, r_coh2), 1.0 / prm[_C_SIG] ** 2
-
-
-@numba.njit(cache=True, fastmath=_FAST)
-def _accumulate_all_pairs(w, acc, n, prm, table):
-    r_sep2, r_ali2, r_coh2, cut2, inv_sig2 = _cutoffs(prm)
-    X = w[_X]
-    Y = w[_Y]
-    VX = w[_VX]
-    VY = w[_VY]
-    for i in range(n):
-        xi = X[i]
-        yi = Y[i]
-        vxi = VX[i]
-        vyi = VY[i]
-        sxi = syi = axi = ayi = cxi = cyi = cni = 0.0
-        for j in range(i + 1, n):
-            dx = X[j] - xi
-            dy = Y[j] - yi
-            d2 = dx * dx + dy * dy
-            if d2 >= cut2:
-                continue
-            sx, sy, ax, ay, cx, cy, cn = _pair(
-                dx, dy, VX[j] - vxi, VY[j] - vyi, d2, r_sep2, r_ali2, r_coh2, inv_sig2, table
-            )
-            sxi += sx
-            syi += sy
-            axi += ax
-            ayi += ay
-            cxi += cx
-            cyi += cy
-            cni += cn
-            # Every term is antisymmetric in (i, j) except the neighbour count.
-            acc[_SX, j] -= sx
-            acc[_SY, j] -= sy
-            acc[_AX, j] -= ax
-            acc[_AY, j] -= ay
-            acc[_CX, j] -= cx
-            acc[_CY, j] -= cy
-            acc[_CN, j] += cn
-        acc[_SX, i] += sxi
-        acc[_SY, i] += syi
-        acc[_AX, i] += axi
-        acc[_AY, i] += ayi
-        acc[_CX, i] += cxi
-        acc[_CY, i] += cyi
-        acc[_CN, i] += cni
-
-
 @numba.njit(cache=True)
 def _cell_keys(w, n, cell, keys):
     for i in range(n):
@@ -178,39 +96,72 @@ def _cell_keys(w, n, cell, keys):
 
 
 @numba.njit(cache=True, fastmath=_FAST)
-def _accumulate_grid(w, acc, n, prm, table, keys):
-    r_sep2, r_ali2, r_coh2, cut2, inv_sig2 = _cutoffs(prm)
+def _accumulate(w, acc, n, prm, table, use_grid, keys, order):
+    """Sum every neighbour pair's separation, alignment and cohesion terms into ``acc``.
+
+    Each unordered pair within the cut-off is visited once (j > i) and applied to both birds: all
+    terms are antisymmetric in (i, j) except the neighbour count. Candidates are all later birds
+    (all pairs) or the birds of the 3 x 3 surrounding grid cells (grid); the pair arithmetic is
+    the same code for both.
+    """
+    r_sep2 = prm[_C_RSEP] ** 2
+    r_ali2 = prm[_C_RALI] ** 2
+    r_coh2 = prm[_C_RCOH] ** 2
+    cut2 = max(r_sep2, r_ali2, r_coh2)
+    inv_sig2 = 1.0 / prm[_C_SIG] ** 2
     X = w[_X]
     Y = w[_Y]
     VX = w[_VX]
     VY = w[_VY]
-    _cell_keys(w, n, math.sqrt(cut2), keys)
-    order = np.argsort(keys[:n], kind="mergesort")
-    sorted_keys = keys[:n][order]
+    if use_grid:
+        _cell_keys(w, n, math.sqrt(cut2), keys)
+        order[:n] = np.argsort(keys[:n], kind="mergesort")
+        sorted_keys = keys[:n][order[:n]]
+    else:
+        for i in range(n):
+            order[i] = i
+        sorted_keys = keys[:0]
     for i in range(n):
-        key = keys[i]
-        kx = key >> 32
-        ky = key & 0xFFFFFFFF
         xi = X[i]
         yi = Y[i]
         vxi = VX[i]
         vyi = VY[i]
         sxi = syi = axi = ayi = cxi = cyi = cni = 0.0
-        for ddx in range(-1, 2):
-            start = np.searchsorted(sorted_keys, ((kx + ddx) << 32) | (ky - 1), "left")
-            stop = np.searchsorted(sorted_keys, ((kx + ddx) << 32) | (ky + 1), "right")
+        n_ranges = 3 if use_grid else 1
+        for r in range(n_ranges):
+            if use_grid:
+                kx = (keys[i] >> 32) + r - 1
+                ky = keys[i] & 0xFFFFFFFF
+                start = np.searchsorted(sorted_keys, (kx << 32) | (ky - 1), "left")
+                stop = np.searchsorted(sorted_keys, (kx << 32) | (ky + 1), "right")
+            else:
+                start = i + 1
+                stop = n
             for s in range(start, stop):
                 j = order[s]
-                if j == i:
+                if j <= i:
                     continue
                 dx = X[j] - xi
                 dy = Y[j] - yi
                 d2 = dx * dx + dy * dy
                 if d2 >= cut2:
                     continue
-                sx, sy, ax, ay, cx, cy, cn = _pair(
-                    dx, dy, VX[j] - vxi, VY[j] - vyi, d2, r_sep2, r_ali2, r_coh2, inv_sig2, table
-                )
+                sx = sy = ax = ay = cx = cy = cn = 0.0
+                if d2 < r_sep2:
+                    inv = 1.0 / max(d2, _SEP_MIN_D2)
+                    sx = -dx * inv
+                    sy = -dy * inv
+                if d2 < r_ali2:
+                    u = d2 * inv_sig2
+                    t = ALIGN_TABLE_SIZE * u / (1.0 + u)
+                    k = int(t)
+                    wt = table[k] + (t - k) * (table[k + 1] - table[k])
+                    ax = wt * (VX[j] - vxi)
+                    ay = wt * (VY[j] - vyi)
+                if d2 < r_coh2:
+                    cx = dx
+                    cy = dy
+                    cn = 1.0
                 sxi += sx
                 syi += sy
                 axi += ax
@@ -218,13 +169,20 @@ def _accumulate_grid(w, acc, n, prm, table, keys):
                 cxi += cx
                 cyi += cy
                 cni += cn
-        acc[_SX, i] = sxi
-        acc[_SY, i] = syi
-        acc[_AX, i] = axi
-        acc[_AY, i] = ayi
-        acc[_CX, i] = cxi
-        acc[_CY, i] = cyi
-        acc[_CN, i] = cni
+                acc[_SX, j] -= sx
+                acc[_SY, j] -= sy
+                acc[_AX, j] -= ax
+                acc[_AY, j] -= ay
+                acc[_CX, j] -= cx
+                acc[_CY, j] -= cy
+                acc[_CN, j] += cn
+        acc[_SX, i] += sxi
+        acc[_SY, i] += syi
+        acc[_AX, i] += axi
+        acc[_AY, i] += ayi
+        acc[_CX, i] += cxi
+        acc[_CY, i] += cyi
+        acc[_CN, i] += cni
 
 
 @numba.njit(cache=True)
@@ -271,7 +229,7 @@ def step_worlds(
     live,  # (B,) bool: worlds to advance; the others are left untouched
     work,  # (4, N) float64 work space for coordinates
     acc,  # (7, N) float64 work space for pair sums
-    keys,  # (N,) int64 work space
+    index_work,  # (2, N) int64 work space: cell keys, visit order
 ):
     """Advance every world by one step, in place."""
     n_worlds = bird_pos.shape[0]
@@ -295,10 +253,7 @@ def step_worlds(
             work[_VX, i] = vel[i, 0]
             work[_VY, i] = vel[i, 1]
         acc[:, :n] = 0.0
-        if use_grid:
-            _accumulate_grid(work, acc, n, prm, align_tables[b], keys)
-        else:
-            _accumulate_all_pairs(work, acc, n, prm, align_tables[b])
+        _accumulate(work, acc, n, prm, align_tables[b], use_grid, index_work[0], index_work[1])
         k_sep = prm[_C_KSEP]
         k_ali = prm[_C_KALI] / max(n, 1)
         k_coh = prm[_C_KCOH]

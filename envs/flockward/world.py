@@ -47,7 +47,7 @@ class World:
         self._noise_row = np.zeros(worlds, dtype=np.int64)
         self._work = np.zeros((4, max(self.max_birds, 1)))  # coordinates, struct of arrays
         self._acc = np.zeros((7, max(self.max_birds, 1)))  # pair sums
-        self._keys = np.zeros(max(self.max_birds, 1), dtype=np.int64)
+        self._index_work = np.zeros((2, max(self.max_birds, 1)), dtype=np.int64)
 
     def reset(self, index: int, rng: np.random.Generator | None = None) -> None:
         """Start world ``index`` afresh, from ``rng`` if given, else from its own generator."""
@@ -98,7 +98,7 @@ class World:
             live,
             self._work,
             self._acc,
-            self._keys,
+            self._index_work,
         )
         if self.has_noise:
             self._noise_row += live
