@@ -83,7 +83,8 @@ class FlockwardVecEnv(VecEnv):
         return None
 
     def get_attr(self, attr_name: str, indices=None) -> list[Any]:
-        value = getattr(self.task, attr_name)
+        owner = self if attr_name in ("render_mode", "scenario") else self.task
+        value = getattr(owner, attr_name)
         return [value for _ in self._get_indices(indices)]
 
     def set_attr(self, attr_name: str, value: Any, indices=None) -> None:
@@ -95,6 +96,74 @@ class FlockwardVecEnv(VecEnv):
 
     def env_is_wrapped(self, wrapper_class, indices=None) -> list[bool]:
         return [False for _ in self._get_indices(indices)]
+
+
+class MixedVecEnv(VecEnv):
+    """Several adapters (one scenario each, same spaces) stepped as one VecEnv: a training mix."""
+
+    def __init__(self, parts: list[FlockwardVecEnv]):
+        first = parts[0]
+        for part in parts[1:]:
+            if part.observation_space != first.observation_space:
+                raise ValueError(
+                    f"scenario {part.scenario.name!r} observes {part.observation_space}, "
+                    f"{first.scenario.name!r} observes {first.observation_space}: a mix needs "
+                    "one observation space (same observation mode and rim_birds)"
+                )
+        self.parts = parts
+        self.render_mode = None
+        self._bounds = np.cumsum([0] + [p.num_envs for p in parts])
+        super().__init__(int(self._bounds[-1]), first.observation_space, first.action_space)
+
+    def reset(self):
+        return _concat([part.reset() for part in self.parts])
+
+    def step_async(self, actions: np.ndarray) -> None:
+        for part, lo, hi in zip(self.parts, self._bounds[:-1], self._bounds[1:], strict=True):
+            part.step_async(actions[lo:hi])
+
+    def step_wait(self):
+        results = [part.step_wait() for part in self.parts]
+        obs = _concat([r[0] for r in results])
+        rewards = np.concatenate([r[1] for r in results])
+        dones = np.concatenate([r[2] for r in results])
+        infos = [info for r in results for info in r[3]]
+        return obs, rewards, dones, infos
+
+    def seed(self, seed: int | None = None):
+        out = []
+        for part, lo in zip(self.parts, self._bounds[:-1], strict=True):
+            out += part.seed(None if seed is None else seed + int(lo))
+        return out
+
+    def close(self) -> None:
+        for part in self.parts:
+            part.close()
+
+    def get_attr(self, attr_name: str, indices=None) -> list[Any]:
+        return [self._part(i).task.__getattribute__(attr_name) for i in self._get_indices(indices)]
+
+    def set_attr(self, attr_name: str, value: Any, indices=None) -> None:
+        for i in self._get_indices(indices):
+            setattr(self._part(i).task, attr_name, value)
+
+    def env_method(self, method_name: str, *method_args, indices=None, **method_kwargs):
+        return [
+            getattr(self._part(i).task, method_name)(*method_args, **method_kwargs)
+            for i in self._get_indices(indices)
+        ]
+
+    def env_is_wrapped(self, wrapper_class, indices=None) -> list[bool]:
+        return [False for _ in self._get_indices(indices)]
+
+    def _part(self, index: int) -> FlockwardVecEnv:
+        return self.parts[int(np.searchsorted(self._bounds, index, side="right")) - 1]
+
+
+def _concat(batches):
+    if isinstance(batches[0], dict):
+        return {key: np.concatenate([b[key] for b in batches]) for key in batches[0]}
+    return np.concatenate(batches)
 
 
 def _row(obs, i: int):

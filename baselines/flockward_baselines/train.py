@@ -1,0 +1,411 @@
+"""`flockward train`: Stable-Baselines3 training from a TOML config, on the native batched core.
+
+A training config names the algorithm, its hyperparameters, the scenarios to train on (several
+scenarios make a randomised mix: each gets an equal share of the worlds), a seed, and a held-out
+validation suite evaluated periodically with the deterministic policy. A run directory receives
+TensorBoard and CSV logs, checkpoints, ``eval.csv``, the final ``model.zip`` and
+``training_curve.png``. ``--resume`` continues from the newest checkpoint.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+import os
+import time
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from flockward.scenarios import ConfigError, list_scenarios, load_scenario
+
+ALGORITHMS = ("ppo", "sac")
+
+# Hyperparameters a config may set, per algorithm: (type, low, high). Anything else is an error.
+_NUM = (float, 0.0, math.inf)
+HYPERPARAMETERS: dict[str, dict[str, tuple[type, float, float]]] = {
+    "ppo": {
+        "learning_rate": (float, 1e-7, 1.0),
+        "n_steps": (int, 8, 100_000),
+        "batch_size": (int, 8, 1_000_000),
+        "n_epochs": (int, 1, 100),
+        "gamma": (float, 0.0, 1.0),
+        "gae_lambda": (float, 0.0, 1.0),
+        "clip_range": (float, 0.0, 10.0),
+        "ent_coef": (float, 0.0, 1.0),
+        "vf_coef": (float, 0.0, 10.0),
+        "max_grad_norm": (float, 0.0, 100.0),
+    },
+    "sac": {
+        "learning_rate": (float, 1e-7, 1.0),
+        "buffer_size": (int, 1000, 10_000_000),
+        "learning_starts": (int, 0, 10_000_000),
+        "batch_size": (int, 8, 100_000),
+        "tau": (float, 0.0, 1.0),
+        "gamma": (float, 0.0, 1.0),
+        "train_freq": (int, 1, 100_000),
+        "gradient_steps": (int, -1, 100_000),
+    },
+}
+NET_ARCH_MAX = 1024  # units per hidden layer
+
+
+@dataclass(frozen=True)
+class TrainConfig:
+    """A validated training config (see configs/train/*.toml for commented examples)."""
+
+    name: str
+    algorithm: str
+    scenarios: tuple[str, ...]
+    seed: int = 0
+    total_timesteps: int = 100_000  # environment steps summed over all worlds
+    num_envs: int = 16  # worlds, shared out evenly between the scenarios
+    overrides: dict[str, Any] = field(default_factory=dict)  # applied to every scenario
+    eval_suite: str = "validation"
+    eval_every: int = 200_000  # environment steps between validation runs (0: only at the end)
+    checkpoint_every: int = 200_000  # environment steps between checkpoints
+    torch_threads: int = 1
+    net_arch: tuple[int, ...] = (64, 64)
+    hyperparameters: dict[str, Any] = field(default_factory=dict)
+    source_file: str = ""
+
+
+_TOP_KEYS: dict[str, tuple[type, float, float]] = {
+    "seed": (int, 0, 2**31 - 1),
+    "total_timesteps": (int, 1, 10**10),
+    "num_envs": (int, 1, 4096),
+    "eval_every": (int, 0, 10**10),
+    "checkpoint_every": (int, 1, 10**10),
+    "torch_threads": (int, 1, 64),
+}
+
+
+def _check_number(label: str, key: str, value: Any, kind: type, lo: float, hi: float) -> Any:
+    ok_type = isinstance(value, int) if kind is int else isinstance(value, int | float)
+    if isinstance(value, bool) or not ok_type:
+        what = "an integer" if kind is int else "a number"
+        raise ConfigError(f"{label}: key '{key}' = {value!r}: must be {what} in [{lo:g}, {hi:g}]")
+    if not (math.isfinite(value) and lo <= value <= hi):
+        what = "an integer" if kind is int else "a finite number"
+        raise ConfigError(f"{label}: key '{key}' = {value!r}: must be {what} in [{lo:g}, {hi:g}]")
+    return kind(value)
+
+
+def load_train_config(path: str | Path) -> TrainConfig:
+    """Read and validate a training config; errors are one-line ConfigErrors."""
+    path = Path(path)
+    label = str(path)
+    try:
+        raw = tomllib.loads(path.read_text())
+    except FileNotFoundError:
+        raise ConfigError(f"{label}: file not found") from None
+    except tomllib.TOMLDecodeError as error:
+        raise ConfigError(f"{label}: invalid TOML: {error}") from None
+    allowed = {"name", "algorithm", "scenarios", "overrides", "eval_suite", "net_arch"}
+    allowed |= set(_TOP_KEYS) | set(ALGORITHMS)
+    for key in raw:
+        if key not in allowed:
+            raise ConfigError(
+                f"{label}: unknown key '{key}'; allowed: {', '.join(sorted(allowed))}"
+            )
+    algorithm = raw.get("algorithm")
+    if algorithm not in ALGORITHMS:
+        raise ConfigError(
+            f"{label}: key 'algorithm' = {algorithm!r}: must be one of {', '.join(ALGORITHMS)}"
+        )
+    name = raw.get("name", path.stem)
+    if not isinstance(name, str) or not name.replace("-", "").replace("_", "").isalnum():
+        raise ConfigError(f"{label}: key 'name' = {name!r}: must be letters, digits, '-' or '_'")
+    scenarios = raw.get("scenarios")
+    if (
+        not isinstance(scenarios, list)
+        or not scenarios
+        or not all(isinstance(s, str) for s in scenarios)
+    ):
+        raise ConfigError(
+            f"{label}: key 'scenarios' = {scenarios!r}: must be a non-empty list of scenario "
+            f"names ({', '.join(list_scenarios())}) or TOML paths"
+        )
+    overrides = raw.get("overrides", {})
+    if not isinstance(overrides, dict):
+        raise ConfigError(f"{label}: key 'overrides' = {overrides!r}: must be a table")
+    for scenario in scenarios:
+        try:
+            load_scenario(scenario, overrides)
+        except ConfigError as error:
+            raise ConfigError(f"{label}: key 'scenarios' entry {scenario!r}: {error}") from None
+    top = {
+        key: _check_number(label, key, raw[key], *spec)
+        for key, spec in _TOP_KEYS.items()
+        if key in raw
+    }
+    net_arch = raw.get("net_arch", [64, 64])
+    if (
+        not isinstance(net_arch, list)
+        or not net_arch
+        or not all(
+            isinstance(u, int) and not isinstance(u, bool) and 1 <= u <= NET_ARCH_MAX
+            for u in net_arch
+        )
+    ):
+        raise ConfigError(
+            f"{label}: key 'net_arch' = {net_arch!r}: must be a list of layer widths in "
+            f"[1, {NET_ARCH_MAX}]"
+        )
+    hyper: dict[str, Any] = {}
+    for algo in ALGORITHMS:
+        if algo in raw and algo != algorithm:
+            raise ConfigError(
+                f"{label}: key '{algo}' = table: does not apply to algorithm '{algorithm}'"
+            )
+    table = raw.get(algorithm, {})
+    if not isinstance(table, dict):
+        raise ConfigError(f"{label}: key '{algorithm}' = {table!r}: must be a table")
+    specs = HYPERPARAMETERS[algorithm]
+    for key, value in table.items():
+        if key not in specs:
+            raise ConfigError(
+                f"{label}: unknown key '{algorithm}.{key}'; allowed: {', '.join(sorted(specs))}"
+            )
+        hyper[key] = _check_number(label, f"{algorithm}.{key}", value, *specs[key])
+    num_envs = top.get("num_envs", 16)
+    if num_envs < len(scenarios):
+        raise ConfigError(
+            f"{label}: key 'num_envs' = {num_envs}: must be at least the number of scenarios "
+            f"({len(scenarios)}), one world each at least"
+        )
+    eval_suite = raw.get("eval_suite", "validation")
+    if not isinstance(eval_suite, str):
+        raise ConfigError(f"{label}: key 'eval_suite' = {eval_suite!r}: must be a suite name")
+    return TrainConfig(
+        name=name,
+        algorithm=algorithm,
+        scenarios=tuple(scenarios),
+        overrides=dict(overrides),
+        eval_suite=eval_suite,
+        net_arch=tuple(net_arch),
+        hyperparameters=hyper,
+        source_file=label,
+        **top,
+    )
+
+
+def make_training_env(config: TrainConfig):
+    """The SB3 VecEnv of the config: one adapter, or a mix of one adapter per scenario."""
+    from flockward_baselines.sb3 import MixedVecEnv, make_vec_env
+
+    k = len(config.scenarios)
+    shares = [config.num_envs // k + (1 if i < config.num_envs % k else 0) for i in range(k)]
+    parts = []
+    first_seed = config.seed
+    for scenario, worlds in zip(config.scenarios, shares, strict=True):
+        parts.append(
+            make_vec_env(
+                num_envs=worlds, seed=first_seed, scenario=scenario, overrides=config.overrides
+            )
+        )
+        first_seed += worlds
+    return parts[0] if k == 1 else MixedVecEnv(parts)
+
+
+def _model_controller(model):
+    """A Controller playing an in-memory SB3 model deterministically (for validation)."""
+    from flockward.controller import Controller
+
+    class _InMemory(Controller):
+        name = "training-policy"
+        information_level = "observation"
+
+        def act(self, observation, state):
+            action, _ = model.predict(observation, deterministic=True)
+            return np.asarray(action, dtype=np.float64).reshape(-1)
+
+    return _InMemory()
+
+
+def validate(model, suite_name: str) -> float:
+    """Mean headline score of the deterministic policy over the validation suite."""
+    from flockward.episode import play_episode
+    from flockward.leaderboard import episode_score
+    from flockward.suites import load_suite
+
+    suite = load_suite(suite_name)
+    controller = _model_controller(model)
+    scores = []
+    scenarios = {}
+    for spec in suite.episodes():
+        if spec.family not in scenarios:
+            scenarios[spec.family] = next(
+                e.scenario for e in suite.entries if e.family == spec.family
+            )
+        record, _ = play_episode(scenarios[spec.family], controller, spec.seed)
+        scores.append(episode_score(record.as_dict()))
+    return float(np.mean(scores))
+
+
+def _write_eval_log(path: Path, rows: list[tuple[int, float, float]]) -> None:
+    tmp = path.with_suffix(".tmp")
+    with tmp.open("w", newline="") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(["timesteps", "validation_score", "wall_seconds"])
+        writer.writerows(rows)
+    os.replace(tmp, path)
+
+
+def _read_eval_log(path: Path) -> list[tuple[int, float, float]]:
+    if not path.is_file():
+        return []
+    with path.open() as handle:
+        reader = csv.DictReader(handle)
+        return [
+            (int(r["timesteps"]), float(r["validation_score"]), float(r["wall_seconds"]))
+            for r in reader
+        ]
+
+
+def _save_atomic(model, path: Path) -> None:
+    tmp = path.with_name(path.stem + ".partial.zip")
+    model.save(str(tmp))
+    os.replace(tmp, path)
+
+
+def _latest_checkpoint(run_dir: Path) -> Path | None:
+    found = sorted(
+        (run_dir / "checkpoints").glob("step_*.zip"), key=lambda p: int(p.stem.split("_")[1])
+    )
+    return found[-1] if found else None
+
+
+def plot_curve(run_dir: Path) -> Path:
+    """training_curve.png: validation score and mean training episode return over timesteps."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(8, 3.5), dpi=100)
+    FigureCanvasAgg(fig)
+    left, right = fig.subplots(1, 2)
+    evals = _read_eval_log(run_dir / "eval.csv")
+    if evals:
+        steps, scores, _ = zip(*evals, strict=True)
+        left.plot(steps, scores, marker="o", color="#2a7f62")
+    left.set(title="validation score (mean)", xlabel="timesteps", ylim=(0, 1))
+    progress = run_dir / "progress.csv"
+    if progress.is_file():
+        with progress.open() as handle:
+            rows = [
+                r for r in csv.DictReader(handle) if r.get("rollout/ep_rew_mean") not in (None, "")
+            ]
+        if rows:
+            right.plot(
+                [float(r["time/total_timesteps"]) for r in rows],
+                [float(r["rollout/ep_rew_mean"]) for r in rows],
+                color="#b5542c",
+            )
+    right.set(title="training episode return (mean)", xlabel="timesteps")
+    fig.tight_layout()
+    out = run_dir / "training_curve.png"
+    tmp = out.with_suffix(".tmp.png")
+    fig.savefig(tmp)
+    os.replace(tmp, out)
+    return out
+
+
+def train(config: TrainConfig, run_dir: str | Path, resume: bool = False, progress: bool = True):
+    """Train (or resume) and return the path of the final model zip."""
+    import torch
+    from stable_baselines3 import PPO, SAC
+    from stable_baselines3.common.callbacks import BaseCallback
+    from stable_baselines3.common.logger import configure
+    from stable_baselines3.common.vec_env import VecMonitor
+    from tqdm import tqdm
+
+    torch.set_num_threads(config.torch_threads)
+    run_dir = Path(run_dir)
+    (run_dir / "checkpoints").mkdir(parents=True, exist_ok=True)
+    env = VecMonitor(make_training_env(config))
+    algo = {"ppo": PPO, "sac": SAC}[config.algorithm]
+    checkpoint = _latest_checkpoint(run_dir) if resume else None
+    if resume and checkpoint is None:
+        raise ValueError(f"--resume: no checkpoint under {run_dir / 'checkpoints'}")
+    if checkpoint is not None:
+        model = algo.load(str(checkpoint), env=env, device="cpu")
+    else:
+        if (run_dir / "model.zip").exists() or _latest_checkpoint(run_dir):
+            raise ValueError(
+                f"{run_dir} already holds a training run; pass --resume to continue it or choose "
+                "another --out directory"
+            )
+        model = algo(
+            "MlpPolicy",
+            env,
+            seed=config.seed,
+            device="cpu",
+            policy_kwargs={"net_arch": list(config.net_arch)},
+            **config.hyperparameters,
+        )
+    model.set_logger(configure(str(run_dir), ["csv", "tensorboard"]))
+    evals = _read_eval_log(run_dir / "eval.csv") if resume else []
+    start_wall = time.perf_counter() - (evals[-1][2] if evals else 0.0)
+
+    class _Periodic(BaseCallback):
+        def __init__(self):
+            super().__init__()
+            self.next_eval = (
+                (model.num_timesteps // config.eval_every + 1) * config.eval_every
+                if config.eval_every
+                else math.inf
+            )
+            self.next_ckpt = (model.num_timesteps // config.checkpoint_every + 1) * (
+                config.checkpoint_every
+            )
+            self.bar = tqdm(
+                total=config.total_timesteps,
+                initial=model.num_timesteps,
+                unit="step",
+                disable=not progress,
+                dynamic_ncols=True,
+            )
+            self.last = model.num_timesteps
+            self.tick = time.perf_counter()
+
+        def _on_step(self) -> bool:
+            now = self.model.num_timesteps
+            if now - self.last >= 2048:
+                rate = (now - self.last) / max(time.perf_counter() - self.tick, 1e-9)
+                self.bar.update(now - self.last)
+                self.bar.set_postfix(
+                    steps_per_s=f"{rate:,.0f}",
+                    validation=f"{evals[-1][1]:.3f}" if evals else "-",
+                )
+                self.last, self.tick = now, time.perf_counter()
+            if now >= self.next_ckpt:
+                _save_atomic(self.model, run_dir / "checkpoints" / f"step_{now}.zip")
+                self.next_ckpt += config.checkpoint_every
+            if now >= self.next_eval:
+                evals.append((now, validate(self.model, config.eval_suite), _wall()))
+                _write_eval_log(run_dir / "eval.csv", evals)
+                self.next_eval += config.eval_every
+            return True
+
+        def _on_training_end(self) -> None:
+            self.bar.close()
+
+    def _wall() -> float:
+        return time.perf_counter() - start_wall
+
+    remaining = config.total_timesteps - model.num_timesteps
+    if remaining > 0:
+        model.learn(
+            total_timesteps=remaining, callback=_Periodic(), reset_num_timesteps=checkpoint is None
+        )
+    final = run_dir / "model.zip"
+    _save_atomic(model, final)
+    if not evals or evals[-1][0] != model.num_timesteps:
+        evals.append((model.num_timesteps, validate(model, config.eval_suite), _wall()))
+        _write_eval_log(run_dir / "eval.csv", evals)
+    plot_curve(run_dir)
+    env.close()
+    return final
