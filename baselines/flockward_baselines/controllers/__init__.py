@@ -10,7 +10,6 @@ from __future__ import annotations
 from typing import Any
 
 from flockward.controller import Controller, load_controller_class
-
 from flockward_baselines.controllers.boundary_arc import BoundaryArc
 from flockward_baselines.controllers.collect_drive import CollectDrive
 from flockward_baselines.controllers.direct_pursuit import DirectPursuit

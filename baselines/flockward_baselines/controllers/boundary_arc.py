@@ -10,7 +10,12 @@ The push distance comes from the flock's own radii. Inside ``alarm_radius`` a bi
 inside the smaller ``dodge_radius`` it also darts sideways, which splits flocks. Standing in the
 band between them pushes the rim without scattering it:
 ``push = dodge + push_fraction * (alarm - dodge)``, measured from the nearest rim bird. Every
-point of the arc is placed by the flock's support function, so no bird is closer than ``push``.
+point of the arc is placed by the flock's support function, so no bird is closer than ``push``;
+a drone that still finds a bird nearer than the guard distance backs off before anything else.
+
+The push direction points at the goal, bent (by at most ``max_correction_deg``) against the
+flock's sideways drift toward its destination, and away from the protected zone when the flock
+is within ``zone_margin`` of it.
 
 Assumes the state view (every bird's position and velocity, the episode's flock radii).
 """
@@ -26,7 +31,6 @@ import numpy as np
 from flockward.controller import Controller, StateView
 from flockward.geometry import convex_hull, signed_distance, zone_arrays, zone_center
 from flockward.types import FlockParams, Scenario
-
 from flockward_baselines.controllers.steering import around, fly_to
 
 
@@ -56,6 +60,9 @@ class BoundaryArc(Controller):
         zone_margin: float = 150.0,
         arrive_tolerance: float = 15.0,
         smoothing_time: float = 2.0,
+        drift_correction: float = 1.0,
+        guard_fraction: float = 0.5,
+        max_correction_deg: float = 30.0,
     ) -> None:
         if not 0.0 < push_fraction < 1.0:
             raise ValueError(f"push_fraction = {push_fraction}: must lie in (0, 1)")
@@ -83,6 +90,13 @@ class BoundaryArc(Controller):
         self.arrive_tolerance = arrive_tolerance
         # s: time constant smoothing the arc's centre bearing, so rim-bird ties do not chatter.
         self.smoothing_time = smoothing_time
+        # Gain bending the push against the flock's sideways drift (its pull to its destination),
+        # so the flock's track, not just the push, points at the goal.
+        self.drift_correction = drift_correction
+        # Nearer a bird than dodge + guard_fraction * (push - dodge), the drone backs off first.
+        self.guard_fraction = guard_fraction
+        # deg: the most the drift correction may turn the push away from the goal bearing.
+        self.max_correction_deg = max_correction_deg
         self._warned = False
         self._prepared: Scenario | None = None
 
@@ -97,6 +111,9 @@ class BoundaryArc(Controller):
             "zone_margin": self.zone_margin,
             "arrive_tolerance": self.arrive_tolerance,
             "smoothing_time": self.smoothing_time,
+            "drift_correction": self.drift_correction,
+            "guard_fraction": self.guard_fraction,
+            "max_correction_deg": self.max_correction_deg,
         }
 
     def push_for(self, flock: FlockParams) -> float:
@@ -126,9 +143,20 @@ class BoundaryArc(Controller):
         self._zone = zone_arrays(scenario.site.protected)
         self._goal = np.array(zone_center(scenario.site.goal))
 
-    def push_direction(self, centroid: np.ndarray) -> np.ndarray:
-        """Unit vector the flock should move along: toward the goal, bent away near the zone."""
+    def push_direction(self, centroid: np.ndarray, flock_vel: np.ndarray) -> np.ndarray:
+        """Unit vector to push the flock along: toward the goal, corrected for the flock's
+        sideways drift, and bent away from the zone when the flock is near it."""
         toward_goal = _unit(self._goal - centroid)
+        speed = float(np.hypot(*flock_vel))
+        if speed > 1e-9:
+            sideways = flock_vel - float(flock_vel @ toward_goal) * toward_goal
+            bend = self.drift_correction * sideways / speed
+            # Capped: turning the push too far across the flock's flight stretches it apart.
+            cap = math.tan(math.radians(self.max_correction_deg))
+            size = float(np.hypot(*bend))
+            if size > cap:
+                bend *= cap / size
+            toward_goal = _unit(toward_goal - bend)
         gap = float(signed_distance(self._zone, centroid))
         if gap >= self.zone_margin:
             return toward_goal
@@ -156,7 +184,7 @@ class BoundaryArc(Controller):
         centroid = birds.mean(axis=0)
         flock_vel = state.bird_vel.mean(axis=0)
         push = self.push_for(state.flock)
-        push_dir = self.push_direction(centroid)
+        push_dir = self.push_direction(centroid, flock_vel)
 
         hull = convex_hull(np.ascontiguousarray(birds))
         rim = birds[hull]
@@ -179,6 +207,16 @@ class BoundaryArc(Controller):
             u = _bearing(centre_angle + offset)
             reach = float(np.max(rel @ u)) + push  # support function: every bird >= push away
             return centroid + reach * u, reach
+
+        gaps = np.hypot(*(birds - pos).T)
+        nearest = int(np.argmin(gaps))
+        guard = state.flock.dodge_radius + self.guard_fraction * (push - state.flock.dodge_radius)
+        if gaps[nearest] < guard:
+            # Too close to a bird: back straight off to the push distance before anything else,
+            # because inside the dodge radius the flock splits.
+            away = _unit(pos - birds[nearest])
+            retreat = birds[nearest] + push * away
+            return fly_to(pos, vel, retreat, state.scenario.pursuer, None, flock_vel)
 
         target, reach = station(self._phase)
         if self._mode == "approach":

@@ -26,7 +26,6 @@ import numpy as np
 from flockward.controller import Controller, StateView
 from flockward.geometry import zone_center
 from flockward.types import Scenario
-
 from flockward_baselines.controllers.steering import around, fly_to
 
 PAPER_R_A = 2.0  # agent lengths: Strömbom et al. 2014 parameter table (from memory)
@@ -48,20 +47,24 @@ def _unit(v: np.ndarray) -> np.ndarray:
 
 
 def shepherd_target(
-    birds: np.ndarray, goal: np.ndarray, r_a: float, standoff: float = 0.0
+    birds: np.ndarray, goal: np.ndarray, r_a: float, standoff: float | None = None
 ) -> tuple[str, np.ndarray]:
     """The Strömbom decision: ("collect" or "drive", the point to head for), positions in m.
 
-    ``standoff`` (m) is the least distance the point keeps from the birds it pushes: P_c lies at
-    least that far behind the straggler, P_d at least that far beyond the flock's furthest bird.
+    With ``standoff`` None the points are the paper's P_c and P_d exactly. With a standoff (m) they
+    are moved out along the same bearings until they keep that distance: P_c at least that far
+    behind the straggler, P_d at least that far beyond the flock's furthest bird.
     """
     gcm = birds.mean(axis=0)
     gaps = np.hypot(*(birds - gcm).T)
     n = len(birds)
     if float(gaps.max()) > cohesion_threshold(r_a, n):
         straggler = birds[int(np.argmax(gaps))]
-        return "collect", straggler + max(r_a, standoff) * _unit(straggler - gcm)
-    offset = max(driving_offset(r_a, n), float(gaps.max()) + standoff)
+        behind = r_a if standoff is None else max(r_a, standoff)
+        return "collect", straggler + behind * _unit(straggler - gcm)
+    offset = driving_offset(r_a, n)
+    if standoff is not None:
+        offset = max(offset, float(gaps.max()) + standoff)
     return "drive", gcm + offset * _unit(gcm - goal)
 
 
@@ -74,7 +77,7 @@ class CollectDrive(Controller):
     def __init__(
         self,
         r_a: float | None = None,
-        standoff_margin: float = 10.0,
+        standoff_margin: float = 2.0,
         speed: float = 1.0,
     ) -> None:
         if r_a is not None and not r_a > 0.0:

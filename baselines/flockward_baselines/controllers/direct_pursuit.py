@@ -13,7 +13,6 @@ from typing import Any
 import numpy as np
 
 from flockward.controller import Controller, StateView
-
 from flockward_baselines.controllers.steering import head_for
 
 TARGETS = ("centroid", "nearest")

@@ -12,7 +12,6 @@ import numpy as np
 
 from flockward.controller import Controller, StateView
 from flockward.types import Scenario
-
 from flockward_baselines.controllers.steering import fly_to
 
 
