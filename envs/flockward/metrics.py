@@ -91,18 +91,6 @@ def _union(parent: np.ndarray, i: int, j: int) -> None:
 
 
 @numba.njit(cache=True)
-def _link_pairs(p: np.ndarray, n: int, radius: float, parent: np.ndarray) -> None:
-    """Union every pair of the first n points closer than radius, testing all pairs."""
-    r2 = radius * radius
-    for i in range(n):
-        for j in range(i + 1, n):
-            dx = p[i, 0] - p[j, 0]
-            dy = p[i, 1] - p[j, 1]
-            if dx * dx + dy * dy < r2:
-                _union(parent, i, j)
-
-
-@numba.njit(cache=True)
 def _link_grid(p: np.ndarray, n: int, radius: float, parent: np.ndarray) -> bool:
     """Union every pair closer than radius using square cells a little wider than radius, so
     linked birds always sit in neighbouring cells. Returns False (doing nothing) if the cell keys
@@ -147,6 +135,46 @@ def _link_grid(p: np.ndarray, n: int, radius: float, parent: np.ndarray) -> bool
 
 
 @numba.njit(cache=True)
+def _search_components(p: np.ndarray, n: int, radius: float, labels: np.ndarray) -> int:
+    """Label components by breadth-first search over the birds not yet reached.
+
+    Each bird is tested only against birds still unlabelled, so a single compact flock costs
+    O(N) distance tests instead of the O(N^2) of linking every pair; the worst case (all
+    isolated) is the same N^2 / 2.
+    """
+    r2 = radius * radius
+    remaining = np.arange(n)
+    queue = np.empty(n, dtype=np.int64)
+    m = n
+    k = 0
+    while m > 0:
+        m -= 1
+        start = remaining[m]
+        labels[start] = k
+        queue[0] = start
+        head, tail = 0, 1
+        while head < tail:
+            i = queue[head]
+            head += 1
+            xi, yi = p[i, 0], p[i, 1]
+            s = 0
+            while s < m:
+                j = remaining[s]
+                dx = xi - p[j, 0]
+                dy = yi - p[j, 1]
+                if dx * dx + dy * dy < r2:
+                    labels[j] = k
+                    queue[tail] = j
+                    tail += 1
+                    m -= 1
+                    remaining[s] = remaining[m]
+                else:
+                    s += 1
+        k += 1
+    return k
+
+
+@numba.njit(cache=True)
 def _world_components(
     p: np.ndarray, n: int, radius: float, method: int, labels: np.ndarray
 ) -> tuple[int, float]:
@@ -154,20 +182,26 @@ def _world_components(
     component's first bird) into labels[:n]; return the component count and largest share."""
     if n == 0:
         return 0, 1.0
-    parent = np.arange(n)
     use_grid = method == _GRID or (method == _AUTO and n >= GRID_MIN_BIRDS)
-    if radius > 0.0:
-        if not (use_grid and math.isfinite(radius) and _link_grid(p, n, radius, parent)):
-            _link_pairs(p, n, radius, parent)
-    root_label = np.full(n, -1, dtype=np.int64)
+    raw = np.empty(n, dtype=np.int64)
+    parent = np.arange(n)
+    if radius > 0.0 and use_grid and math.isfinite(radius) and _link_grid(p, n, radius, parent):
+        for i in range(n):
+            raw[i] = _find(parent, i)
+    elif radius > 0.0:
+        _search_components(p, n, radius, raw)
+    else:
+        raw[:] = parent
+    # Renumber in order of each component's first bird, whichever search found them.
+    first_label = np.full(n, -1, dtype=np.int64)
     size = np.zeros(n, dtype=np.int64)
     k = 0
     for i in range(n):
-        root = _find(parent, i)
-        if root_label[root] < 0:
-            root_label[root] = k
+        r = raw[i]
+        if first_label[r] < 0:
+            first_label[r] = k
             k += 1
-        labels[i] = root_label[root]
+        labels[i] = first_label[r]
         size[labels[i]] += 1
     return k, size[:k].max() / n
 
