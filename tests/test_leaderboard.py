@@ -113,12 +113,12 @@ def _write(folder: Path, name: str, data: dict) -> Path:
 def test_episode_score_known_cases() -> None:
     assert episode_score(_ep("f", "success", t=1.0)) == pytest.approx(1.0)
     assert episode_score(_ep("f", "error")) == 0.0
-    # Failed, half the flock breached, largest group held half the birds: 0.3*0.5 + 0.2*0.5.
-    assert episode_score(_ep("f", "breach", breached=5, mlf=0.5)) == pytest.approx(0.25)
+    # Failed with breaches, largest group held half the birds: 0 + 0 + 0.2*0.5.
+    assert episode_score(_ep("f", "breach", breached=5, mlf=0.5)) == pytest.approx(0.1)
     # Timeout with a whole, unbreached flock keeps the breach and cohesion terms.
     assert episode_score(_ep("f", "timeout")) == pytest.approx(0.5)
-    # More breaches than birds (not valid in a file) still floors the breach term at 0.
-    assert episode_score(_ep("f", "breach", birds=4, breached=9, mlf=0.0)) == 0.0
+    # A single breaching bird forfeits the whole breach term.
+    assert episode_score(_ep("f", "timeout", birds=50, breached=1, mlf=1.0)) == pytest.approx(0.2)
 
 
 @given(

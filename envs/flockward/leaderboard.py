@@ -5,11 +5,13 @@ Episode score
 Every episode gets one score in [0, 1]::
 
     score = 0.5 * success
-          + 0.3 * max(0, 1 - breached_birds / birds)
+          + 0.3 * breach_free
           + 0.2 * min_largest_fraction
 
 ``success`` is 1 when the flock was turned away (outcome "success") and 0 otherwise;
-``breached_birds / birds`` is the share of the flock that entered the protected zone;
+``breach_free`` is 1 when no bird entered the protected zone and 0 otherwise (an all-or-nothing
+term: an episode stops at its first breaches beyond the scenario's tolerance, so the share of
+birds that got in says little about how bad the failure was);
 ``min_largest_fraction`` is the smallest share of the flock held by its largest group during the
 episode (1 = never split). An episode that ended in an error scores 0. The weights say what
 matters: success is the job, breaches are the hazard, and fragmentation harms the flock and leaves
@@ -79,7 +81,7 @@ def episode_score(ep: Mapping[str, Any]) -> float:
     """The headline score in [0, 1] of one episode record (see the module docstring)."""
     if ep["outcome"] == "error":
         return 0.0
-    kept = max(0.0, 1.0 - ep["breached_birds"] / ep["birds"])
+    kept = float(ep["breached_birds"] == 0)
     cohesion = min(1.0, max(0.0, float(ep["min_largest_fraction"])))
     return W_SUCCESS * float(bool(ep["success"])) + W_BREACH * kept + W_COHESION * cohesion
 
