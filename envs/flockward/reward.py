@@ -5,7 +5,9 @@
   is that of the unshaped task (Ng, Harada & Russell 1999, ICML);
 - fragmentation: -(1 - largest-cluster fraction) each step;
 - collision: -1 for each step the pursuer is inside its safety radius of any bird;
-- breach: -(fraction of the flock inside the protected zone) each step;
+- breach: -1 for each bird entering the protected zone for the first time (a potential strike;
+  large, because an episode ends at its first breaches beyond tolerance and must not look like a
+  shortcut past the time cost);
 - time: -1 each step;
 - success: +1 on the step the flock reaches the goal region.
 """
@@ -31,7 +33,7 @@ def reward_terms(
     terminated: np.ndarray,  # (B,) bool
     largest_fraction: np.ndarray,  # (B,)
     collided: np.ndarray,  # (B,) bool
-    inside_fraction: np.ndarray,  # (B,)
+    new_breaches: np.ndarray,  # (B,) birds that entered the protected zone this step
     success: np.ndarray,  # (B,) bool
 ) -> dict[str, np.ndarray]:
     """Each weighted term for every world; their sum is the reward."""
@@ -40,7 +42,7 @@ def reward_terms(
         "progress": weights.progress * (weights.discount * after - potential_before),
         "fragmentation": -weights.fragmentation * (1.0 - largest_fraction),
         "collision": -weights.collision * collided.astype(np.float64),
-        "breach": -weights.breach * inside_fraction,
+        "breach": -weights.breach * new_breaches,
         "time": np.full(potential_before.shape, -weights.time),
         "success": weights.success * success.astype(np.float64),
     }

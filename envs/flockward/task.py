@@ -114,6 +114,7 @@ class DivertTask:
         self.world.step(action, live)
         m = self.measure()
         self.metrics = m
+        breached_before = self.ever_inside.sum(axis=1)
         self.ever_inside |= m.in_protected
         ep = self.scenario.episode
         n = self.world.state.count
@@ -133,7 +134,7 @@ class DivertTask:
             terminated,
             m.largest_fraction,
             collided,
-            inside / np.maximum(n, 1),
+            breached - breached_before,
             success,
         )
         if live is None:

@@ -153,7 +153,7 @@ class RewardWeights:
     progress: float = 1.0  # per unit of potential (potential = -distance to goal / length scale)
     fragmentation: float = 0.05  # per step, times (1 - largest-cluster fraction)
     collision: float = 0.5  # per step with the pursuer inside the safety radius of a bird
-    breach: float = 1.0  # per step, times the fraction of birds inside the protected zone
+    breach: float = 5.0  # per bird entering the protected zone for the first time
     time: float = 0.002  # per step
     success: float = 10.0  # once, on success
     discount: float = 0.99  # gamma of the potential-based shaping term
