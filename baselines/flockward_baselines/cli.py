@@ -125,6 +125,114 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     return _cmd_show(ns)
 
 
+def _cmd_board(args: argparse.Namespace) -> int:
+    """Score a suite's result files; print the table, write leaderboard.md and leaderboard.png."""
+    from flockward.leaderboard import LeaderboardError, build_leaderboard
+
+    try:
+        board = build_leaderboard(args.results, args.suite)
+    except LeaderboardError as exc:
+        print(exc, file=sys.stderr)
+        return EXIT_INVALID
+    print(board.render(args.format), end="")
+    md, png = board.write(args.results)
+    print(f"wrote {md} and {png}", file=sys.stderr)
+    return EXIT_OK
+
+
+def _controller_param(item: str) -> tuple[str, object]:
+    """'KEY=VALUE' from --param; VALUE read as a TOML value (numbers, true/false), else a string."""
+    import tomllib
+
+    key, sep, text = item.partition("=")
+    if not sep or not key.strip().isidentifier():
+        raise ValueError(f"--param {item!r}: expected KEY=VALUE, e.g. --param push_fraction=0.4")
+    try:
+        value: object = tomllib.loads(f"v = {text.strip()}")["v"]
+    except tomllib.TOMLDecodeError:
+        value = text.strip()
+    return key.strip(), value
+
+
+def _run_summary(path: Path, total: int) -> str:
+    """One line: episodes played, success and breach-free rates, errors, the file."""
+    from flockward.evaluation import read_results
+
+    data = read_results(path)
+    rows = data["episodes"]
+    n = len(rows)
+    rate = (lambda k: f"{k / n:.1%}") if n else (lambda k: "n/a")
+    success = sum(1 for r in rows if r["success"])
+    clean = sum(1 for r in rows if r["outcome"] != "error" and r["breached_birds"] == 0)
+    errors = sum(1 for r in rows if r["outcome"] == "error")
+    rest = f" ({total - n} left: rerun to continue)" if n < total else ""
+    return (
+        f"{data['controller']} on {data['suite']} v{data['suite_version']}: {n}/{total} episodes"
+        f"{rest}, success {rate(success)}, breach-free {rate(clean)}, {errors} error(s) -> {path}"
+    )
+
+
+def _cmd_run(args: argparse.Namespace) -> int:
+    """Play a suite with one controller or saved model; write or resume its result file."""
+    from functools import partial
+
+    from flockward.evaluation import controller_slug, run_suite
+    from flockward.suites import load_suite
+
+    try:
+        suite = load_suite(args.suite)
+        params = dict(_controller_param(item) for item in args.param)
+        if (args.controller is None) == (args.model is None):
+            raise ValueError("give exactly one of --controller NAME and --model FILE.zip")
+        if args.model is not None:
+            from flockward_baselines.policy import PolicyController
+
+            name = f"model-{Path(args.model).stem}"
+            factory = partial(PolicyController, args.model, **params)
+            PolicyController(args.model, **params)  # fail here, not in a worker
+        else:
+            from flockward_baselines.controllers import make_controller
+
+            name = args.controller
+            factory = partial(make_controller, args.controller, **params)
+        path = run_suite(
+            suite,
+            factory,
+            name,
+            args.results,
+            workers=args.workers,
+            limit=args.limit,
+            slug=controller_slug(name),
+        )
+    except KeyboardInterrupt:
+        print("interrupted: finished episodes are saved; rerun the command to resume",
+              file=sys.stderr)  # fmt: skip
+        return 130
+    except (ConfigError, ValueError, ImportError, TypeError, OSError) as exc:
+        print(" ".join(str(exc).split()), file=sys.stderr)
+        return EXIT_INVALID
+    except RuntimeError as exc:  # a worker process died; the finished episodes are saved
+        print(f"run stopped: {' '.join(str(exc).split())}; rerun to resume", file=sys.stderr)
+        return 1
+    print(_run_summary(path, len(suite.episodes())))
+    return EXIT_OK
+
+
+def _cmd_train(args: argparse.Namespace) -> int:
+    """Train an SB3 policy from a TOML config; --resume continues from the last checkpoint."""
+    from flockward_baselines.train import load_train_config, train
+
+    try:
+        config = load_train_config(args.config)
+        out = Path(args.out) if args.out else Path("runs") / config.name
+        final = train(config, out, resume=args.resume, progress=not args.quiet)
+    except (ConfigError, ValueError) as exc:
+        print(" ".join(str(exc).split()), file=sys.stderr)
+        return EXIT_INVALID
+    print(f"model written to {final}; curve and logs in {final.parent}")
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every subcommand registered."""
     parser = argparse.ArgumentParser(
@@ -175,6 +283,61 @@ def build_parser() -> argparse.ArgumentParser:
     )
     demo.add_argument("--gif", default="episode.gif", help="where to write the animation")
     demo.set_defaults(handler=_cmd_demo)
+
+    run = sub.add_parser(
+        "run",
+        help="score a controller on a benchmark suite",
+        description="Play every episode of a suite with one controller and write "
+        "RESULTS/SUITE/CONTROLLER.json. Rerunning resumes: finished episodes are kept and only "
+        "the missing ones are played; a file from another suite version or other controller "
+        "parameters is refused, never overwritten.",
+        epilog=CAUTION,
+    )
+    run.add_argument("--suite", default="standard", help="shipped suite name or TOML path")
+    run.add_argument(
+        "--controller", help="built-in controller name or an import path package.module:Name"
+    )
+    run.add_argument("--model", help="a Stable-Baselines3 model .zip (observation only)")
+    run.add_argument("--results", default="results", help="results directory (default results/)")
+    run.add_argument("--workers", type=int, default=1, help="worker processes (default 1)")
+    run.add_argument(
+        "--param",
+        action="append",
+        default=[],
+        metavar="KEY=VALUE",
+        help="controller constructor argument; numbers and true/false are parsed (repeatable)",
+    )
+    run.add_argument(
+        "--limit", type=int, help="stop after this many new episodes (a rerun continues)"
+    )
+    run.set_defaults(handler=_cmd_run)
+
+    board = sub.add_parser(
+        "board",
+        help="score a suite's result files into a leaderboard",
+        description="Score every result file of a suite (episode score IQM with a 95 % "
+        "stratified bootstrap CI), print the table and write <results>/<suite>/leaderboard.md "
+        "and leaderboard.png. Files run on another version of the suite are skipped.",
+    )
+    board.add_argument("--suite", default="standard", help="shipped suite name")
+    board.add_argument("--results", default="results", help="results directory")
+    board.add_argument(
+        "--format", choices=("markdown", "csv", "json"), default="markdown", help="table format"
+    )
+    board.set_defaults(handler=_cmd_board)
+
+    train = sub.add_parser(
+        "train",
+        help="train a Stable-Baselines3 policy from a config",
+        description="Train PPO or SAC on the native batched environment from a TOML config "
+        "(configs/train/). Writes logs, checkpoints, model.zip and training_curve.png.",
+        epilog=CAUTION,
+    )
+    train.add_argument("--config", required=True, help="training config TOML")
+    train.add_argument("--out", help="run directory (default runs/<config name>)")
+    train.add_argument("--resume", action="store_true", help="continue from the last checkpoint")
+    train.add_argument("--quiet", action="store_true", help="no progress bar")
+    train.set_defaults(handler=_cmd_train)
     return parser
 
 

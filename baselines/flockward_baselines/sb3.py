@@ -141,7 +141,9 @@ class MixedVecEnv(VecEnv):
             part.close()
 
     def get_attr(self, attr_name: str, indices=None) -> list[Any]:
-        return [self._part(i).task.__getattribute__(attr_name) for i in self._get_indices(indices)]
+        if attr_name == "render_mode":
+            return [None for _ in self._get_indices(indices)]
+        return [self._part(i).get_attr(attr_name, [0])[0] for i in self._get_indices(indices)]
 
     def set_attr(self, attr_name: str, value: Any, indices=None) -> None:
         for i in self._get_indices(indices):

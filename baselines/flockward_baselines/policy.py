@@ -1,0 +1,85 @@
+"""A Controller that plays a saved Stable-Baselines3 model (the zip written by ``model.save``).
+
+The model sees only the Gymnasium observation (information level "observation") and acts
+deterministically, so a policy's score is reproducible. The zip is loaded on the first reset,
+not on construction: a factory building one controller per episode stays cheap to pickle and
+to call, and each worker process loads the model once.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from flockward.controller import Controller, StateView
+from flockward.types import Scenario
+
+ALGORITHMS = ("ppo", "a2c", "sac", "td3", "ddpg")
+
+# Loaded models by (resolved path, algorithm): one load per process, shared by the episodes.
+_CACHE: dict[tuple[str, str], Any] = {}
+
+
+def _sha256(path: Path) -> str:
+    digest = hashlib.sha256()
+    with path.open("rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+class PolicyController(Controller):
+    """Deterministic ``model.predict`` of a saved SB3 model on the observation alone."""
+
+    information_level = "observation"
+
+    def __init__(self, model: str | Path, algorithm: str = "ppo") -> None:
+        path = Path(model)
+        if path.suffix != ".zip" or not path.is_file():
+            raise ValueError(f"--model {model}: needs an existing .zip saved by model.save(...)")
+        if algorithm not in ALGORITHMS:
+            raise ValueError(
+                f"--param algorithm={algorithm}: must be one of {', '.join(ALGORITHMS)}"
+            )
+        self.path = path.resolve()
+        self.algorithm = algorithm
+        self.name = f"model-{path.stem}"
+        self._digest = _sha256(self.path)  # read once: it identifies the model in result files
+        self._model: Any = None
+
+    def parameters(self) -> dict[str, Any]:
+        """The model by file name and content hash (not path: the same model may move)."""
+        return {"model": self.path.name, "model_sha256": self._digest, "algorithm": self.algorithm}
+
+    def _load(self) -> Any:
+        key = (str(self.path), self.algorithm)
+        if key not in _CACHE:
+            try:
+                import stable_baselines3
+            except ImportError:
+                raise ImportError(
+                    "playing a saved model needs Stable-Baselines3: pip install 'flockward[learn]'"
+                ) from None
+            cls = getattr(stable_baselines3, self.algorithm.upper())
+            _CACHE[key] = cls.load(str(self.path), device="cpu")
+        return _CACHE[key]
+
+    def reset(self, scenario: Scenario, seed: int | None = None) -> None:
+        """Load the model (once per process); a policy keeps no memory between steps."""
+        if self._model is None:
+            self._model = self._load()
+
+    def act(self, observation: Any, state: StateView | None) -> np.ndarray:
+        """The model's deterministic action for this observation."""
+        expected = self._model.observation_space.shape
+        if expected is not None and tuple(np.shape(observation)) != tuple(expected):
+            shape = np.shape(observation)
+            raise ValueError(
+                f"{self.path.name} expects observations of shape {tuple(expected)}, got "
+                f"{tuple(shape)}: it was trained with other observation settings"
+            )
+        action, _ = self._model.predict(observation, deterministic=True)
+        return np.asarray(action, dtype=np.float64).reshape(-1)

@@ -1,0 +1,342 @@
+"""Play every episode of a suite with one controller and keep the results in a resumable file.
+
+The result file ``RESULTS_DIR/<suite>/<controller-slug>.json`` is one JSON object::
+
+    {"format": "flockward-results/1", "suite", "suite_version", "suite_hash", "controller",
+     "information_level", "controller_parameters", "provenance": {...},
+     "episodes": [{"family", "scenario", "seed", "index", **EpisodeRecord.as_dict()}, ...]}
+
+with episodes sorted by index. It is rewritten atomically (temp file in the same directory,
+fsync, rename) every few episodes and at the end, so an interrupted run keeps what it finished
+and a rerun plays only the missing episodes. Strict JSON: a non-finite number (the closest
+approach of an episode whose controller failed before the first step) is written as null.
+
+Each episode gets a fresh controller from ``controller_factory`` reset with the episode's seed,
+so a result depends only on (scenario, seed, controller settings): never on the order, the
+worker, or what ran before. This module imports nothing from flockward_baselines.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import multiprocessing
+import os
+import platform
+import re
+import subprocess
+import sys
+import tempfile
+import time
+from collections.abc import Callable, Iterable
+from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from datetime import UTC, datetime
+from pathlib import Path
+from typing import Any
+
+import gymnasium
+import numpy as np
+
+import flockward
+from flockward.controller import INFORMATION_LEVELS, Controller
+from flockward.episode import play_episode
+from flockward.scenarios import scenario_hash
+from flockward.suites import EpisodeSpec, Suite, suite_hash
+from flockward.types import Scenario
+
+__all__ = [
+    "RESULTS_FORMAT",
+    "ResultsConflict",
+    "controller_slug",
+    "read_results",
+    "result_path",
+    "run_suite",
+]
+
+RESULTS_FORMAT = "flockward-results/1"
+SAVE_EVERY = 8  # episodes between saves
+SAVE_INTERVAL = 30.0  # s, longest wait between saves while episodes keep finishing
+
+ControllerFactory = Callable[[], Controller]
+
+
+class ResultsConflict(ValueError):
+    """An existing result file belongs to another run; it is left untouched."""
+
+
+def controller_slug(name: str) -> str:
+    """File-name form of a controller name: lower case, runs of other characters become '-'."""
+    slug = re.sub(r"[^a-z0-9]+", "-", name.lower()).strip("-")
+    if not slug:
+        raise ValueError(f"controller name {name!r} has no letters or digits to name a file by")
+    return slug
+
+
+def result_path(results_dir: str | Path, suite_name: str, slug: str) -> Path:
+    """Where the results of controller ``slug`` on suite ``suite_name`` are kept."""
+    return Path(results_dir) / suite_name / f"{slug}.json"
+
+
+def read_results(path: str | Path) -> dict[str, Any]:
+    """A result file's content; ResultsConflict if it is not a readable flockward result file."""
+    path = Path(path)
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as error:
+        raise ResultsConflict(
+            f"{path}: cannot read the existing result file ({error}); move or delete it, or "
+            "write elsewhere with --results DIR"
+        ) from None
+    if not isinstance(data, dict) or data.get("format") != RESULTS_FORMAT:
+        found = data.get("format") if isinstance(data, dict) else type(data).__name__
+        raise ResultsConflict(
+            f"{path}: not a {RESULTS_FORMAT} file (format {found!r}); move or delete it, or "
+            "write elsewhere with --results DIR"
+        )
+    return data
+
+
+def _git_commit() -> str | None:
+    """The commit of the source tree flockward runs from, or None outside a git checkout."""
+    try:
+        out = subprocess.run(
+            ["git", "rev-parse", "HEAD"],
+            cwd=Path(flockward.__file__).resolve().parent,
+            capture_output=True,
+            text=True,
+            timeout=10,
+            check=False,
+        )
+    except (OSError, subprocess.SubprocessError):
+        return None
+    commit = out.stdout.strip()
+    return commit if out.returncode == 0 and re.fullmatch(r"[0-9a-f]{40}", commit) else None
+
+
+def _provenance(suite: Suite) -> dict[str, Any]:
+    return {
+        "flockward_version": flockward.__version__,
+        "git_commit": _git_commit(),
+        "python": platform.python_version(),
+        "numpy": np.__version__,
+        "gymnasium": gymnasium.__version__,
+        "scenario_hashes": {name: scenario_hash(s) for name, s in suite.scenarios.items()},
+        "created": datetime.now(UTC).isoformat(timespec="seconds"),
+    }
+
+
+def _finite(value: Any) -> Any:
+    """JSON-safe copy: non-finite floats become None (strict JSON has no Infinity)."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_finite(v) for v in value]
+    return value
+
+
+def _play(factory: ControllerFactory, scenario: Scenario, spec: EpisodeSpec) -> dict[str, Any]:
+    """One episode as a result row; top-level so worker processes can run it."""
+    try:
+        controller = factory()
+    except Exception as error:  # a user's constructor may raise anything
+        raise RuntimeError(
+            f"the controller factory raised {type(error).__name__}: {error}"
+        ) from None
+    record, _ = play_episode(scenario, controller, spec.seed)
+    row = {
+        "family": spec.family,
+        "scenario": spec.scenario_name,
+        "seed": spec.seed,
+        "index": spec.index,
+        **record.as_dict(),
+    }
+    return _finite(row)
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+def _write_atomic(path: Path, data: dict[str, Any]) -> None:
+    """Replace ``path`` by ``data`` as JSON: a reader sees the old file or the new, never half."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; results are meant to be shared
+        with os.fdopen(fd, "w", encoding="utf-8") as handle:
+            json.dump(data, handle, indent=1, allow_nan=False)
+            handle.write("\n")
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
+def _header(suite: Suite, controller_name: str, controller: Controller) -> dict[str, Any]:
+    level = getattr(controller, "information_level", None)
+    if level not in INFORMATION_LEVELS:
+        raise ValueError(
+            f"controller {controller_name!r}: information_level {level!r} must be one of "
+            f"{', '.join(INFORMATION_LEVELS)}"
+        )
+    params = controller.parameters() if callable(getattr(controller, "parameters", None)) else {}
+    try:
+        params = json.loads(json.dumps(params, allow_nan=False))
+    except (TypeError, ValueError) as error:
+        raise ValueError(
+            f"controller {controller_name!r}: parameters() must return JSON data ({error})"
+        ) from None
+    return {
+        "format": RESULTS_FORMAT,
+        "suite": suite.name,
+        "suite_version": suite.version,
+        "suite_hash": suite_hash(suite),
+        "controller": controller_name,
+        "information_level": level,
+        "controller_parameters": params,
+    }
+
+
+def _resume(path: Path, header: dict[str, Any], specs: list[EpisodeSpec]) -> dict[str, Any]:
+    """The existing file's content if it continues this exact run; ResultsConflict otherwise."""
+    data = read_results(path)
+    advice = f"delete {path} to start over, or write elsewhere with --results DIR"
+    for key, what in (
+        ("suite", "suite"),
+        ("suite_hash", "suite content (hash)"),
+        ("controller", "controller"),
+        ("information_level", "information level"),
+        ("controller_parameters", "controller parameters"),
+    ):
+        if data.get(key) != header[key]:
+            raise ResultsConflict(
+                f"{path}: holds results of a different {what} ({data.get(key)!r}, this run "
+                f"{header[key]!r}); {advice}"
+            )
+    episodes = data.get("episodes")
+    if not isinstance(episodes, list) or not isinstance(data.get("provenance"), dict):
+        raise ResultsConflict(f"{path}: has no valid 'episodes' list or 'provenance'; {advice}")
+    by_index = {spec.index: spec for spec in specs}
+    seen: set[int] = set()
+    for row in episodes:
+        index = row.get("index") if isinstance(row, dict) else None
+        spec = by_index.get(index) if isinstance(index, int) else None
+        if (
+            spec is None
+            or index in seen
+            or (row.get("family"), row.get("scenario"), row.get("seed"))
+            != (spec.family, spec.scenario_name, spec.seed)
+        ):
+            raise ResultsConflict(
+                f"{path}: episode entry {row!r:.80} does not match the suite; {advice}"
+            )
+        seen.add(index)
+    return data
+
+
+def run_suite(
+    suite: Suite,
+    controller_factory: ControllerFactory,
+    controller_name: str,
+    results_dir: str | Path = "results",
+    workers: int = 1,
+    progress: bool = True,
+    limit: int | None = None,
+    slug: str | None = None,
+) -> Path:
+    """Play the suite's missing episodes with fresh controllers and return the result file.
+
+    ``controller_factory`` is a picklable zero-argument callable (a module-level class or a
+    functools.partial) returning a new Controller. ``workers`` > 1 plays episodes in that many
+    spawned processes; the file is the same as with one worker. ``limit`` stops after that many
+    newly played episodes (a rerun continues). ``slug`` names the file; by default it is
+    derived from ``controller_name``. Raises ResultsConflict, leaving the file untouched, if the
+    file holds another suite version, controller or parameter set. A resumed file keeps the
+    provenance of the session that created it.
+    """
+    if workers < 1:
+        raise ValueError(f"workers = {workers}: must be an integer >= 1")
+    if limit is not None and limit < 0:
+        raise ValueError(f"limit = {limit}: must be an integer >= 0")
+    header = _header(suite, controller_name, controller_factory())
+    path = result_path(results_dir, suite.name, slug or controller_slug(controller_name))
+    specs = suite.episodes()
+    if path.exists():
+        data = _resume(path, header, specs)
+    else:
+        data = {**header, "provenance": _provenance(suite), "episodes": []}
+    done = {row["index"] for row in data["episodes"]}
+    pending = [spec for spec in specs if spec.index not in done]
+    if limit is not None:
+        pending = pending[:limit]
+
+    def save() -> None:
+        data["episodes"].sort(key=lambda row: row["index"])
+        _write_atomic(path, data)
+
+    scenarios = suite.scenarios
+    bar = _progress_bar(len(specs), len(done), f"{suite.name}/{path.stem}", progress)
+    unsaved, last_save = 0, time.monotonic()
+    try:
+        for row in _rows(controller_factory, scenarios, pending, workers):
+            data["episodes"].append(row)
+            unsaved += 1
+            bar.update(1)
+            if unsaved >= SAVE_EVERY or time.monotonic() - last_save > SAVE_INTERVAL:
+                save()
+                unsaved, last_save = 0, time.monotonic()
+    finally:
+        bar.close()
+        if unsaved or not path.exists():
+            save()
+    return path
+
+
+def _rows(
+    factory: ControllerFactory,
+    scenarios: dict[str, Scenario],
+    pending: list[EpisodeSpec],
+    workers: int,
+) -> Iterable[dict[str, Any]]:
+    """Result rows of ``pending`` as they finish: in order with one worker, any order with more."""
+    if workers == 1 or len(pending) <= 1:
+        for spec in pending:
+            yield _play(factory, scenarios[spec.scenario_name], spec)
+        return
+    context = multiprocessing.get_context("spawn")
+    pool = ProcessPoolExecutor(max_workers=min(workers, len(pending)), mp_context=context)
+    futures: set[Future[dict[str, Any]]] = set()
+    try:
+        for spec in pending:
+            futures.add(pool.submit(_play, factory, scenarios[spec.scenario_name], spec))
+        while futures:
+            finished, futures = wait(futures, return_when=FIRST_COMPLETED)
+            for future in finished:
+                yield future.result()
+    finally:
+        for future in futures:
+            future.cancel()
+        pool.shutdown(wait=True, cancel_futures=True)
+
+
+class _NoBar:
+    def update(self, n: int) -> None:
+        """Nothing to draw."""
+
+    def close(self) -> None:
+        """Nothing to close."""
+
+
+def _progress_bar(total: int, initial: int, label: str, enabled: bool) -> Any:
+    """A tqdm bar on stderr when it is a terminal and progress is wanted, else a silent stand-in."""
+    if not (enabled and sys.stderr.isatty()):
+        return _NoBar()
+    from tqdm import tqdm
+
+    return tqdm(total=total, initial=initial, desc=label, unit="ep", dynamic_ncols=True)

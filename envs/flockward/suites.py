@@ -1,0 +1,311 @@
+"""Benchmark suites: TOML lists of (scenario, overrides, seed range) entries, read into records.
+
+A suite fixes exactly which episodes a controller is scored on. Its :func:`suite_hash` covers the
+resolved content of every episode, so two result files with the same hash were played on the same
+episodes. The shipped suites' hashes are recorded in ``KNOWN_SUITE_HASHES``: changing a shipped
+suite (or a scenario it uses) without bumping its ``version`` fails the test suite.
+
+File layout::
+
+    name = "smoke"              # lower-case name, also the results sub-directory
+    version = 1                 # integer >= 1; bump it whenever the episodes change
+    description = "..."         # optional
+
+    [[entry]]
+    scenario = "headon"         # a shipped scenario name or a path relative to this file
+    overrides = { "flock.count" = 10, name = "headon-10" }   # optional, dotted scenario keys
+    seeds = [1000, 1019]        # inclusive: 20 episodes
+    family = "headon-small"     # optional label for grouping results; default: scenario name
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+
+from flockward.scenarios import (
+    SCHEMA,
+    ConfigError,
+    _label,
+    _read_toml,
+    config_dir,
+    list_scenarios,
+    load_scenario,
+    scenario_hash,
+)
+from flockward.types import Scenario
+
+__all__ = [
+    "KNOWN_SUITE_HASHES",
+    "EpisodeSpec",
+    "Suite",
+    "SuiteEntry",
+    "list_suites",
+    "load_suite",
+    "suite_hash",
+]
+
+# sha256 of each shipped suite's resolved episodes, by (name, version). A changed suite needs a
+# new version and a new row here (tests/test_suites.py prints the value to record).
+KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
+    ("smoke", 1): "1ea8862495f7c2f06ec8f5edd51cd991fd168b23cba70434c8a0d45ca1780a9a",
+    ("standard", 1): "1df5a43ad115878b65336b1753f30748bdd75c5001425838a54e37a56e27e2a6",
+    ("stress", 1): "123b0f55895a111acb3540a2627d0210f87b4c6c43354a039e2cd40790a44ff0",
+    ("validation", 1): "e5e2e36002cf6269450a830a3ad55d7066dc5e5ab84b062592d76548cca36cd5",
+}
+
+_NAME_RE = re.compile(r"[a-z0-9][a-z0-9_-]{0,39}")
+_NAME_RULE = "must be a lower-case name of at most 40 characters: a-z, 0-9, '_', '-'"
+_MAX_SEED = 2**31 - 1
+_MAX_VERSION = 1_000_000
+_TOP_KEYS = ("name", "version", "description", "entry")
+_ENTRY_KEYS = ("scenario", "overrides", "seeds", "family")
+_SECTIONS = tuple(s for s in SCHEMA if s)
+
+
+@dataclass(frozen=True)
+class SuiteEntry:
+    """One line of a suite: a resolved scenario played from every seed of an inclusive range."""
+
+    family: str  # label grouping results; the scenario name unless the file sets one
+    scenario: Scenario  # with the entry's overrides applied
+    overrides: tuple[tuple[str, object], ...]  # (dotted key, value), sorted by key
+    seeds: tuple[int, int]  # first, last (inclusive)
+
+    @property
+    def count(self) -> int:
+        """Episodes this entry contributes."""
+        return self.seeds[1] - self.seeds[0] + 1
+
+
+@dataclass(frozen=True)
+class EpisodeSpec:
+    """One episode of a suite; ``index`` is its position in the suite's fixed order."""
+
+    family: str
+    scenario_name: str
+    seed: int
+    index: int
+
+
+@dataclass(frozen=True)
+class Suite:
+    """A validated suite; ``entries`` in file order."""
+
+    name: str
+    version: int
+    description: str
+    entries: tuple[SuiteEntry, ...]
+    source_file: str
+
+    def episodes(self) -> list[EpisodeSpec]:
+        """Every episode: entries in file order, seeds ascending within each, indices 0..n-1."""
+        specs: list[EpisodeSpec] = []
+        for entry in self.entries:
+            for seed in range(entry.seeds[0], entry.seeds[1] + 1):
+                specs.append(EpisodeSpec(entry.family, entry.scenario.name, seed, len(specs)))
+        return specs
+
+    @property
+    def scenarios(self) -> dict[str, Scenario]:
+        """The resolved scenarios by name (names are unique within a suite)."""
+        return {entry.scenario.name: entry.scenario for entry in self.entries}
+
+
+def list_suites() -> list[str]:
+    """Names of the shipped suites (file stems under configs/suites/)."""
+    return sorted(p.stem for p in (config_dir() / "suites").glob("*.toml"))
+
+
+def _suite_file(name_or_path: str | Path) -> Path:
+    text = str(name_or_path)
+    if isinstance(name_or_path, Path) or text.endswith(".toml") or "/" in text or "\\" in text:
+        return Path(name_or_path)
+    if text not in list_suites():
+        raise ConfigError(f"{text}: unknown suite name; shipped: {', '.join(list_suites())}")
+    return config_dir() / "suites" / f"{text}.toml"
+
+
+def _flat_overrides(table: Mapping[str, object]) -> dict[str, object]:
+    """Dotted keys from ``{ "flock.count" = 10 }`` or TOML's nested ``{ flock.count = 10 }``.
+
+    Only one level is unfolded: a section's value stays whole, so zone tables survive intact.
+    """
+    flat: dict[str, object] = {}
+    for key, value in table.items():
+        if key in _SECTIONS and isinstance(value, Mapping):
+            for sub, inner in value.items():
+                flat[f"{key}.{sub}"] = inner
+        else:
+            flat[key] = value
+    return flat
+
+
+def _fmt(value: object) -> str:
+    return json.dumps(value, default=str)
+
+
+def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
+    """Validate entry number ``n`` (1-based) of the file ``label``."""
+
+    def fail(key: str, value: object, allowed: str) -> ConfigError:
+        return ConfigError(f"{label}: entry {n}: key '{key}' = {_fmt(value)}: {allowed}")
+
+    if not isinstance(raw, Mapping):
+        raise ConfigError(f"{label}: entry {n}: must be a table ([[entry]])")
+    for key in raw:
+        if key not in _ENTRY_KEYS:
+            raise ConfigError(
+                f"{label}: entry {n}: unknown key '{key}'; allowed: {', '.join(_ENTRY_KEYS)}"
+            )
+    for key in ("scenario", "seeds"):
+        if key not in raw:
+            raise ConfigError(f"{label}: entry {n}: missing key '{key}'")
+
+    ref = raw["scenario"]
+    if not isinstance(ref, str) or not ref:
+        raise fail("scenario", ref, "must be a shipped scenario name or a path to a TOML file")
+    is_path = ref.endswith(".toml") or "/" in ref or "\\" in ref
+    if not is_path and ref not in list_scenarios():
+        raise fail(
+            "scenario",
+            ref,
+            f"unknown scenario; shipped: {', '.join(list_scenarios())} "
+            "(or a path relative to the suite file)",
+        )
+    if is_path and not (base / ref).is_file():
+        raise fail("scenario", ref, f"no such file {_label(base / ref)}")
+
+    seeds = raw["seeds"]
+    ok = (
+        isinstance(seeds, list)
+        and len(seeds) == 2
+        and all(isinstance(s, int) and not isinstance(s, bool) for s in seeds)
+    )
+    if not ok or not 0 <= seeds[0] <= seeds[1] <= _MAX_SEED:
+        raise fail(
+            "seeds",
+            seeds,
+            f"must be [first, last], integers with 0 <= first <= last <= {_MAX_SEED} "
+            "(inclusive; an empty or reversed range plays nothing)",
+        )
+
+    overrides_raw = raw.get("overrides", {})
+    if not isinstance(overrides_raw, Mapping):
+        raise fail(
+            "overrides", overrides_raw, 'must be an inline table, e.g. { "flock.count" = 80 }'
+        )
+    overrides = _flat_overrides(overrides_raw)
+    try:
+        scenario = load_scenario(base / ref if is_path else ref, overrides)
+    except ConfigError as error:
+        raise ConfigError(f"{label}: entry {n}: {error}") from None
+
+    family = raw.get("family", scenario.name)
+    if not isinstance(family, str) or not _NAME_RE.fullmatch(family):
+        raise fail("family", family, _NAME_RULE)
+    return SuiteEntry(
+        family=family,
+        scenario=scenario,
+        overrides=tuple(sorted(overrides.items())),
+        seeds=(int(seeds[0]), int(seeds[1])),
+    )
+
+
+def load_suite(name_or_path: str | Path) -> Suite:
+    """Read and validate a suite: a shipped name (see list_suites) or a TOML path.
+
+    Raises ConfigError with a one-line message naming the file, the key, the value and what is
+    allowed.
+    """
+    file = _suite_file(name_or_path)
+    label = _label(file)
+    data = _read_toml(file)
+    for key in data:
+        if key not in _TOP_KEYS:
+            raise ConfigError(f"{label}: unknown key '{key}'; allowed: {', '.join(_TOP_KEYS)}")
+    for key in ("name", "version", "entry"):
+        if key not in data:
+            raise ConfigError(f"{label}: missing key '{key}'")
+    name = data["name"]
+    if not isinstance(name, str) or not _NAME_RE.fullmatch(name):
+        raise ConfigError(f"{label}: key 'name' = {_fmt(name)}: {_NAME_RULE}")
+    version = data["version"]
+    if (
+        isinstance(version, bool)
+        or not isinstance(version, int)
+        or not 1 <= version <= _MAX_VERSION
+    ):
+        raise ConfigError(
+            f"{label}: key 'version' = {_fmt(version)}: must be an integer in [1, {_MAX_VERSION}]"
+        )
+    description = data.get("description", "")
+    if not isinstance(description, str) or len(description) > 2000:
+        raise ConfigError(
+            f"{label}: key 'description': must be a string of at most 2000 characters"
+        )
+    raw_entries = data["entry"]
+    if not isinstance(raw_entries, list) or not raw_entries:
+        raise ConfigError(f"{label}: key 'entry': must be one or more [[entry]] tables")
+
+    entries = tuple(
+        _entry(raw, n, label, file.parent) for n, raw in enumerate(raw_entries, start=1)
+    )
+    _check_distinct(entries, label)
+    return Suite(name, version, description, entries, str(file))
+
+
+def _check_distinct(entries: tuple[SuiteEntry, ...], label: str) -> None:
+    """One scenario per name (results are keyed by name) and no episode played twice."""
+    hashes: dict[str, tuple[str, int]] = {}
+    seen: dict[tuple[str, int], int] = {}
+    for n, entry in enumerate(entries, start=1):
+        name, digest = entry.scenario.name, scenario_hash(entry.scenario)
+        if name in hashes and hashes[name][0] != digest:
+            raise ConfigError(
+                f"{label}: entry {n}: scenario name '{name}' already names a different scenario "
+                f"in entry {hashes[name][1]}; give one a distinct name, e.g. "
+                f'overrides = {{ name = "{name}-{n}" }}'
+            )
+        hashes.setdefault(name, (digest, n))
+        first = next(
+            (s for s in range(entry.seeds[0], entry.seeds[1] + 1) if (name, s) in seen), None
+        )
+        if first is not None:
+            raise ConfigError(
+                f"{label}: entry {n}: key 'seeds' = {list(entry.seeds)}: seed {first} of "
+                f"scenario '{name}' is already played by entry {seen[(name, first)]}; "
+                "seed ranges of one scenario must not overlap"
+            )
+        for seed in range(entry.seeds[0], entry.seeds[1] + 1):
+            seen[(name, seed)] = n
+
+
+def _canonical_suite(suite: Suite) -> dict[str, object]:
+    """What the hash covers: name, version and every entry's resolved content (not the prose)."""
+    return {
+        "name": suite.name,
+        "version": suite.version,
+        "entries": [
+            {
+                "family": e.family,
+                "scenario": e.scenario.name,
+                "scenario_hash": scenario_hash(e.scenario),
+                "overrides": [[k, v] for k, v in e.overrides],
+                "seeds": list(e.seeds),
+            }
+            for e in suite.entries
+        ],
+    }
+
+
+def suite_hash(suite: Suite) -> str:
+    """sha256 (hex) of the suite's canonical resolved episodes; any change of content changes it."""
+    text = json.dumps(
+        _canonical_suite(suite), sort_keys=True, separators=(",", ":"), allow_nan=False
+    )
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()

@@ -1,0 +1,160 @@
+"""Training: config validation, a tiny PPO and SAC run, resume, and scoring a saved model."""
+
+from __future__ import annotations
+
+import functools
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from flockward.evaluation import run_suite
+from flockward.scenarios import ConfigError
+from flockward.suites import load_suite
+from flockward_baselines.cli import main
+from flockward_baselines.policy import PolicyController
+from flockward_baselines.sb3 import MixedVecEnv, make_vec_env
+from flockward_baselines.train import load_train_config, train
+
+TINY_SUITE = """
+name = "tiny"
+version = 1
+[[entry]]
+scenario = "trio"
+overrides = { "episode.max_steps" = 120 }
+seeds = [500, 502]
+"""
+
+
+def _config(tmp_path: Path, body: str, name: str = "cfg.toml") -> Path:
+    path = tmp_path / name
+    path.write_text(body)
+    return path
+
+
+@pytest.fixture
+def tiny(tmp_path) -> tuple[Path, Path]:
+    suite = _config(tmp_path, TINY_SUITE, "tiny_suite.toml")
+    cfg = _config(
+        tmp_path,
+        f"""
+name = "tiny"
+algorithm = "ppo"
+scenarios = ["trio", "headon"]
+total_timesteps = 1024
+num_envs = 4
+eval_suite = "{suite}"
+eval_every = 512
+checkpoint_every = 512
+overrides = {{ "episode.max_steps" = 120 }}
+[ppo]
+n_steps = 128
+batch_size = 128
+n_epochs = 1
+""",
+    )
+    return cfg, suite
+
+
+@pytest.mark.parametrize(
+    ("body", "needle"),
+    [
+        ('algorithm = "ppo"\nscenarios = ["trio"]\nlr = 1\n', "unknown key 'lr'"),
+        ('algorithm = "dqn"\nscenarios = ["trio"]\n', "key 'algorithm' = 'dqn'"),
+        ('algorithm = "ppo"\nscenarios = ["nowhere"]\n', "key 'scenarios' entry 'nowhere'"),
+        ('algorithm = "ppo"\nscenarios = ["trio"]\n[ppo]\ngamma = 1.5\n', "'ppo.gamma' = 1.5"),
+        ('algorithm = "ppo"\nscenarios = ["trio"]\n[ppo]\nn_steps = true\n', "'ppo.n_steps'"),
+        ('algorithm = "ppo"\nscenarios = ["trio"]\n[sac]\ntau = 0.1\n', "key 'sac'"),
+        ('algorithm = "ppo"\nscenarios = ["trio"]\nnum_envs = 0\n', "'num_envs' = 0"),
+        ('algorithm = "ppo"\nscenarios = ["trio"]\nnet_arch = [0]\n', "'net_arch'"),
+        ('algorithm = "ppo"\nscenarios = ["trio"\n', "invalid TOML"),
+    ],
+)
+def test_bad_training_config_is_one_clear_line(tmp_path, body, needle):
+    path = _config(tmp_path, body)
+    with pytest.raises(ConfigError) as caught:
+        load_train_config(path)
+    message = str(caught.value)
+    assert needle in message and str(path) in message and "\n" not in message
+
+
+def test_shipped_training_configs_validate():
+    root = Path(__file__).resolve().parents[1] / "configs" / "train"
+    configs = sorted(root.glob("*.toml"))
+    assert {load_train_config(p).algorithm for p in configs} >= {"ppo", "sac"}
+
+
+def test_cli_rejects_bad_config_with_exit_2(tmp_path, capsys):
+    path = _config(tmp_path, 'algorithm = "ppo"\nscenarios = ["trio"]\nbogus = 1\n')
+    assert main(["train", "--config", str(path), "--out", str(tmp_path / "run")]) == 2
+    err = capsys.readouterr().err
+    assert "bogus" in err and "Traceback" not in err
+
+
+def test_mixed_env_concatenates_its_parts():
+    a = make_vec_env(num_envs=2, seed=3, scenario="trio")
+    b = make_vec_env(num_envs=1, seed=5, scenario="headon")
+    mix = MixedVecEnv(
+        [
+            make_vec_env(num_envs=2, seed=3, scenario="trio"),
+            make_vec_env(num_envs=1, seed=5, scenario="headon"),
+        ]
+    )
+    np.testing.assert_array_equal(mix.reset(), np.concatenate([a.reset(), b.reset()]))
+    actions = np.random.default_rng(0).uniform(-1, 1, (3, 2))
+    obs, rewards, dones, infos = mix.step(actions)
+    oa, ra, *_ = a.step(actions[:2])
+    ob, rb, *_ = b.step(actions[2:])
+    np.testing.assert_array_equal(obs, np.concatenate([oa, ob]))
+    np.testing.assert_array_equal(rewards, np.concatenate([ra, rb]))
+    assert len(infos) == 3 and dones.shape == (3,)
+
+
+def test_tiny_ppo_trains_saves_resumes_and_scores(tiny, tmp_path):
+    cfg_path, suite_path = tiny
+    config = load_train_config(cfg_path)
+    run = tmp_path / "run"
+    model_path = train(config, run, progress=False)
+    for name in ("model.zip", "eval.csv", "progress.csv", "training_curve.png"):
+        assert (run / name).is_file(), name
+    assert sorted(p.name for p in (run / "checkpoints").glob("*.zip")) == [
+        "step_1024.zip",
+        "step_512.zip",
+    ]
+    # Resume to a larger budget: training continues from the last checkpoint's step count.
+    longer = _config(tmp_path, cfg_path.read_text().replace("1024", "1536"), "longer.toml")
+    train(load_train_config(longer), run, resume=True, progress=False)
+    from stable_baselines3 import PPO
+
+    assert PPO.load(str(run / "model.zip")).num_timesteps >= 1536
+    # A saved model scored twice through the runner gives identical episodes.
+    suite = load_suite(suite_path)
+    factory = functools.partial(PolicyController, str(model_path))
+    first = run_suite(suite, factory, "model-tiny", tmp_path / "r1", progress=False)
+    second = run_suite(suite, factory, "model-tiny", tmp_path / "r2", progress=False)
+    episodes = [json.loads(Path(p).read_text())["episodes"] for p in (first, second)]
+    assert episodes[0] == episodes[1] and len(episodes[0]) == 3
+
+
+def test_tiny_sac_trains(tmp_path):
+    suite = _config(tmp_path, TINY_SUITE, "tiny_suite.toml")
+    cfg = _config(
+        tmp_path,
+        f"""
+algorithm = "sac"
+scenarios = ["trio"]
+total_timesteps = 300
+num_envs = 2
+eval_suite = "{suite}"
+eval_every = 0
+checkpoint_every = 200
+overrides = {{ "episode.max_steps" = 120 }}
+[sac]
+learning_starts = 100
+buffer_size = 1000
+batch_size = 32
+""",
+    )
+    model_path = train(load_train_config(cfg), tmp_path / "sac", progress=False)
+    assert model_path.is_file()
