@@ -104,23 +104,24 @@ def _cmd_show(args: argparse.Namespace) -> int:
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
-    """The main job on the shipped defaults: every scripted baseline on the shipped scenarios."""
-    from flockward.scenarios import list_scenarios
-    from flockward_baselines.controllers import BUILTIN
+    """The main job on the shipped defaults: the smoke suite for every scripted baseline, the
+    leaderboard, and an animation of boundary-arc on the head-on scenario."""
+    from functools import partial
+
+    from flockward.evaluation import run_suite
+    from flockward.leaderboard import build_leaderboard
+    from flockward.suites import load_suite
+    from flockward_baselines.controllers import BUILTIN, make_controller
 
     print(CAUTION, "\n")
-    names = [n for n in list_scenarios() if n != "murmuration"]
-    print(
-        f"{'controller':<16}{'scenario':<18}{'outcome':<10}{'steps':>6}{'breached':>10}"
-        f"{'fragments':>11}"
-    )
-    for controller in BUILTIN:
-        for name in names:
-            _, record, _ = _play(name, controller, 0, False)
-            print(
-                f"{controller:<16}{name:<18}{record.outcome:<10}{record.steps:>6}"
-                f"{record.breached_birds:>10}{record.peak_components:>11}"
-            )
+    suite = load_suite("smoke")
+    for name in BUILTIN:
+        run_suite(suite, partial(make_controller, name), name, args.results, progress=False)
+        print(_run_summary(Path(args.results) / suite.name / f"{name}.json", len(suite.episodes())))
+    board = build_leaderboard(args.results, suite.name)
+    print()
+    print(board.render("markdown"), end="")
+    board.write(args.results)
     ns = argparse.Namespace(scenario="headon", controller="boundary-arc", seed=0, out=args.gif)
     return _cmd_show(ns)
 
@@ -282,6 +283,9 @@ def build_parser() -> argparse.ArgumentParser:
         epilog=CAUTION,
     )
     demo.add_argument("--gif", default="episode.gif", help="where to write the animation")
+    demo.add_argument(
+        "--results", default="runs/demo", help="where the smoke-suite result files go"
+    )
     demo.set_defaults(handler=_cmd_demo)
 
     run = sub.add_parser(

@@ -298,7 +298,7 @@ def render_markdown(rows: Sequence[Mapping[str, Any]], suite: str, version: int)
     lines = [
         f"# flockward leaderboard: suite `{suite}` (version {version})",
         "",
-        "Score per episode = 0.5 success + 0.3 (1 - breached share) + 0.2 min largest-group "
+        "Score per episode = 0.5 success + 0.3 breach-free + 0.2 min largest-group "
         "share; an error scores 0. IQM of all episodes with a 95 % stratified bootstrap CI "
         "(episodes resampled within each scenario family).",
         "",
