@@ -3,6 +3,9 @@
 - progress: potential-based shaping F = gamma * phi(s') - phi(s) with phi = -(centroid distance
   to the goal region, 0 inside) / site scale, and phi = 0 at a terminal state, so the optimal policy
   is that of the unshaped task (Ng, Harada & Russell 1999, ICML);
+- approach: the same shaping with phi = -(drone distance to the flock centroid beyond the flock's
+  alarm radius) / site scale: it rewards closing in on the flock (the birds only react to a drone
+  within that radius) and is flat inside it, so it never pays to dive into the flock;
 - fragmentation: -(1 - largest-cluster fraction) each step;
 - collision: -1 for each step the pursuer is inside its safety radius of any bird;
 - breach: -1 for each bird entering the protected zone for the first time (a potential strike;
@@ -18,7 +21,7 @@ import numpy as np
 
 from flockward.types import RewardWeights
 
-REWARD_TERMS = ("progress", "fragmentation", "collision", "breach", "time", "success")
+REWARD_TERMS = ("progress", "approach", "fragmentation", "collision", "breach", "time", "success")
 
 
 def potential(goal_distance: np.ndarray, site_scale: float) -> np.ndarray:
@@ -26,10 +29,23 @@ def potential(goal_distance: np.ndarray, site_scale: float) -> np.ndarray:
     return -np.maximum(goal_distance, 0.0) / site_scale
 
 
+def approach_potential(
+    drone_distance: np.ndarray, alarm_radius: float, site_scale: float
+) -> np.ndarray:
+    """Shaping potential of closing in: minus the drone's distance beyond the alarm radius."""
+    return -np.maximum(drone_distance - alarm_radius, 0.0) / site_scale
+
+
+def _shaping(weight, discount, before, after, terminated):
+    return weight * (discount * np.where(terminated, 0.0, after) - before)
+
+
 def reward_terms(
     weights: RewardWeights,
     potential_before: np.ndarray,  # (B,)
     potential_after: np.ndarray,  # (B,)
+    approach_before: np.ndarray,  # (B,)
+    approach_after: np.ndarray,  # (B,)
     terminated: np.ndarray,  # (B,) bool
     largest_fraction: np.ndarray,  # (B,)
     collided: np.ndarray,  # (B,) bool
@@ -37,9 +53,10 @@ def reward_terms(
     success: np.ndarray,  # (B,) bool
 ) -> dict[str, np.ndarray]:
     """Each weighted term for every world; their sum is the reward."""
-    after = np.where(terminated, 0.0, potential_after)
+    g = weights.discount
     return {
-        "progress": weights.progress * (weights.discount * after - potential_before),
+        "progress": _shaping(weights.progress, g, potential_before, potential_after, terminated),
+        "approach": _shaping(weights.approach, g, approach_before, approach_after, terminated),
         "fragmentation": -weights.fragmentation * (1.0 - largest_fraction),
         "collision": -weights.collision * collided.astype(np.float64),
         "breach": -weights.breach * new_breaches,

@@ -194,6 +194,7 @@ SCHEMA: dict[str, dict[str, Spec]] = {
     },
     "reward": {
         "progress": _f(0.0, 1000.0),
+        "approach": _f(0.0, 1000.0),
         "fragmentation": _f(0.0, 1000.0),
         "collision": _f(0.0, 1000.0),
         "breach": _f(0.0, 1000.0),

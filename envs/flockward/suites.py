@@ -52,10 +52,10 @@ __all__ = [
 # sha256 of each shipped suite's resolved episodes, by (name, version). A changed suite needs a
 # new version and a new row here (tests/test_suites.py prints the value to record).
 KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
-    ("smoke", 1): "1ea8862495f7c2f06ec8f5edd51cd991fd168b23cba70434c8a0d45ca1780a9a",
-    ("standard", 1): "1df5a43ad115878b65336b1753f30748bdd75c5001425838a54e37a56e27e2a6",
-    ("stress", 1): "123b0f55895a111acb3540a2627d0210f87b4c6c43354a039e2cd40790a44ff0",
-    ("validation", 1): "e5e2e36002cf6269450a830a3ad55d7066dc5e5ab84b062592d76548cca36cd5",
+    ("smoke", 1): "ae28c65875d789ecc1f5916fb498e2dc8bdff62ca80db9078e587c69ec2c35f1",
+    ("standard", 1): "8eb0fbd4b9e9ac3fb0256bebce9f45bbc3b6205d4b4c5f08a187bdd0c5837f61",
+    ("stress", 1): "cfe69766beb7f1c2397fbf21d06624df76038b34d6754bb122dcee38d5be4894",
+    ("validation", 1): "b23c8edae1dafb467cc97709dde3ee01486a9546e0dcb554248a201c47a9fa47",
 }
 
 _NAME_RE = re.compile(r"[a-z0-9][a-z0-9_-]{0,39}")

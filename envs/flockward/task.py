@@ -61,6 +61,7 @@ class DivertTask:
         self.link_radius = scenario.flock.linking_radius
         self.ever_inside = np.zeros((worlds, self.world.max_birds), dtype=np.bool_)
         self.potential = np.zeros(worlds)
+        self.approach = np.zeros(worlds)
         self.metrics: StepMetrics | None = None
 
     @property
@@ -91,7 +92,13 @@ class DivertTask:
         self.potential[indices] = rewards.potential(
             self.metrics.goal_distance[indices], self.site_scale
         )
+        self.approach[indices] = self._approach_potential(self.metrics)[indices]
         return self.observations.build(self.world.state, self.metrics)
+
+    def _approach_potential(self, m: StepMetrics) -> np.ndarray:
+        s = self.world.state
+        gap = np.hypot(*(m.centroid - s.pursuer_pos).T)
+        return rewards.approach_potential(gap, self.scenario.flock.alarm_radius, self.site_scale)
 
     def metrics_info(self) -> dict[str, np.ndarray]:
         """The latest flock metrics that a reset reports in its info."""
@@ -127,10 +134,13 @@ class DivertTask:
         truncated = (self.world.steps >= self.max_steps) & ~terminated
         collided = m.nearest_distance < self.scenario.pursuer.safety_radius
         after = rewards.potential(m.goal_distance, self.site_scale)
+        approach_after = self._approach_potential(m)
         terms = rewards.reward_terms(
             self.scenario.reward,
             self.potential,
             after,
+            self.approach,
+            approach_after,
             terminated,
             m.largest_fraction,
             collided,
@@ -139,8 +149,10 @@ class DivertTask:
         )
         if live is None:
             self.potential = after
+            self.approach = approach_after
         else:
             self.potential = np.where(live, after, self.potential)
+            self.approach = np.where(live, approach_after, self.approach)
         outcome = np.where(
             success, SUCCESS, np.where(failure, BREACH, np.where(truncated, TIMEOUT, RUNNING))
         )

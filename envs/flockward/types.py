@@ -151,6 +151,7 @@ class RewardWeights:
     """Weights of the named reward terms (see flockward.reward)."""
 
     progress: float = 1.0  # per unit of potential (potential = -distance to goal / length scale)
+    approach: float = 1.0  # per unit of potential (-drone distance beyond alarm radius / scale)
     fragmentation: float = 0.05  # per step, times (1 - largest-cluster fraction)
     collision: float = 0.5  # per step with the pursuer inside the safety radius of a bird
     breach: float = 5.0  # per bird entering the protected zone for the first time
