@@ -6,7 +6,7 @@ BIN    := $(VENV)/bin
 TORCH  := torch==2.13.0
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test lint format bench clean
+.PHONY: demo test soak lint format bench clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -22,6 +22,10 @@ test: $(STAMP)
 	$(BIN)/ruff check envs baselines tests
 	$(BIN)/ruff format --check envs baselines tests
 	$(BIN)/python -m pytest -q
+
+# The long checks (a million random-action world-steps over every scenario); CI runs them too.
+soak: $(STAMP)
+	$(BIN)/python -m pytest -q -m expensive
 
 lint: $(STAMP)
 	$(BIN)/ruff check envs baselines tests

@@ -7,6 +7,7 @@ ratios are taken between figures of the same run, because the machines are noisy
 from __future__ import annotations
 
 import json
+import math
 import os
 import statistics
 import subprocess
@@ -23,6 +24,9 @@ FLOPS_PER_PAIR = 40
 FLOPS_PER_BIRD = 70
 
 SIM_SIZES = ((1, 50), (64, 50), (16, 300), (1, 2000))
+SCALING_SIZES = (250, 500, 1000, 2000)  # birds in one murmuration world
+SCALING_WARMUP = 5  # steps before timing, so the flock has left its initial formation
+NEIGHBOUR_SEARCHES = ("auto", "all-pairs", "grid")
 
 
 def _median_rate(run: Callable[[], int], repeats: int) -> float:
@@ -178,6 +182,141 @@ def ppo_rates(worlds: int = 16, timesteps: int = 16 * 256, repeats: int = 3) -> 
     return out
 
 
+def runner_times(suite_name: str = "smoke") -> dict[int, float]:
+    """Wall seconds to play a suite for every scripted baseline with 1 and with 2 workers."""
+    import tempfile
+    from functools import partial
+
+    from flockward.evaluation import run_suite
+    from flockward.suites import load_suite
+    from flockward_baselines.controllers import BUILTIN, make_controller
+
+    suite = load_suite(suite_name)
+    out = {}
+    for workers in (1, 2):
+        with tempfile.TemporaryDirectory() as tmp:
+            start = time.perf_counter()
+            for name in BUILTIN:
+                factory = partial(make_controller, name)
+                run_suite(suite, factory, name, tmp, workers=workers, progress=False)
+            out[workers] = time.perf_counter() - start
+    return out
+
+
+def _slope(sizes: list[int], seconds: list[float]) -> float:
+    """Least-squares slope of log(seconds) against log(size): the empirical scaling exponent."""
+    return float(np.polyfit(np.log(sizes), np.log(seconds), 1)[0])
+
+
+def _crossover(sizes: list[int], pairs: list[float], grid: list[float]) -> float | None:
+    """Flock size where the grid starts to beat all pairs (log-log interpolation between the
+    measured sizes), or None if one search wins at every measured size."""
+    gaps = [math.log(p / g) for p, g in zip(pairs, grid, strict=True)]  # > 0: grid faster
+    for k in range(len(sizes) - 1):
+        if gaps[k] <= 0 < gaps[k + 1] or gaps[k] > 0 >= gaps[k + 1]:
+            share = gaps[k] / (gaps[k] - gaps[k + 1])
+            return float(math.exp(math.log(sizes[k]) + share * math.log(sizes[k + 1] / sizes[k])))
+    return None
+
+
+def _murmuration_world(birds: int, search: str):
+    """One murmuration world of ``birds`` birds, reset from seed 0 and stepped SCALING_WARMUP."""
+    from flockward.scenarios import load_scenario
+    from flockward.world import World
+
+    scenario = load_scenario("murmuration", {"flock.count": birds, "episode.max_steps": 10**6})
+    world = World(scenario, 1, search)
+    world.reset(0, np.random.default_rng(0))
+    for _ in range(SCALING_WARMUP):
+        world.step(np.zeros((1, 2)))
+    return world
+
+
+def _timed(run: Callable[[], object], repeats: int, seconds: float) -> float:
+    """Median wall seconds of one ``run()``; each repeat times about ``seconds`` of calls."""
+    run()  # warm-up: compilation, caches
+    start = time.perf_counter()
+    run()
+    calls = max(1, int(seconds / max(time.perf_counter() - start, 1e-9)))
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        for _ in range(calls):
+            run()
+        times.append((time.perf_counter() - start) / calls)
+    return statistics.median(times)
+
+
+def scaling_table(
+    sizes: tuple[int, ...] = SCALING_SIZES, repeats: int = 5, seconds: float = 0.2
+) -> dict[str, object]:
+    """Seconds per step of one murmuration world, and of step_metrics on it, against flock size.
+
+    For every N: the simulator step with the automatic neighbour search, with all pairs and with
+    the grid forced, and the per-step metrics (whose components search switches at its own
+    size). Returns the table, the fitted exponents and the measured grid/all-pairs crossover.
+    """
+    from flockward import dynamics
+    from flockward.geometry import zone_arrays
+    from flockward.metrics import step_metrics
+
+    table: dict[str, list] = {key: [] for key in ("N", *NEIGHBOUR_SEARCHES, "metrics", "uses")}
+    action = np.zeros((1, 2))
+    for birds in sizes:
+        table["N"].append(birds)
+        for search in NEIGHBOUR_SEARCHES:
+            world = _murmuration_world(birds, search)
+            table[search].append(_timed(lambda w=world: w.step(action), repeats, seconds))
+        world = _murmuration_world(birds, "auto")
+        table["uses"].append("grid" if world.use_grid else "all-pairs")
+        s, site = world.state, world.scenario.site
+        zones = zone_arrays(site.protected), zone_arrays(site.goal)
+        radius = world.scenario.flock.linking_radius
+
+        def measure(s=s, radius=radius, zones=zones) -> None:
+            step_metrics(s.bird_pos, s.bird_vel, s.count, s.pursuer_pos, radius, *zones)
+
+        table["metrics"].append(_timed(measure, repeats, seconds))
+    return {
+        "table": table,
+        "exponent auto": _slope(table["N"], table["auto"]),
+        "exponent metrics": _slope(table["N"], table["metrics"]),
+        "crossover": _crossover(table["N"], table["all-pairs"], table["grid"]),
+        "grid_min_birds": dynamics.GRID_MIN_BIRDS,
+    }
+
+
+def _emit_scaling(scaling: dict[str, object], emit: Callable[[str], None]) -> None:
+    table = scaling["table"]
+    emit("  N      auto (search)       all-pairs     grid   step_metrics   (ms per step)")
+    for k, birds in enumerate(table["N"]):
+        emit(
+            f"  {birds:<5} {table['auto'][k] * 1e3:7.3f} ({table['uses'][k]:<9})"
+            f" {table['all-pairs'][k] * 1e3:9.3f} {table['grid'][k] * 1e3:8.3f}"
+            f" {table['metrics'][k] * 1e3:11.3f}"
+        )
+    emit(
+        f"  fitted exponent (time ~ N^k): auto k = {scaling['exponent auto']:.2f}, "
+        f"step_metrics k = {scaling['exponent metrics']:.2f}"
+    )
+    slower = [
+        birds
+        for k, birds in enumerate(table["N"])
+        if table["auto"][k] > 1.1 * min(table["all-pairs"][k], table["grid"][k])
+    ]
+    crossover = scaling["crossover"]
+    if crossover is not None:
+        where = f"all pairs and grid cross near N = {crossover:.0f}"
+    else:
+        faster = "grid" if table["grid"][0] < table["all-pairs"][0] else "all pairs"
+        where = f"{faster} faster at every measured N"
+    emit(
+        f"  {where}; the automatic search switches to the grid at N >= "
+        f"{scaling['grid_min_birds']}"
+        + (f"; auto >10 % slower than the faster search at N = {slower}" if slower else "")
+    )
+
+
 def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[str, object]:
     """Measure and print everything; return the figures (also useful to tests)."""
     repeats = 3 if quick else 5
@@ -216,6 +355,19 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
     emit(f"  SB3 adapter / vector env:  {envs['SB3 adapter'] / envs['vector env']:6.2f}")
     emit(f"  vector env / single env:   {envs['vector env'] / envs['single env']:6.1f}")
     results["environments"] = envs
+
+    emit("\nRunner, smoke suite, every scripted baseline (wall seconds, one run each):")
+    runner = runner_times()
+    emit(
+        f"  1 worker: {runner[1]:.1f} s   2 workers: {runner[2]:.1f} s   speed-up "
+        f"{runner[1] / runner[2]:.2f}x"
+    )
+    results["runner"] = runner
+
+    emit("\nLarge flocks, one murmuration world (medians):")
+    scaling = scaling_table(repeats=repeats, seconds=0.05 if quick else 0.2)
+    _emit_scaling(scaling, emit)
+    results["scaling"] = scaling
 
     if not quick:
         emit("\nPPO (MlpPolicy, CPU, 16 worlds, same hyperparameters), steps/s:")
