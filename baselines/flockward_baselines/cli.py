@@ -8,8 +8,10 @@ from __future__ import annotations
 
 import argparse
 import sys
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
 from pathlib import Path
+from typing import Any
 
 from flockward.scenarios import ConfigError, config_kind, load_flock, load_scenario
 from flockward.types import Randomisation
@@ -143,16 +145,15 @@ def _cmd_board(args: argparse.Namespace) -> int:
 
 def _controller_param(item: str) -> tuple[str, object]:
     """'KEY=VALUE' from --param; VALUE read as a TOML value (numbers, true/false), else a string."""
-    import tomllib
+    from flockward.scenarios import parse_override
 
-    key, sep, text = item.partition("=")
-    if not sep or not key.strip().isidentifier():
-        raise ValueError(f"--param {item!r}: expected KEY=VALUE, e.g. --param push_fraction=0.4")
     try:
-        value: object = tomllib.loads(f"v = {text.strip()}")["v"]
-    except tomllib.TOMLDecodeError:
-        value = text.strip()
-    return key.strip(), value
+        key, value = parse_override(item)
+    except ConfigError:
+        key, value = "", None
+    if not key.isidentifier():
+        raise ValueError(f"--param {item!r}: expected KEY=VALUE, e.g. --param push_fraction=0.4")
+    return key, value
 
 
 def _run_summary(path: Path, total: int) -> str:
@@ -171,6 +172,26 @@ def _run_summary(path: Path, total: int) -> str:
         f"{data['controller']} on {data['suite']} v{data['suite_version']}: {n}/{total} episodes"
         f"{rest}, success {rate(success)}, breach-free {rate(clean)}, {errors} error(s) -> {path}"
     )
+
+
+@contextmanager
+def _backend(args: argparse.Namespace) -> Iterator[tuple[int, Any]]:
+    """(workers, backend) for run_suite: local processes, or Ray tasks with --ray."""
+    if args.ray is None:
+        yield (1 if args.workers is None else args.workers), None
+        return
+    from flockward.ray_backend import import_ray, ray_session
+
+    import_ray("--ray")
+    if args.ray and args.workers is not None:
+        raise ValueError(
+            f"--workers applies to a local Ray instance only; the CPUs of the cluster at "
+            f"{args.ray} are set by `ray start --num-cpus` on its nodes: drop --workers"
+        )
+    if args.workers is not None and args.workers < 1:
+        raise ValueError(f"workers = {args.workers}: must be an integer >= 1")
+    with ray_session(args.ray, args.workers) as backend:
+        yield 1, backend
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
@@ -196,15 +217,17 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
             name = args.controller
             factory = partial(make_controller, args.controller, **params)
-        path = run_suite(
-            suite,
-            factory,
-            name,
-            args.results,
-            workers=args.workers,
-            limit=args.limit,
-            slug=controller_slug(name),
-        )
+        with _backend(args) as (workers, backend):
+            path = run_suite(
+                suite,
+                factory,
+                name,
+                args.results,
+                workers=workers,
+                limit=args.limit,
+                slug=controller_slug(name),
+                backend=backend,
+            )
     except KeyboardInterrupt:
         print("interrupted: finished episodes are saved; rerun the command to resume",
               file=sys.stderr)  # fmt: skip
@@ -278,8 +301,8 @@ def build_parser() -> argparse.ArgumentParser:
     demo = sub.add_parser(
         "demo",
         help="run the shipped demo",
-        description="Run every scripted baseline on the shipped scenarios and draw boundary-arc "
-        "on the head-on scenario.",
+        description="Play the smoke suite with every scripted baseline, print its leaderboard "
+        "and draw boundary-arc on the head-on scenario.",
         epilog=CAUTION,
     )
     demo.add_argument("--gif", default="episode.gif", help="where to write the animation")
@@ -303,7 +326,20 @@ def build_parser() -> argparse.ArgumentParser:
     )
     run.add_argument("--model", help="a Stable-Baselines3 model .zip (observation only)")
     run.add_argument("--results", default="results", help="results directory (default results/)")
-    run.add_argument("--workers", type=int, default=1, help="worker processes (default 1)")
+    run.add_argument(
+        "--workers",
+        type=int,
+        help="worker processes (default 1); with --ray and no ADDRESS, the CPUs of the local "
+        "Ray instance (default all cores)",
+    )
+    run.add_argument(
+        "--ray",
+        nargs="?",
+        const="",
+        metavar="ADDRESS",
+        help="play the episodes as Ray tasks: on a new local Ray instance, or on the running "
+        "cluster at ADDRESS (HEAD:6379); results are still written here (needs the ray extra)",
+    )
     run.add_argument(
         "--param",
         action="append",
