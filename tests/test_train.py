@@ -15,7 +15,7 @@ from flockward.suites import load_suite
 from flockward_baselines.cli import main
 from flockward_baselines.policy import PolicyController
 from flockward_baselines.sb3 import MixedVecEnv, make_vec_env
-from flockward_baselines.train import load_train_config, train
+from flockward_baselines.train import behaviour_clone, demonstrations, load_train_config, train
 
 TINY_SUITE = """
 name = "tiny"
@@ -69,6 +69,15 @@ n_epochs = 1
         ('algorithm = "ppo"\nscenarios = ["trio"]\nnum_envs = 0\n', "'num_envs' = 0"),
         ('algorithm = "ppo"\nscenarios = ["trio"]\nnet_arch = [0]\n', "'net_arch'"),
         ('algorithm = "ppo"\nscenarios = ["trio"\n', "invalid TOML"),
+        (
+            'algorithm = "ppo"\nscenarios = ["trio"]\n[pretrain]\nexpert = "x"\n',
+            "'pretrain.expert'",
+        ),
+        (
+            'algorithm = "ppo"\nscenarios = ["trio"]\n[pretrain]\nexpert = "idle"\nepoch = 3\n',
+            "unknown key 'pretrain.epoch'",
+        ),
+        ('algorithm = "ppo"\nscenarios = ["trio"]\n[ppo]\nuse_sde = 1\n', "'ppo.use_sde'"),
     ],
 )
 def test_bad_training_config_is_one_clear_line(tmp_path, body, needle):
@@ -135,6 +144,32 @@ def test_tiny_ppo_trains_saves_resumes_and_scores(tiny, tmp_path):
     second = run_suite(suite, factory, "model-tiny", tmp_path / "r2", progress=False)
     episodes = [json.loads(Path(p).read_text())["episodes"] for p in (first, second)]
     assert episodes[0] == episodes[1] and len(episodes[0]) == 3
+
+
+def test_behaviour_cloning_fits_the_expert(tmp_path):
+    # The cloned policy's mean action must move toward the expert's on the demonstrations.
+    import torch
+    from stable_baselines3 import PPO
+
+    cfg = _config(
+        tmp_path,
+        'algorithm = "ppo"\nscenarios = ["trio"]\nnum_envs = 1\n'
+        'overrides = { "episode.max_steps" = 150 }\n'
+        '[pretrain]\nexpert = "collect-drive"\nepisodes = 2\nepochs = 40\n',
+    )
+    config = load_train_config(cfg)
+    obs, acts = demonstrations(config)
+    assert obs.shape[0] == acts.shape[0] > 100 and np.all(np.abs(acts) <= 1.0)
+    model = PPO("MlpPolicy", make_vec_env(num_envs=1, scenario="trio"), seed=0, device="cpu")
+
+    def error() -> float:
+        with torch.no_grad():
+            mean = model.policy.get_distribution(torch.as_tensor(obs)).distribution.mean
+        return float(((mean.numpy() - acts) ** 2).mean())
+
+    before = error()
+    behaviour_clone(model, obs, acts, config)
+    assert error() < 0.5 * before
 
 
 def test_tiny_sac_trains(tmp_path):

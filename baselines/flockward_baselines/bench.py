@@ -14,6 +14,7 @@ import subprocess
 import sys
 import time
 from collections.abc import Callable
+from functools import partial
 
 import numpy as np
 
@@ -209,8 +210,8 @@ def _slope(sizes: list[int], seconds: list[float]) -> float:
 
 
 def _crossover(sizes: list[int], pairs: list[float], grid: list[float]) -> float | None:
-    """Flock size where the grid starts to beat all pairs (log-log interpolation between the
-    measured sizes), or None if one search wins at every measured size."""
+    """First flock size where the faster of the two searches changes (log-log interpolation
+    between the measured sizes), or None if one search wins at every measured size."""
     gaps = [math.log(p / g) for p, g in zip(pairs, grid, strict=True)]  # > 0: grid faster
     for k in range(len(sizes) - 1):
         if gaps[k] <= 0 < gaps[k + 1] or gaps[k] > 0 >= gaps[k + 1]:
@@ -232,19 +233,49 @@ def _murmuration_world(birds: int, search: str):
     return world
 
 
-def _timed(run: Callable[[], object], repeats: int, seconds: float) -> float:
-    """Median wall seconds of one ``run()``; each repeat times about ``seconds`` of calls."""
-    run()  # warm-up: compilation, caches
-    start = time.perf_counter()
-    run()
-    calls = max(1, int(seconds / max(time.perf_counter() - start, 1e-9)))
-    times = []
-    for _ in range(repeats):
+def _timed_together(
+    runs: dict[str, Callable[[], object]], repeats: int, seconds: float
+) -> dict[str, float]:
+    """Median wall seconds of one call of each run. The runs take turns within every repeat, so
+    a change in the machine's load hits all of them alike; a turn lasts about ``seconds``."""
+    calls = {}
+    for name, run in runs.items():
+        run()  # warm-up: compilation, caches
         start = time.perf_counter()
-        for _ in range(calls):
-            run()
-        times.append((time.perf_counter() - start) / calls)
-    return statistics.median(times)
+        run()
+        calls[name] = max(1, int(seconds / max(time.perf_counter() - start, 1e-9)))
+    times: dict[str, list[float]] = {name: [] for name in runs}
+    for _ in range(repeats):
+        for name, run in runs.items():
+            start = time.perf_counter()
+            for _ in range(calls[name]):
+                run()
+            times[name].append((time.perf_counter() - start) / calls[name])
+    return {name: statistics.median(t) for name, t in times.items()}
+
+
+def _scaling_runs(birds: int) -> tuple[dict[str, Callable[[], object]], bool]:
+    """What scaling_table times at one flock size, and whether "auto" picked the grid."""
+    from flockward import metrics
+    from flockward.geometry import zone_arrays
+
+    action = np.zeros((1, 2))
+    worlds = {search: _murmuration_world(birds, search) for search in NEIGHBOUR_SEARCHES}
+    runs: dict[str, Callable[[], object]] = {
+        search: partial(world.step, action) for search, world in worlds.items()
+    }
+    world = _murmuration_world(birds, "auto")  # a copy the timed steps do not advance
+    s, site = world.state, world.scenario.site
+    radius = world.scenario.flock.linking_radius
+    runs["metrics"] = partial(
+        metrics.step_metrics, s.bird_pos, s.bird_vel, s.count, s.pursuer_pos, radius,
+        zone_arrays(site.protected), zone_arrays(site.goal),
+    )  # fmt: skip
+    for method in ("pairs", "grid"):
+        runs[f"components {method}"] = partial(
+            metrics.components, s.bird_pos, s.count, radius, method
+        )
+    return runs, worlds["auto"].use_grid
 
 
 def scaling_table(
@@ -253,68 +284,75 @@ def scaling_table(
     """Seconds per step of one murmuration world, and of step_metrics on it, against flock size.
 
     For every N: the simulator step with the automatic neighbour search, with all pairs and with
-    the grid forced, and the per-step metrics (whose components search switches at its own
-    size). Returns the table, the fitted exponents and the measured grid/all-pairs crossover.
+    the grid forced, and the per-step metrics; for reference also metrics.components alone with
+    either of its methods, since step_metrics switches to the grid at metrics.GRID_MIN_BIRDS.
+    Returns the table, the fitted exponents and the measured grid/all-pairs crossover.
     """
-    from flockward import dynamics
-    from flockward.geometry import zone_arrays
-    from flockward.metrics import step_metrics
+    from flockward import dynamics, metrics
 
-    table: dict[str, list] = {key: [] for key in ("N", *NEIGHBOUR_SEARCHES, "metrics", "uses")}
-    action = np.zeros((1, 2))
+    keys = ("N", *NEIGHBOUR_SEARCHES, "metrics", "components pairs", "components grid", "uses")
+    table: dict[str, list] = {key: [] for key in keys}
     for birds in sizes:
+        runs, uses_grid = _scaling_runs(birds)
+        for name, median in _timed_together(runs, repeats, seconds).items():
+            table[name].append(median)
         table["N"].append(birds)
-        for search in NEIGHBOUR_SEARCHES:
-            world = _murmuration_world(birds, search)
-            table[search].append(_timed(lambda w=world: w.step(action), repeats, seconds))
-        world = _murmuration_world(birds, "auto")
-        table["uses"].append("grid" if world.use_grid else "all-pairs")
-        s, site = world.state, world.scenario.site
-        zones = zone_arrays(site.protected), zone_arrays(site.goal)
-        radius = world.scenario.flock.linking_radius
-
-        def measure(s=s, radius=radius, zones=zones) -> None:
-            step_metrics(s.bird_pos, s.bird_vel, s.count, s.pursuer_pos, radius, *zones)
-
-        table["metrics"].append(_timed(measure, repeats, seconds))
+        table["uses"].append("grid" if uses_grid else "all-pairs")
     return {
         "table": table,
         "exponent auto": _slope(table["N"], table["auto"]),
         "exponent metrics": _slope(table["N"], table["metrics"]),
         "crossover": _crossover(table["N"], table["all-pairs"], table["grid"]),
+        "crossover components": _crossover(
+            table["N"], table["components pairs"], table["components grid"]
+        ),
         "grid_min_birds": dynamics.GRID_MIN_BIRDS,
+        "metrics_grid_min_birds": metrics.GRID_MIN_BIRDS,
     }
 
 
+def _where(crossover: float | None, pairs: list[float], grid: list[float]) -> str:
+    if crossover is not None:
+        return f"all pairs and grid cross near N = {crossover:.0f}"
+    return f"{'grid' if grid[0] < pairs[0] else 'all pairs'} faster at every measured N"
+
+
 def _emit_scaling(scaling: dict[str, object], emit: Callable[[str], None]) -> None:
-    table = scaling["table"]
-    emit("  N      auto (search)       all-pairs     grid   step_metrics   (ms per step)")
-    for k, birds in enumerate(table["N"]):
+    t = scaling["table"]
+    emit("  ms per step     simulator step                     step_metrics   components")
+    emit("  N      auto (uses)         all-pairs     grid                    pairs     grid")
+    for k, birds in enumerate(t["N"]):
         emit(
-            f"  {birds:<5} {table['auto'][k] * 1e3:7.3f} ({table['uses'][k]:<9})"
-            f" {table['all-pairs'][k] * 1e3:9.3f} {table['grid'][k] * 1e3:8.3f}"
-            f" {table['metrics'][k] * 1e3:11.3f}"
+            f"  {birds:<5} {t['auto'][k] * 1e3:7.3f} ({t['uses'][k]:<9})"
+            f" {t['all-pairs'][k] * 1e3:9.3f} {t['grid'][k] * 1e3:8.3f}"
+            f" {t['metrics'][k] * 1e3:14.3f} {t['components pairs'][k] * 1e3:11.3f}"
+            f" {t['components grid'][k] * 1e3:8.3f}"
         )
     emit(
         f"  fitted exponent (time ~ N^k): auto k = {scaling['exponent auto']:.2f}, "
         f"step_metrics k = {scaling['exponent metrics']:.2f}"
     )
-    slower = [
-        birds
-        for k, birds in enumerate(table["N"])
-        if table["auto"][k] > 1.1 * min(table["all-pairs"][k], table["grid"][k])
-    ]
-    crossover = scaling["crossover"]
-    if crossover is not None:
-        where = f"all pairs and grid cross near N = {crossover:.0f}"
-    else:
-        faster = "grid" if table["grid"][0] < table["all-pairs"][0] else "all pairs"
-        where = f"{faster} faster at every measured N"
-    emit(
-        f"  {where}; the automatic search switches to the grid at N >= "
-        f"{scaling['grid_min_birds']}"
-        + (f"; auto >10 % slower than the faster search at N = {slower}" if slower else "")
-    )
+    for label, pairs, grid, crossover, switch in (
+        ("simulator", t["all-pairs"], t["grid"], scaling["crossover"], "grid_min_birds"),
+        (
+            "components",
+            t["components pairs"],
+            t["components grid"],
+            scaling["crossover components"],
+            "metrics_grid_min_birds",
+        ),
+    ):
+        # The automatic choice loses where the search it picks is >10 % slower than the other.
+        lost = [
+            birds
+            for k, birds in enumerate(t["N"])
+            if (grid[k] > 1.1 * pairs[k] if birds >= scaling[switch] else pairs[k] > 1.1 * grid[k])
+        ]
+        verdict = f"; that choice is the slower one at N = {lost}" if lost else ""
+        emit(
+            f"  {label}: {_where(crossover, pairs, grid)}; automatic grid from N = "
+            f"{scaling[switch]}{verdict}"
+        )
 
 
 def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[str, object]:

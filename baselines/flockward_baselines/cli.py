@@ -338,7 +338,7 @@ def build_parser() -> argparse.ArgumentParser:
         const="",
         metavar="ADDRESS",
         help="play the episodes as Ray tasks: on a new local Ray instance, or on the running "
-        "cluster at ADDRESS (HEAD:6379); results are still written here (needs the ray extra)",
+        "cluster at ADDRESS (HEAD:6379); results are written on this machine (needs the ray extra)",
     )
     run.add_argument(
         "--param",

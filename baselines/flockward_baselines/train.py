@@ -3,8 +3,10 @@
 A training config names the algorithm, its hyperparameters, the scenarios to train on (several
 scenarios make a randomised mix: each gets an equal share of the worlds), a seed, and a held-out
 validation suite evaluated periodically with the deterministic policy. A run directory receives
-TensorBoard and CSV logs, checkpoints, ``eval.csv``, the final ``model.zip`` and
-``training_curve.png``. ``--resume`` continues from the newest checkpoint.
+TensorBoard and CSV logs, checkpoints, ``eval.csv``, the final ``model.zip``, the best-validated
+``best_model.zip`` and ``training_curve.png``. An optional ``[pretrain]`` table first clones a
+scripted expert's actions (behaviour cloning) so that reinforcement learning starts from a policy
+that already reaches the flock. ``--resume`` continues from the newest checkpoint.
 """
 
 from __future__ import annotations
@@ -38,6 +40,8 @@ HYPERPARAMETERS: dict[str, dict[str, tuple[type, float, float]]] = {
         "ent_coef": (float, 0.0, 1.0),
         "vf_coef": (float, 0.0, 10.0),
         "max_grad_norm": (float, 0.0, 100.0),
+        "use_sde": (bool, 0, 1),
+        "sde_sample_freq": (int, -1, 100_000),
     },
     "sac": {
         "learning_rate": (float, 1e-7, 1.0),
@@ -51,6 +55,15 @@ HYPERPARAMETERS: dict[str, dict[str, tuple[type, float, float]]] = {
     },
 }
 NET_ARCH_MAX = 1024  # units per hidden layer
+
+# Optional [pretrain] table: clone a scripted expert's actions before reinforcement learning.
+PRETRAIN: dict[str, tuple[type, float, float]] = {
+    "episodes": (int, 1, 10_000),  # demonstration episodes per training scenario
+    "epochs": (int, 1, 10_000),  # passes over the demonstrations
+    "learning_rate": (float, 1e-7, 1.0),
+    "batch_size": (int, 8, 1_000_000),
+}
+DEMO_SEED = 100_000  # demonstration seeds start here, clear of every shipped suite's seeds
 
 
 @dataclass(frozen=True)
@@ -70,6 +83,7 @@ class TrainConfig:
     torch_threads: int = 1
     net_arch: tuple[int, ...] = (64, 64)
     hyperparameters: dict[str, Any] = field(default_factory=dict)
+    pretrain: dict[str, Any] | None = None  # behaviour cloning of a scripted expert, see PRETRAIN
     source_file: str = ""
 
 
@@ -84,6 +98,10 @@ _TOP_KEYS: dict[str, tuple[type, float, float]] = {
 
 
 def _check_number(label: str, key: str, value: Any, kind: type, lo: float, hi: float) -> Any:
+    if kind is bool:
+        if not isinstance(value, bool):
+            raise ConfigError(f"{label}: key '{key}' = {value!r}: must be true or false")
+        return value
     ok_type = isinstance(value, int) if kind is int else isinstance(value, int | float)
     if isinstance(value, bool) or not ok_type:
         what = "an integer" if kind is int else "a number"
@@ -104,7 +122,7 @@ def load_train_config(path: str | Path) -> TrainConfig:
         raise ConfigError(f"{label}: file not found") from None
     except tomllib.TOMLDecodeError as error:
         raise ConfigError(f"{label}: invalid TOML: {error}") from None
-    allowed = {"name", "algorithm", "scenarios", "overrides", "eval_suite", "net_arch"}
+    allowed = {"name", "algorithm", "scenarios", "overrides", "eval_suite", "net_arch", "pretrain"}
     allowed |= set(_TOP_KEYS) | set(ALGORITHMS)
     for key in raw:
         if key not in allowed:
@@ -177,6 +195,31 @@ def load_train_config(path: str | Path) -> TrainConfig:
             f"{label}: key 'num_envs' = {num_envs}: must be at least the number of scenarios "
             f"({len(scenarios)}), one world each at least"
         )
+    pretrain = None
+    if "pretrain" in raw:
+        table = raw["pretrain"]
+        if not isinstance(table, dict) or not isinstance(table.get("expert"), str):
+            raise ConfigError(
+                f"{label}: key 'pretrain' = {table!r}: must be a table with expert = a built-in "
+                "controller name"
+            )
+        from flockward_baselines.controllers import BUILTIN
+
+        if table["expert"] not in BUILTIN:
+            raise ConfigError(
+                f"{label}: key 'pretrain.expert' = {table['expert']!r}: must be one of "
+                + ", ".join(BUILTIN)
+            )
+        pretrain = {"expert": table["expert"]}
+        for key, value in table.items():
+            if key == "expert":
+                continue
+            if key not in PRETRAIN:
+                raise ConfigError(
+                    f"{label}: unknown key 'pretrain.{key}'; allowed: expert, "
+                    + ", ".join(PRETRAIN)
+                )
+            pretrain[key] = _check_number(label, f"pretrain.{key}", value, *PRETRAIN[key])
     eval_suite = raw.get("eval_suite", "validation")
     if not isinstance(eval_suite, str):
         raise ConfigError(f"{label}: key 'eval_suite' = {eval_suite!r}: must be a suite name")
@@ -188,6 +231,7 @@ def load_train_config(path: str | Path) -> TrainConfig:
         eval_suite=eval_suite,
         net_arch=tuple(net_arch),
         hyperparameters=hyper,
+        pretrain=pretrain,
         source_file=label,
         **top,
     )
@@ -224,6 +268,49 @@ def _model_controller(model):
             return np.asarray(action, dtype=np.float64).reshape(-1)
 
     return _InMemory()
+
+
+def demonstrations(config: TrainConfig) -> tuple[np.ndarray, np.ndarray]:
+    """Observations and clipped actions of the expert playing every training scenario."""
+    from flockward.episode import play_episode
+    from flockward_baselines.controllers import make_controller
+
+    observations: list[np.ndarray] = []
+    actions: list[np.ndarray] = []
+
+    def record(obs, action) -> None:
+        observations.append(np.asarray(obs, dtype=np.float32))
+        actions.append(np.clip(action, -1.0, 1.0).astype(np.float32))
+
+    for k, name in enumerate(config.scenarios):
+        scenario = load_scenario(name, config.overrides)
+        for episode in range(config.pretrain["episodes"]):
+            seed = DEMO_SEED + 1000 * k + episode
+            play_episode(scenario, make_controller(config.pretrain["expert"]), seed,
+                         on_action=record)  # fmt: skip
+    return np.stack(observations), np.stack(actions)
+
+
+def behaviour_clone(model, observations: np.ndarray, actions: np.ndarray, config: TrainConfig):
+    """Fit the policy to the demonstrations by maximum likelihood; return the final loss."""
+    import torch
+
+    settings = {"epochs": 20, "learning_rate": 1e-3, "batch_size": 256, **config.pretrain}
+    policy = model.policy
+    optimiser = torch.optim.Adam(policy.parameters(), lr=settings["learning_rate"])
+    x = torch.as_tensor(observations)
+    y = torch.as_tensor(actions)
+    order = np.random.default_rng(config.seed)
+    loss = torch.zeros(())
+    for _ in range(settings["epochs"]):
+        perm = torch.as_tensor(order.permutation(len(x)))
+        for start in range(0, len(x), settings["batch_size"]):
+            batch = perm[start : start + settings["batch_size"]]
+            loss = -policy.get_distribution(x[batch]).log_prob(y[batch]).mean()
+            optimiser.zero_grad()
+            loss.backward()
+            optimiser.step()
+    return loss.item()
 
 
 def validate(model, suite_name: str) -> float:
@@ -346,6 +433,12 @@ def train(config: TrainConfig, run_dir: str | Path, resume: bool = False, progre
             policy_kwargs={"net_arch": list(config.net_arch)},
             **config.hyperparameters,
         )
+        if config.pretrain is not None:
+            obs, acts = demonstrations(config)
+            loss = behaviour_clone(model, obs, acts, config)
+            if progress:
+                print(f"behaviour cloning of {config.pretrain['expert']}: {len(obs)} steps, "
+                      f"final negative log-likelihood {loss:.3f}")  # fmt: skip
     model.set_logger(configure(str(run_dir), ["csv", "tensorboard"]))
     evals = _read_eval_log(run_dir / "eval.csv") if resume else []
     start_wall = time.perf_counter() - (evals[-1][2] if evals else 0.0)
@@ -385,8 +478,7 @@ def train(config: TrainConfig, run_dir: str | Path, resume: bool = False, progre
                 _save_atomic(self.model, run_dir / "checkpoints" / f"step_{now}.zip")
                 self.next_ckpt += config.checkpoint_every
             if now >= self.next_eval:
-                evals.append((now, validate(self.model, config.eval_suite), _wall()))
-                _write_eval_log(run_dir / "eval.csv", evals)
+                _evaluate(self.model, now)
                 self.next_eval += config.eval_every
             return True
 
@@ -396,6 +488,17 @@ def train(config: TrainConfig, run_dir: str | Path, resume: bool = False, progre
     def _wall() -> float:
         return time.perf_counter() - start_wall
 
+    def _evaluate(current, steps: int) -> None:
+        """Validate, log, and keep the best-scoring policy as best_model.zip."""
+        score = validate(current, config.eval_suite)
+        if not evals or score > max(e[1] for e in evals):
+            _save_atomic(current, run_dir / "best_model.zip")
+        evals.append((steps, score, _wall()))
+        _write_eval_log(run_dir / "eval.csv", evals)
+
+    if not evals and checkpoint is None:
+        _evaluate(model, 0)  # the starting point: untrained, or freshly cloned
+
     remaining = config.total_timesteps - model.num_timesteps
     if remaining > 0:
         model.learn(
@@ -404,8 +507,7 @@ def train(config: TrainConfig, run_dir: str | Path, resume: bool = False, progre
     final = run_dir / "model.zip"
     _save_atomic(model, final)
     if not evals or evals[-1][0] != model.num_timesteps:
-        evals.append((model.num_timesteps, validate(model, config.eval_suite), _wall()))
-        _write_eval_log(run_dir / "eval.csv", evals)
+        _evaluate(model, model.num_timesteps)
     plot_curve(run_dir)
     env.close()
     return final

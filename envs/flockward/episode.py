@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import asdict, dataclass
 from typing import Any
 
@@ -58,8 +59,12 @@ def play_episode(
     seed: int,
     record_frames: bool = False,
     env_kwargs: dict[str, Any] | None = None,
+    on_action: Callable[[Any, np.ndarray], None] | None = None,
 ) -> tuple[EpisodeRecord, list[dict[str, Any]]]:
-    """Run ``controller`` for one episode from ``seed``; return its record and optional frames."""
+    """Run ``controller`` for one episode from ``seed``; return its record and optional frames.
+
+    ``on_action(observation, action)`` is called before each step (e.g. to record demonstrations).
+    """
     env = DivertEnv(scenario, **(env_kwargs or {}))
     obs, info = env.reset(seed=seed)
     try:
@@ -109,6 +114,8 @@ def play_episode(
         except Exception as fault:
             outcome, error = "error", f"act raised {type(fault).__name__}: {fault}"
             break
+        if on_action is not None:
+            on_action(obs, action)
         before = state.pursuer_pos[0].copy()
         obs, reward, terminated, truncated, info = env.step(action)
         step += 1

@@ -46,6 +46,7 @@ from flockward.types import Scenario
 
 __all__ = [
     "RESULTS_FORMAT",
+    "Backend",
     "ResultsConflict",
     "controller_slug",
     "read_results",
@@ -58,6 +59,9 @@ SAVE_EVERY = 8  # episodes between saves
 SAVE_INTERVAL = 30.0  # s, longest wait between saves while episodes keep finishing
 
 ControllerFactory = Callable[[], Controller]
+# Runs play(*call) for every call, wherever it likes, and yields the returned rows as they finish
+# (any order). The driver alone orders, saves and resumes. flockward.ray_backend.ray_rows is one.
+Backend = Callable[[Callable[..., dict[str, Any]], list[tuple[Any, ...]]], Iterable[dict[str, Any]]]
 
 
 class ResultsConflict(ValueError):
@@ -249,6 +253,7 @@ def run_suite(
     progress: bool = True,
     limit: int | None = None,
     slug: str | None = None,
+    backend: Backend | None = None,
 ) -> Path:
     """Play the suite's missing episodes with fresh controllers and return the result file.
 
@@ -256,12 +261,15 @@ def run_suite(
     functools.partial) returning a new Controller. ``workers`` > 1 plays episodes in that many
     spawned processes; the file is the same as with one worker. ``limit`` stops after that many
     newly played episodes (a rerun continues). ``slug`` names the file; by default it is
-    derived from ``controller_name``. Raises ResultsConflict, leaving the file untouched, if the
-    file holds another suite version, controller or parameter set. A resumed file keeps the
-    provenance of the session that created it.
+    derived from ``controller_name``. ``backend`` plays the episodes instead of local workers
+    (see Backend); the file is again the same. Raises ResultsConflict, leaving the file
+    untouched, if the file holds another suite version, controller or parameter set. A resumed
+    file keeps the provenance of the session that created it.
     """
     if workers < 1:
         raise ValueError(f"workers = {workers}: must be an integer >= 1")
+    if backend is not None and workers != 1:
+        raise ValueError(f"workers = {workers} with a backend: the backend sets the parallelism")
     if limit is not None and limit < 0:
         raise ValueError(f"limit = {limit}: must be an integer >= 0")
     header = _header(suite, controller_name, controller_factory())
@@ -283,8 +291,10 @@ def run_suite(
     scenarios = suite.scenarios
     bar = _progress_bar(len(specs), len(done), f"{suite.name}/{path.stem}", progress)
     unsaved, last_save = 0, time.monotonic()
+    calls = [(controller_factory, scenarios[spec.scenario_name], spec) for spec in pending]
+    rows = _rows(calls, workers) if backend is None else backend(_play, calls)
     try:
-        for row in _rows(controller_factory, scenarios, pending, workers):
+        for row in rows:
             data["episodes"].append(row)
             unsaved += 1
             bar.update(1)
@@ -295,26 +305,23 @@ def run_suite(
         bar.close()
         if unsaved or not path.exists():
             save()
+        if callable(getattr(rows, "close", None)):
+            rows.close()  # stop the workers now, not whenever the generator is collected
     return path
 
 
-def _rows(
-    factory: ControllerFactory,
-    scenarios: dict[str, Scenario],
-    pending: list[EpisodeSpec],
-    workers: int,
-) -> Iterable[dict[str, Any]]:
-    """Result rows of ``pending`` as they finish: in order with one worker, any order with more."""
-    if workers == 1 or len(pending) <= 1:
-        for spec in pending:
-            yield _play(factory, scenarios[spec.scenario_name], spec)
+def _rows(calls: list[tuple[Any, ...]], workers: int) -> Iterable[dict[str, Any]]:
+    """Rows of ``_play(*call)`` as they finish: in order with one worker, any order with more."""
+    if workers == 1 or len(calls) <= 1:
+        for call in calls:
+            yield _play(*call)
         return
     context = multiprocessing.get_context("spawn")
-    pool = ProcessPoolExecutor(max_workers=min(workers, len(pending)), mp_context=context)
+    pool = ProcessPoolExecutor(max_workers=min(workers, len(calls)), mp_context=context)
     futures: set[Future[dict[str, Any]]] = set()
     try:
-        for spec in pending:
-            futures.add(pool.submit(_play, factory, scenarios[spec.scenario_name], spec))
+        for call in calls:
+            futures.add(pool.submit(_play, *call))
         while futures:
             finished, futures = wait(futures, return_when=FIRST_COMPLETED)
             for future in finished:
