@@ -171,14 +171,13 @@ def test_components_match_scipy(method: str, seed: int, radius: float) -> None:
         assert math.isclose(largest[b], want_largest)
 
 
-@pytest.mark.parametrize("birds", [600, 1200, 2000])
+@pytest.mark.parametrize("birds", [600, 1200, 2000, GRID_MIN_BIRDS])
 def test_components_grid_equals_all_pairs(birds: int) -> None:
     rng = np.random.default_rng(birds)
     # Clumps of birds so the graph has both large components and loners.
     centres = rng.uniform(0.0, 400.0, size=(12, 2))
     pos = (centres[rng.integers(0, 12, birds)] + rng.normal(size=(birds, 2)) * 15.0)[None]
     count = np.array([birds])
-    assert birds >= GRID_MIN_BIRDS  # "auto" takes the grid here
     pairs = components(pos, count, 4.0, "pairs")
     for method in ("grid", "auto"):
         got = components(pos, count, 4.0, method)
