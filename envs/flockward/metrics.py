@@ -72,29 +72,10 @@ def _check_points(points: np.ndarray, worlds: int) -> np.ndarray:
 
 
 @numba.njit(cache=True)
-def _find(parent: np.ndarray, i: int) -> int:
-    """Union-find root of i, halving the path on the way."""
-    while parent[i] != i:
-        parent[i] = parent[parent[i]]
-        i = parent[i]
-    return i
-
-
-@numba.njit(cache=True)
-def _union(parent: np.ndarray, i: int, j: int) -> None:
-    """Join the sets of i and j under the smaller root index."""
-    ri, rj = _find(parent, i), _find(parent, j)
-    if ri < rj:
-        parent[rj] = ri
-    elif rj < ri:
-        parent[ri] = rj
-
-
-@numba.njit(cache=True)
-def _link_grid(p: np.ndarray, n: int, radius: float, parent: np.ndarray) -> bool:
-    """Union every pair closer than radius using square cells a little wider than radius, so
-    linked birds always sit in neighbouring cells. Returns False (doing nothing) if the cell keys
-    would overflow."""
+def _search_components_grid(p: np.ndarray, n: int, radius: float, labels: np.ndarray) -> int:
+    """Breadth-first search like _search_components, but each bird only looks at the unreached
+    birds of the 3 x 3 square cells (a little wider than radius) around it: O(N) for a flock of
+    fixed density. Returns -1 (doing nothing) if the cell keys would overflow."""
     x0, y0 = np.inf, np.inf
     x1, y1 = -np.inf, -np.inf
     for i in range(n):
@@ -103,7 +84,7 @@ def _link_grid(p: np.ndarray, n: int, radius: float, parent: np.ndarray) -> bool
     inv_cell = 1.0 / (radius * (1.0 + 1e-9))
     span = max(x1 - x0, y1 - y0) * inv_cell
     if not span < _MAX_CELLS_PER_AXIS:
-        return False
+        return -1
     rows = int((y1 - y0) * inv_cell) + 3  # row index is stored +1 so row +-1 never wraps a column
     cx = np.empty(n, dtype=np.int64)
     cy = np.empty(n, dtype=np.int64)
@@ -115,23 +96,36 @@ def _link_grid(p: np.ndarray, n: int, radius: float, parent: np.ndarray) -> bool
     order = np.argsort(key, kind="mergesort")
     sorted_key = key[order]
     r2 = radius * radius
-    for s in range(n):
-        a = order[s]
-        # Half stencil: own column rows (row, row+1) after this bird, next column rows row-1..row+1.
-        for dcol in range(2):
-            column = (cx[a] + dcol) * rows
-            if dcol == 0:
-                lo = s + 1
-            else:
+    reached = np.zeros(n, dtype=np.bool_)
+    queue = np.empty(n, dtype=np.int64)
+    k = 0
+    for start in range(n):
+        if reached[start]:
+            continue
+        reached[start] = True
+        labels[start] = k
+        queue[0] = start
+        head, tail = 0, 1
+        while head < tail:
+            a = queue[head]
+            head += 1
+            for dcol in range(-1, 2):
+                column = (cx[a] + dcol) * rows
                 lo = np.searchsorted(sorted_key, column + cy[a] - 1, side="left")
-            hi = np.searchsorted(sorted_key, column + cy[a] + 1, side="right")
-            for t in range(lo, hi):
-                b = order[t]
-                dx = p[a, 0] - p[b, 0]
-                dy = p[a, 1] - p[b, 1]
-                if dx * dx + dy * dy < r2:
-                    _union(parent, a, b)
-    return True
+                hi = np.searchsorted(sorted_key, column + cy[a] + 1, side="right")
+                for t in range(lo, hi):
+                    b = order[t]
+                    if reached[b]:
+                        continue
+                    dx = p[a, 0] - p[b, 0]
+                    dy = p[a, 1] - p[b, 1]
+                    if dx * dx + dy * dy < r2:
+                        reached[b] = True
+                        labels[b] = k
+                        queue[tail] = b
+                        tail += 1
+        k += 1
+    return k
 
 
 @numba.njit(cache=True)
@@ -183,15 +177,11 @@ def _world_components(
     if n == 0:
         return 0, 1.0
     use_grid = method == _GRID or (method == _AUTO and n >= GRID_MIN_BIRDS)
-    raw = np.empty(n, dtype=np.int64)
-    parent = np.arange(n)
-    if radius > 0.0 and use_grid and math.isfinite(radius) and _link_grid(p, n, radius, parent):
-        for i in range(n):
-            raw[i] = _find(parent, i)
-    elif radius > 0.0:
-        _search_components(p, n, radius, raw)
-    else:
-        raw[:] = parent
+    raw = np.arange(n)  # radius 0: every bird alone
+    if radius > 0.0:
+        gridded = use_grid and math.isfinite(radius)
+        if not gridded or _search_components_grid(p, n, radius, raw) < 0:
+            _search_components(p, n, radius, raw)
     # Renumber in order of each component's first bird, whichever search found them.
     first_label = np.full(n, -1, dtype=np.int64)
     size = np.zeros(n, dtype=np.int64)
