@@ -526,7 +526,7 @@ def test_empty_and_padded_worlds(use_grid):
 
 
 # ---------------------------------------------------------------------------------------------
-# Every term at once, against an independent NumPy transcription of the documented model.
+# Every term at once, against an independent NumPy rewrite of the documented model.
 
 
 def tabulated_weight(r2, sigma, beta):
@@ -592,7 +592,7 @@ def reference_step(x, v, flock, pursuer, pursuer_vel, destination, dt, weight=ex
 
 
 @pytest.mark.parametrize("use_grid", [False, True], ids=["all-pairs", "grid"])
-def test_full_step_matches_reference_transcription(use_grid):
+def test_full_step_matches_reference_rewrite(use_grid):
     flock = FlockParams()  # gull defaults, every term on, noise off
     rng = np.random.default_rng(8)
     # A jittered lattice 1.5 m apart (no pair closer than 0.3 m, the separation floor does not

@@ -121,7 +121,7 @@ class DivertTask:
         self.world.step(action, live)
         m = self.measure()
         self.metrics = m
-        breached_before = self.ever_inside.sum(axis=1)
+        new_breaches = (m.in_protected & ~self.ever_inside).sum(axis=1)
         self.ever_inside |= m.in_protected
         ep = self.scenario.episode
         n = self.world.state.count
@@ -144,7 +144,7 @@ class DivertTask:
             terminated,
             m.largest_fraction,
             collided,
-            breached - breached_before,
+            new_breaches,
             success,
         )
         if live is None:
