@@ -369,7 +369,7 @@ def write_chart(rows: Sequence[Mapping[str, Any]], path: str | os.PathLike[str])
         ax.errorbar([mid], [y], xerr=whiskers, fmt=marker, ms=8, color=colour, mec="#222222",
                     elinewidth=2.5, capsize=5, capthick=2)  # fmt: skip
     ax.set_yticks(range(len(rows)), [r["controller"] for r in reversed(rows)])
-    ax.set_xlim(0.0, 1.0)
+    ax.set_xlim(-0.02, 1.02)  # room for markers at the ends of [0, 1]
     ax.set_ylim(-0.7, max(0, len(rows) - 1) + 0.7)
     ax.set_xlabel("episode score: IQM with 95 % stratified bootstrap CI")
     ax.grid(axis="x", color="#dddddd", lw=0.8)
