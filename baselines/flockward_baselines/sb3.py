@@ -83,7 +83,8 @@ class FlockwardVecEnv(VecEnv):
         return None
 
     def get_attr(self, attr_name: str, indices=None) -> list[Any]:
-        owner = self if attr_name in ("render_mode", "scenario") else self.task
+        # The adapter's own attributes (render_mode, scenario) first, then the shared task's.
+        owner = self if attr_name in vars(self) else self.task
         value = getattr(owner, attr_name)
         return [value for _ in self._get_indices(indices)]
 
@@ -141,8 +142,8 @@ class MixedVecEnv(VecEnv):
             part.close()
 
     def get_attr(self, attr_name: str, indices=None) -> list[Any]:
-        if attr_name == "render_mode":
-            return [None for _ in self._get_indices(indices)]
+        if attr_name in vars(self):
+            return [getattr(self, attr_name) for _ in self._get_indices(indices)]
         return [self._part(i).get_attr(attr_name, [0])[0] for i in self._get_indices(indices)]
 
     def set_attr(self, attr_name: str, value: Any, indices=None) -> None:
