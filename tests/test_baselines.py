@@ -13,9 +13,9 @@ from functools import cache
 import numpy as np
 import pytest
 
+from flockward.bench.episode import EpisodeRecord, play_episode
+from flockward.config.scenarios import list_flocks, load_flock, load_scenario
 from flockward.controller import Controller, StateView
-from flockward.episode import EpisodeRecord, play_episode
-from flockward.scenarios import list_flocks, load_flock, load_scenario
 from flockward_baselines.controllers import BUILTIN, make_controller
 from flockward_baselines.controllers.boundary_arc import BoundaryArc
 from flockward_baselines.controllers.collect_drive import (

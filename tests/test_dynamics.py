@@ -14,14 +14,14 @@ import math
 import numpy as np
 import pytest
 
-from flockward.dynamics import (
+from flockward.sim.dynamics import (
     ALIGN_TABLE_SIZE,
     GRID_MIN_BIRDS,
     alignment_table,
     choose_grid,
     step_worlds,
 )
-from flockward.types import FlockParams
+from flockward.sim.types import FlockParams
 
 FAR = (1.0e7, 1.0e7)  # m: a pursuer or destination so far away that it has no effect
 

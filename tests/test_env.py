@@ -11,10 +11,10 @@ from gymnasium.utils.env_checker import check_env as gym_check_env
 from stable_baselines3.common.env_checker import check_env as sb3_check_env
 
 import flockward  # noqa: F401  (registers the ids)
-from flockward.env import DivertEnv
-from flockward.reward import REWARD_TERMS
-from flockward.scenarios import list_scenarios
-from flockward.vector_env import DivertVectorEnv
+from flockward.config.scenarios import list_scenarios
+from flockward.task.env import DivertEnv
+from flockward.task.reward import REWARD_TERMS
+from flockward.task.vector_env import DivertVectorEnv
 from flockward_baselines.sb3 import make_vec_env
 
 ENV_ID = "flockward/Divert-v0"

@@ -10,16 +10,16 @@ from typing import Any
 import numpy as np
 import pytest
 
-from flockward.controller import Controller
-from flockward.evaluation import (
+from flockward.bench.evaluation import (
     RESULTS_FORMAT,
     ResultsConflict,
     controller_slug,
     read_results,
     run_suite,
 )
-from flockward.scenarios import scenario_hash
-from flockward.suites import load_suite, suite_hash
+from flockward.bench.suites import load_suite, suite_hash
+from flockward.config.scenarios import scenario_hash
+from flockward.controller import Controller
 from flockward_baselines.cli import main
 from flockward_baselines.controllers import make_controller
 
@@ -282,7 +282,7 @@ def test_cli_runs_a_saved_model(tiny: Path, tmp_path: Path) -> None:
     pytest.importorskip("stable_baselines3")
     from stable_baselines3 import PPO
 
-    from flockward.env import DivertEnv
+    from flockward.task.env import DivertEnv
 
     zip_path = tmp_path / "Tiny Policy.zip"
     PPO("MlpPolicy", DivertEnv("trio"), n_steps=64, seed=0, device="cpu").save(zip_path)

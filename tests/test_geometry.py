@@ -15,7 +15,7 @@ from shapely.geometry import LinearRing, MultiPoint, Point
 from shapely.geometry import Polygon as ShapelyPolygon
 from shapely.ops import nearest_points
 
-from flockward.geometry import (
+from flockward.sim.geometry import (
     CIRCLE,
     POLYGON,
     _signed_distance_xy,
@@ -29,7 +29,7 @@ from flockward.geometry import (
     zone_arrays,
     zone_center,
 )
-from flockward.types import Circle, Polygon
+from flockward.sim.types import Circle, Polygon
 
 SLOW = settings(deadline=None, max_examples=150)  # first calls may load compiled kernels
 

@@ -21,8 +21,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
-import flockward.leaderboard as lb
-from flockward.leaderboard import (
+import flockward.bench.leaderboard as lb
+from flockward.bench.leaderboard import (
     ROW_KEYS,
     build_leaderboard,
     build_rows,

@@ -16,8 +16,8 @@ from scipy.spatial.distance import cdist
 from shapely.geometry import MultiPoint, Point
 from shapely.geometry import Polygon as ShapelyPolygon
 
-from flockward.geometry import zone_arrays
-from flockward.metrics import (
+from flockward.sim.geometry import zone_arrays
+from flockward.sim.metrics import (
     GRID_MIN_BIRDS,
     StepMetrics,
     centroid,
@@ -33,7 +33,7 @@ from flockward.metrics import (
     step_metrics,
     zone_distance,
 )
-from flockward.types import Circle, Polygon
+from flockward.sim.types import Circle, Polygon
 
 seeds = st.integers(0, 2**32 - 1)
 L_SHAPE = ((0.0, 0.0), (60.0, 0.0), (60.0, 20.0), (20.0, 20.0), (20.0, 60.0), (0.0, 60.0))

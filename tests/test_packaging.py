@@ -53,7 +53,7 @@ def test_installed_wheel_runs_outside_the_repo(wheel, tmp_path):
     code = (
         "import flockward, flockward_baselines.cli as cli\n"
         f"assert flockward.__file__.startswith({str(site)!r}), flockward.__file__\n"
-        "from flockward.scenarios import list_scenarios, load_scenario\n"
+        "from flockward.config.scenarios import list_scenarios, load_scenario\n"
         "assert 'headon' in list_scenarios(); load_scenario('headon')\n"
         "import gymnasium as gym\n"
         "env = gym.make('flockward/Divert-v0', scenario='trio'); env.reset(seed=0)\n"

@@ -11,9 +11,9 @@ from typing import Any
 
 import pytest
 
-from flockward.evaluation import _play, read_results, run_suite
-from flockward.ray_backend import ray_rows, ray_session
-from flockward.suites import load_suite
+from flockward.bench.evaluation import _play, read_results, run_suite
+from flockward.bench.ray_backend import ray_rows, ray_session
+from flockward.bench.suites import load_suite
 from flockward_baselines.cli import main
 from flockward_baselines.controllers import make_controller
 

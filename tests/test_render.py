@@ -13,7 +13,7 @@ import pytest
 from PIL import Image
 
 from flockward.render import FrameRenderer, episode_animation, episode_still
-from flockward.types import Circle, Polygon, PursuerParams, Scenario, SiteParams, WorldState
+from flockward.sim.types import Circle, Polygon, PursuerParams, Scenario, SiteParams, WorldState
 
 SQUARE = Polygon(((-120.0, -120.0), (120.0, -120.0), (120.0, 120.0), (-120.0, 120.0)))
 SITE = dict(goal=Circle((0.0, 400.0), 100.0), destination=(500.0, 0.0), flock_start=(-400.0, 0.0))
@@ -144,7 +144,7 @@ def test_rendering_needs_no_display_and_leaves_pyplot_unloaded(tmp_path):
     script = (
         "import sys, numpy as np\n"
         "from flockward.render import FrameRenderer\n"
-        "from flockward.types import Scenario, WorldState\n"
+        "from flockward.sim.types import Scenario, WorldState\n"
         "state = WorldState.zeros(1, 3); state.count[0] = 3\n"
         "r = FrameRenderer(Scenario(name='t'), size_px=(64, 48))\n"
         "frame = r.draw(state, 0, np.zeros((1, 2)), {})\n"

@@ -13,8 +13,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.spatial import cKDTree
 
-from flockward.formations import formation_offsets
-from flockward.scenarios import (
+from flockward.config.scenarios import (
     SCHEMA,
     ConfigError,
     config_dir,
@@ -29,7 +28,8 @@ from flockward.scenarios import (
     sample_reset,
     scenario_hash,
 )
-from flockward.types import FORMATIONS, SCALABLE_GAINS, Circle, Polygon, Randomisation
+from flockward.sim.formations import formation_offsets
+from flockward.sim.types import FORMATIONS, SCALABLE_GAINS, Circle, Polygon, Randomisation
 
 ROOT = Path(__file__).resolve().parent.parent
 BAD = Path(__file__).resolve().parent / "fixtures" / "bad"

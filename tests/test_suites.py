@@ -7,14 +7,14 @@ from pathlib import Path
 
 import pytest
 
-from flockward.scenarios import ConfigError, list_scenarios
-from flockward.suites import (
+from flockward.bench.suites import (
     KNOWN_SUITE_HASHES,
     EpisodeSpec,
     list_suites,
     load_suite,
     suite_hash,
 )
+from flockward.config.scenarios import ConfigError, list_scenarios
 
 ROOT = Path(__file__).resolve().parent.parent
 

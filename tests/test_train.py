@@ -9,9 +9,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from flockward.evaluation import run_suite
-from flockward.scenarios import ConfigError
-from flockward.suites import load_suite
+from flockward.bench.evaluation import run_suite
+from flockward.bench.suites import load_suite
+from flockward.config.scenarios import ConfigError
 from flockward_baselines.cli import main
 from flockward_baselines.policy import PolicyController
 from flockward_baselines.sb3 import MixedVecEnv, make_vec_env

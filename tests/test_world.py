@@ -5,10 +5,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from flockward.dynamics import GRID_MIN_BIRDS
-from flockward.scenarios import list_scenarios, load_scenario
-from flockward.types import WorldState
-from flockward.world import NOISE_BLOCK, World
+from flockward.config.scenarios import list_scenarios, load_scenario
+from flockward.sim.dynamics import GRID_MIN_BIRDS
+from flockward.sim.types import WorldState
+from flockward.sim.world import NOISE_BLOCK, World
 
 STATE_FIELDS = ("bird_pos", "bird_vel", "pursuer_pos", "pursuer_vel", "count")
 

@@ -41,8 +41,8 @@ def _median_rate(run: Callable[[], int], repeats: int) -> float:
 
 
 def _world(worlds: int, birds: int, neighbour_search: str = "auto"):
-    from flockward.scenarios import load_scenario
-    from flockward.world import World
+    from flockward.config.scenarios import load_scenario
+    from flockward.sim.world import World
 
     scenario = load_scenario("headon", {"flock.count": birds, "episode.max_steps": 100000})
     world = World(scenario, worlds, neighbour_search)
@@ -103,8 +103,8 @@ def env_rates(worlds: int = 64, steps: int = 200, repeats: int = 5) -> dict[str,
     """World-steps per second of each face at N = 50, plus CartPole's vector env as a yardstick."""
     import gymnasium as gym
 
-    from flockward.env import DivertEnv
-    from flockward.vector_env import DivertVectorEnv
+    from flockward.task.env import DivertEnv
+    from flockward.task.vector_env import DivertVectorEnv
     from flockward_baselines.sb3 import make_vec_env
 
     rng = np.random.default_rng(0)
@@ -188,8 +188,8 @@ def runner_times(suite_name: str = "smoke") -> dict[int, float]:
     import tempfile
     from functools import partial
 
-    from flockward.evaluation import run_suite
-    from flockward.suites import load_suite
+    from flockward.bench.evaluation import run_suite
+    from flockward.bench.suites import load_suite
     from flockward_baselines.controllers import BUILTIN, make_controller
 
     suite = load_suite(suite_name)
@@ -222,8 +222,8 @@ def _crossover(sizes: list[int], pairs: list[float], grid: list[float]) -> float
 
 def _murmuration_world(birds: int, search: str):
     """One murmuration world of ``birds`` birds, reset from seed 0 and stepped SCALING_WARMUP."""
-    from flockward.scenarios import load_scenario
-    from flockward.world import World
+    from flockward.config.scenarios import load_scenario
+    from flockward.sim.world import World
 
     scenario = load_scenario("murmuration", {"flock.count": birds, "episode.max_steps": 10**6})
     world = World(scenario, 1, search)
@@ -256,8 +256,8 @@ def _timed_together(
 
 def _scaling_runs(birds: int) -> tuple[dict[str, Callable[[], object]], bool]:
     """What scaling_table times at one flock size, and whether "auto" picked the grid."""
-    from flockward import metrics
-    from flockward.geometry import zone_arrays
+    from flockward.sim import metrics
+    from flockward.sim.geometry import zone_arrays
 
     action = np.zeros((1, 2))
     worlds = {search: _murmuration_world(birds, search) for search in NEIGHBOUR_SEARCHES}
@@ -288,7 +288,7 @@ def scaling_table(
     either of its methods, since step_metrics switches to the grid at metrics.GRID_MIN_BIRDS.
     Returns the table, the fitted exponents and the measured grid/all-pairs crossover.
     """
-    from flockward import dynamics, metrics
+    from flockward.sim import dynamics, metrics
 
     keys = ("N", *NEIGHBOUR_SEARCHES, "metrics", "components pairs", "components grid", "uses")
     table: dict[str, list] = {key: [] for key in keys}

@@ -13,8 +13,8 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
-from flockward.scenarios import ConfigError, config_kind, load_flock, load_scenario
-from flockward.types import Randomisation
+from flockward.config.scenarios import ConfigError, config_kind, load_flock, load_scenario
+from flockward.sim.types import Randomisation
 
 CAUTION = (
     "Caution: flockward is a simulation for research and teaching. Its controllers are not "
@@ -72,7 +72,7 @@ def _cmd_bench(args: argparse.Namespace) -> int:
 
 
 def _play(scenario_name: str, controller_name: str, seed: int, frames: bool):
-    from flockward.episode import play_episode
+    from flockward.bench.episode import play_episode
     from flockward_baselines.controllers import make_controller
 
     scenario = load_scenario(scenario_name)
@@ -110,9 +110,9 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     leaderboard, and an animation of boundary-arc on the head-on scenario."""
     from functools import partial
 
-    from flockward.evaluation import run_suite
-    from flockward.leaderboard import build_leaderboard
-    from flockward.suites import load_suite
+    from flockward.bench.evaluation import run_suite
+    from flockward.bench.leaderboard import build_leaderboard
+    from flockward.bench.suites import load_suite
     from flockward_baselines.controllers import BUILTIN, make_controller
 
     print(CAUTION, "\n")
@@ -130,7 +130,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 def _cmd_board(args: argparse.Namespace) -> int:
     """Score a suite's result files; print the table, write leaderboard.md and leaderboard.png."""
-    from flockward.leaderboard import LeaderboardError, build_leaderboard
+    from flockward.bench.leaderboard import LeaderboardError, build_leaderboard
 
     try:
         board = build_leaderboard(args.results, args.suite)
@@ -145,7 +145,7 @@ def _cmd_board(args: argparse.Namespace) -> int:
 
 def _controller_param(item: str) -> tuple[str, object]:
     """'KEY=VALUE' from --param; VALUE read as a TOML value (numbers, true/false), else a string."""
-    from flockward.scenarios import parse_override
+    from flockward.config.scenarios import parse_override
 
     try:
         key, value = parse_override(item)
@@ -158,7 +158,7 @@ def _controller_param(item: str) -> tuple[str, object]:
 
 def _run_summary(path: Path, total: int) -> str:
     """One line: episodes played, success and breach-free rates, errors, the file."""
-    from flockward.evaluation import read_results
+    from flockward.bench.evaluation import read_results
 
     data = read_results(path)
     rows = data["episodes"]
@@ -180,7 +180,7 @@ def _backend(args: argparse.Namespace) -> Iterator[tuple[int, Any]]:
     if args.ray is None:
         yield (1 if args.workers is None else args.workers), None
         return
-    from flockward.ray_backend import import_ray, ray_session
+    from flockward.bench.ray_backend import import_ray, ray_session
 
     import_ray("--ray")
     if args.ray and args.workers is not None:
@@ -198,8 +198,8 @@ def _cmd_run(args: argparse.Namespace) -> int:
     """Play a suite with one controller or saved model; write or resume its result file."""
     from functools import partial
 
-    from flockward.evaluation import controller_slug, run_suite
-    from flockward.suites import load_suite
+    from flockward.bench.evaluation import controller_slug, run_suite
+    from flockward.bench.suites import load_suite
 
     try:
         suite = load_suite(args.suite)

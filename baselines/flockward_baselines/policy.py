@@ -15,7 +15,7 @@ from typing import Any
 import numpy as np
 
 from flockward.controller import Controller, StateView
-from flockward.types import Scenario
+from flockward.sim.types import Scenario
 
 ALGORITHMS = ("ppo", "a2c", "sac", "td3", "ddpg")
 

@@ -16,8 +16,8 @@ import numpy as np
 from gymnasium.utils import seeding
 from stable_baselines3.common.vec_env.base_vec_env import VecEnv
 
-from flockward.env import resolve_scenario, scalar_info
-from flockward.task import DivertTask, check_actions
+from flockward.task.batched import DivertTask, check_actions
+from flockward.task.env import resolve_scenario, scalar_info
 
 ENV_ID = "flockward/Divert-v0"
 

@@ -22,7 +22,7 @@ from typing import Any
 
 import numpy as np
 
-from flockward.scenarios import ConfigError, list_scenarios, load_scenario
+from flockward.config.scenarios import ConfigError, list_scenarios, load_scenario
 
 ALGORITHMS = ("ppo", "sac")
 
@@ -272,7 +272,7 @@ def _model_controller(model):
 
 def demonstrations(config: TrainConfig) -> tuple[np.ndarray, np.ndarray]:
     """Observations and clipped actions of the expert playing every training scenario."""
-    from flockward.episode import play_episode
+    from flockward.bench.episode import play_episode
     from flockward_baselines.controllers import make_controller
 
     observations: list[np.ndarray] = []
@@ -315,9 +315,9 @@ def behaviour_clone(model, observations: np.ndarray, actions: np.ndarray, config
 
 def validate(model, suite_name: str) -> float:
     """Mean headline score of the deterministic policy over the validation suite."""
-    from flockward.episode import play_episode
-    from flockward.leaderboard import episode_score
-    from flockward.suites import load_suite
+    from flockward.bench.episode import play_episode
+    from flockward.bench.leaderboard import episode_score
+    from flockward.bench.suites import load_suite
 
     suite = load_suite(suite_name)
     controller = _model_controller(model)

@@ -13,7 +13,7 @@ from typing import Any
 
 import numpy as np
 
-from flockward.types import FlockParams, Scenario
+from flockward.sim.types import FlockParams, Scenario
 
 INFORMATION_LEVELS = ("observation", "state")
 

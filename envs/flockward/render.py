@@ -25,7 +25,7 @@ from matplotlib.figure import Figure
 from matplotlib.gridspec import GridSpec
 from matplotlib.ticker import MaxNLocator
 
-from flockward.types import Circle, Polygon, Scenario, WorldState, Zone
+from flockward.sim.types import Circle, Polygon, Scenario, WorldState, Zone
 
 # Palette (hex RGB): light colours for areas, dark ones for things that move.
 SLATE = "#d5dbe1"  # map background

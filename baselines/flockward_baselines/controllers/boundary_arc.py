@@ -29,8 +29,8 @@ from typing import Any
 import numpy as np
 
 from flockward.controller import Controller, StateView
-from flockward.geometry import convex_hull, signed_distance, zone_arrays, zone_center
-from flockward.types import FlockParams, Scenario
+from flockward.sim.geometry import convex_hull, signed_distance, zone_arrays, zone_center
+from flockward.sim.types import FlockParams, Scenario
 from flockward_baselines.controllers.steering import around, fly_to
 
 

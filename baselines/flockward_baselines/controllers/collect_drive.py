@@ -24,8 +24,8 @@ from typing import Any
 import numpy as np
 
 from flockward.controller import Controller, StateView
-from flockward.geometry import zone_center
-from flockward.types import Scenario
+from flockward.sim.geometry import zone_center
+from flockward.sim.types import Scenario
 from flockward_baselines.controllers.steering import around, fly_to
 
 PAPER_R_A = 2.0  # agent lengths: Strömbom et al. 2014 parameter table (from memory)

@@ -11,7 +11,7 @@ from typing import Any
 import numpy as np
 
 from flockward.controller import Controller, StateView
-from flockward.types import Scenario
+from flockward.sim.types import Scenario
 from flockward_baselines.controllers.steering import fly_to
 
 

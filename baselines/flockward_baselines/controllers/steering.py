@@ -11,7 +11,7 @@ import math
 
 import numpy as np
 
-from flockward.types import PursuerParams
+from flockward.sim.types import PursuerParams
 
 
 def _unit_command(accel: np.ndarray, max_accel: float) -> np.ndarray:

@@ -10,9 +10,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from flockward.dynamics import alignment_table, choose_grid, step_worlds
-from flockward.scenarios import sample_reset
-from flockward.types import FlockParams, Scenario, WorldState
+from flockward.sim.dynamics import alignment_table, choose_grid, step_worlds
+from flockward.sim.resets import sample_reset
+from flockward.sim.types import FlockParams, Scenario, WorldState
 
 NOISE_BLOCK = 64  # steps of noise drawn per generator call: amortises the per-world draw
 

@@ -1,4 +1,4 @@
-"""Read, validate and sample scenarios: TOML files in, frozen records (flockward.types) out.
+"""Read, validate and sample scenarios: TOML files in, frozen records (flockward.sim.types) out.
 
 Every key a config may hold, with its type, range and unit, is listed once in ``SCHEMA``; the
 error messages and :func:`config_reference` are both generated from it, so they cannot drift.
@@ -20,10 +20,9 @@ from pathlib import Path
 
 import numpy as np
 
-from flockward.formations import formation_offsets
-from flockward.types import (
+from flockward.sim.resets import RESET_DRAWS, ResetSample, sample_reset
+from flockward.sim.types import (
     FORMATIONS,
-    SCALABLE_GAINS,
     Circle,
     EpisodeParams,
     FlockParams,
@@ -56,7 +55,7 @@ __all__ = [
 
 
 # Largest alignment_radius / alignment_sigma: beyond it the kernel's tabulated weight drifts from
-# the formula by more than 1e-4 relative (flockward.dynamics.alignment_table).
+# the formula by more than 1e-4 relative (flockward.sim.dynamics.alignment_table).
 MAX_ALIGNMENT_REACH = 10.0
 
 
@@ -545,8 +544,8 @@ def _zone_text(zone: Zone) -> str:
 
 def _config_roots() -> list[Path]:
     """Candidate configs directories: inside the installed package first, then the repository."""
-    here = Path(__file__).resolve().parent
-    return [here / "_configs", here.parent.parent / "configs"]
+    package = Path(__file__).resolve().parent.parent  # flockward/
+    return [package / "_configs", package.parent.parent / "configs"]
 
 
 def config_dir() -> Path:
@@ -873,84 +872,6 @@ def _check_site(site: SiteParams, where: Callable[[str, str], _Origin]) -> None:
             blamed, origin = _blame(at, first, second)
             other, rule = (second, rule_first) if blamed == first else (first, rule_second)
             raise origin.error(shown(blamed), f"{rule} site.{other} ({text(other)})")
-
-
-# --------------------------------------------------------------------------------------------
-# Resets.
-
-
-@dataclass(frozen=True, eq=False)
-class ResetSample:
-    """One reset's draws: the flock as sampled and the initial state of birds and pursuer."""
-
-    flock: FlockParams  # sampled count, gains, cruise speed and noise; heading_deg as used
-    start: np.ndarray  # (2,) m, flock centre after the position offset
-    heading: float  # rad, counter-clockwise from +x
-    bird_pos: np.ndarray  # (n, 2) m
-    bird_vel: np.ndarray  # (n, 2) m/s
-    pursuer_pos: np.ndarray  # (2,) m
-    pursuer_vel: np.ndarray  # (2,) m/s, zeros
-
-
-# Order of the uniform draws of every reset: fixed, so adding a range to a scenario changes only
-# the value it governs, never the other draws.
-RESET_DRAWS = ("count", "heading_deg", "offset_x", "offset_y", "gain_scale", "cruise_speed",
-               "noise_std")  # fmt: skip
-
-
-def sample_reset(scenario: Scenario, rng: np.random.Generator) -> ResetSample:
-    """Draw one reset from ``scenario`` using only ``rng``.
-
-    Always draws len(RESET_DRAWS) uniforms in RESET_DRAWS order (a range that is None ignores its
-    draw), then the formation's own draws (only 'cluster' makes any). The heading is the
-    configured heading_deg, or the bearing from the (offset) start to the destination when it is
-    None, plus the heading offset. Same generator state gives bit-identical arrays.
-    """
-    flock, ranges = scenario.flock, scenario.randomise
-    u = dict(zip(RESET_DRAWS, rng.random(len(RESET_DRAWS)), strict=True))
-
-    def uniform(key: str, default: float) -> float:
-        span = getattr(ranges, key)
-        return default if span is None else span[0] + u[key] * (span[1] - span[0])
-
-    count = flock.count
-    if ranges.count is not None:
-        lo, hi = ranges.count
-        count = min(hi, lo + int(u["count"] * (hi - lo + 1)))
-    start = np.asarray(scenario.site.flock_start, dtype=np.float64) + np.array(
-        (uniform("offset_x", 0.0), uniform("offset_y", 0.0))
-    )
-    if flock.heading_deg is None:
-        delta = np.asarray(scenario.site.destination) - start
-        base = math.atan2(delta[1], delta[0])
-    else:
-        base = math.radians(flock.heading_deg)
-    heading = base + math.radians(uniform("heading_deg", 0.0))
-    scale = uniform("gain_scale", 1.0)
-    changes: dict[str, object] = {name: getattr(flock, name) * scale for name in SCALABLE_GAINS}
-    sampled = dataclasses.replace(
-        flock,
-        count=count,
-        heading_deg=math.degrees(heading),
-        cruise_speed=uniform("cruise_speed", flock.cruise_speed),
-        noise_std=uniform("noise_std", flock.noise_std),
-        **changes,  # type: ignore[arg-type]
-    )
-
-    offsets = formation_offsets(flock.formation, count, flock.spacing, rng)
-    c, s = math.cos(heading), math.sin(heading)
-    rotation = np.array(((c, -s), (s, c)))
-    bird_pos = start + offsets @ rotation.T
-    bird_vel = np.tile(np.array((c, s)) * flock.speed, (count, 1))
-    return ResetSample(
-        flock=sampled,
-        start=start,
-        heading=heading,
-        bird_pos=bird_pos,
-        bird_vel=bird_vel,
-        pursuer_pos=np.asarray(scenario.pursuer.start, dtype=np.float64),
-        pursuer_vel=np.zeros(2),
-    )
 
 
 # --------------------------------------------------------------------------------------------

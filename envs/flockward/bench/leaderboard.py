@@ -419,8 +419,8 @@ class Leaderboard:
 
 def suite_reference(suite: str) -> str:
     """The hash of ``suite`` as shipped; LeaderboardError for an unknown or invalid suite."""
-    from flockward.scenarios import ConfigError
-    from flockward.suites import list_suites, load_suite, suite_hash
+    from flockward.bench.suites import list_suites, load_suite, suite_hash
+    from flockward.config.scenarios import ConfigError
 
     names = list_suites()
     if suite not in names:

@@ -27,7 +27,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
 
-from flockward.scenarios import (
+from flockward.config.scenarios import (
     SCHEMA,
     ConfigError,
     _label,
@@ -37,7 +37,7 @@ from flockward.scenarios import (
     load_scenario,
     scenario_hash,
 )
-from flockward.types import Scenario
+from flockward.sim.types import Scenario
 
 __all__ = [
     "KNOWN_SUITE_HASHES",

@@ -9,9 +9,9 @@ from typing import Any
 import gymnasium as gym
 import numpy as np
 
-from flockward.scenarios import load_scenario
-from flockward.task import DivertTask, check_actions
-from flockward.types import Scenario
+from flockward.config.scenarios import load_scenario
+from flockward.sim.types import Scenario
+from flockward.task.batched import DivertTask, check_actions
 
 TRACK_LENGTH = 200  # steps of pursuer track kept for rendering
 
@@ -52,7 +52,7 @@ class DivertEnv(gym.Env):
 
     ## Observation space
     ``observation="vector"`` (default): a float32 vector of 14 + 3k entries, k = ``rim_birds``
-    (see ``flockward.observation.GLOBAL_FIELDS`` and the README's table).
+    (see ``flockward.task.observation.GLOBAL_FIELDS`` and the README's table).
     ``observation="dict"``: ``{"context": that vector, "birds": (max_birds, 4) relative position
     and velocity of every bird, "mask": (max_birds,) 1 for a real bird}``.
 

@@ -19,7 +19,7 @@ import math
 import numba
 import numpy as np
 
-from flockward.types import Circle, Polygon, Zone
+from flockward.sim.types import Circle, Polygon, Zone
 
 CIRCLE = 0  # zone kind code in row 0 of a zone array
 POLYGON = 1

@@ -10,8 +10,8 @@ from typing import Any
 import numpy as np
 
 from flockward.controller import Controller, StateView
-from flockward.env import DivertEnv
-from flockward.types import Scenario
+from flockward.sim.types import Scenario
+from flockward.task.env import DivertEnv
 
 
 @dataclass(frozen=True)

@@ -15,9 +15,9 @@ import gymnasium as gym
 import numba
 import numpy as np
 
-from flockward.geometry import _signed_distance_xy, nearest_boundary_point, zone_center
-from flockward.metrics import StepMetrics
-from flockward.types import Scenario, WorldState
+from flockward.sim.geometry import _signed_distance_xy, nearest_boundary_point, zone_center
+from flockward.sim.metrics import StepMetrics
+from flockward.sim.types import Scenario, WorldState
 
 OBSERVATION_MODES = ("vector", "dict")
 

@@ -10,7 +10,7 @@ import math
 
 import numpy as np
 
-from flockward.types import FORMATIONS
+from flockward.sim.types import FORMATIONS
 
 # Golden angle in radians, the divergence angle of the sunflower (Vogel 1979) spiral.
 _GOLDEN_ANGLE = math.pi * (3.0 - math.sqrt(5.0))

@@ -37,7 +37,7 @@ import math
 import numba
 import numpy as np
 
-from flockward.types import K
+from flockward.sim.types import K
 
 # Above this many birds the cell grid beats all pairs (measured by `flockward bench`).
 GRID_MIN_BIRDS = 350

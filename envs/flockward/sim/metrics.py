@@ -18,7 +18,7 @@ from typing import Literal, NamedTuple
 import numba
 import numpy as np
 
-from flockward.geometry import (
+from flockward.sim.geometry import (
     _enclosing_circle_of,
     _signed_distance_xy,
     convex_hull,

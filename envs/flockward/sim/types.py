@@ -1,8 +1,9 @@
 """Frozen parameter records and the batched world state.
 
 Every length is in metres, every speed in m/s, every acceleration in m/s^2, every time in seconds,
-every angle in degrees in configs (radians inside the code). Parameters are validated where they are
-read (``flockward.scenarios``); the records here only hold them and derive values in one place.
+every angle in degrees in configs (radians inside the code). Parameters are validated where they
+are read (``flockward.config.scenarios``); the records here only hold them and derive values in
+one place.
 """
 
 from __future__ import annotations
@@ -148,7 +149,7 @@ class EpisodeParams:
 
 @dataclass(frozen=True)
 class RewardWeights:
-    """Weights of the named reward terms (see flockward.reward)."""
+    """Weights of the named reward terms (see flockward.task.reward)."""
 
     progress: float = 1.0  # per unit of potential (potential = -distance to goal / length scale)
     approach: float = 1.0  # per unit of potential (-drone distance beyond alarm radius / scale)

@@ -17,9 +17,9 @@ from gymnasium.utils import seeding
 from gymnasium.vector import AutoresetMode, VectorEnv
 from gymnasium.vector.utils import batch_space
 
-from flockward.env import resolve_scenario
-from flockward.task import DivertTask, check_actions
-from flockward.types import Scenario
+from flockward.sim.types import Scenario
+from flockward.task.batched import DivertTask, check_actions
+from flockward.task.env import resolve_scenario
 
 
 def world_seeds(seed: int | list[int | None] | None, worlds: int) -> list[int | None]:

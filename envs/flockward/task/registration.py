@@ -17,8 +17,8 @@ def register_envs() -> None:
         return
     gym.register(
         id="flockward/Divert-v0",
-        entry_point="flockward.env:DivertEnv",
-        vector_entry_point="flockward.vector_env:DivertVectorEnv",
+        entry_point="flockward.task.env:DivertEnv",
+        vector_entry_point="flockward.task.vector_env:DivertVectorEnv",
         # No TimeLimit wrapper: the environment truncates at its scenario's step limit itself.
         max_episode_steps=None,
     )

@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from flockward.types import RewardWeights
+from flockward.sim.types import RewardWeights
 
 REWARD_TERMS = ("progress", "approach", "fragmentation", "collision", "breach", "time", "success")
 

@@ -1,6 +1,6 @@
 """Play a suite's episodes as Ray tasks, on this machine or on a cluster (the ``ray`` extra).
 
-:func:`ray_rows` is a :data:`flockward.evaluation.Backend`: every call becomes one Ray task
+:func:`ray_rows` is a :data:`flockward.bench.evaluation.Backend`: every call becomes one Ray task
 running the runner's own per-episode function, and the rows come back to the driver as the tasks
 finish. The driver alone orders, saves and resumes, exactly as with local workers, so the result
 file does not depend on where the episodes ran. :func:`ray_session` connects for one run::
@@ -22,7 +22,7 @@ from types import ModuleType
 from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
-    from flockward.evaluation import Backend
+    from flockward.bench.evaluation import Backend
 
 __all__ = ["INSTALL_HINT", "import_ray", "ray_rows", "ray_session"]
 

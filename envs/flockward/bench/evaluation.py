@@ -38,11 +38,11 @@ import gymnasium
 import numpy as np
 
 import flockward
+from flockward.bench.episode import play_episode
+from flockward.bench.suites import EpisodeSpec, Suite, suite_hash
+from flockward.config.scenarios import scenario_hash
 from flockward.controller import INFORMATION_LEVELS, Controller
-from flockward.episode import play_episode
-from flockward.scenarios import scenario_hash
-from flockward.suites import EpisodeSpec, Suite, suite_hash
-from flockward.types import Scenario
+from flockward.sim.types import Scenario
 
 __all__ = [
     "RESULTS_FORMAT",
@@ -60,7 +60,8 @@ SAVE_INTERVAL = 30.0  # s, longest wait between saves while episodes keep finish
 
 ControllerFactory = Callable[[], Controller]
 # Runs play(*call) for every call, wherever it likes, and yields the returned rows as they finish
-# (any order). The driver alone orders, saves and resumes. flockward.ray_backend.ray_rows is one.
+# (any order). The driver alone orders, saves and resumes.
+# flockward.bench.ray_backend.ray_rows is one.
 Backend = Callable[[Callable[..., dict[str, Any]], list[tuple[Any, ...]]], Iterable[dict[str, Any]]]
 
 

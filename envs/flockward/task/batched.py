@@ -11,12 +11,12 @@ from typing import Any
 
 import numpy as np
 
-from flockward import reward as rewards
-from flockward.geometry import zone_arrays
-from flockward.metrics import StepMetrics, step_metrics
-from flockward.observation import ObservationBuilder
-from flockward.types import Scenario
-from flockward.world import World
+from flockward.sim.geometry import zone_arrays
+from flockward.sim.metrics import StepMetrics, step_metrics
+from flockward.sim.types import Scenario
+from flockward.sim.world import World
+from flockward.task import reward as rewards
+from flockward.task.observation import ObservationBuilder
 
 # Why an episode ended, as reported in info["outcome"].
 RUNNING, SUCCESS, BREACH, TIMEOUT = "running", "success", "breach", "timeout"
