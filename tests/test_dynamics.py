@@ -437,6 +437,80 @@ def test_fear_beyond_alarm_radius_is_nothing():
     assert np.array_equal(fear_accel((0.0, -200.0), pursuer_vel=(0.0, -10.0)), np.zeros(2))
 
 
+# Several drones: a bird fears the nearest one only, so the one-drone closed forms above hold
+# with the nearest drone in the place of the pursuer; a sum over the drones would break them.
+
+
+def test_bird_between_two_drones_flees_the_nearer_one():
+    # Unit check against the fear law. The bird is 30 m from the near drone and 65 m from the far
+    # one, inside the alarm radius (80 m) of both and outside the dodge radius (15 m). It flees the
+    # near drone alone: flee_gain (1 - d / alarm_radius) along bird - near drone, whichever index
+    # the near drone has, so it flies toward the far drone, which on its own would push it back.
+    bird = np.array([30.0, 4.0])
+    near, far = np.array([0.0, 0.0]), np.array([95.0, 0.0])
+    d = np.linalg.norm(bird - near)
+    law = 20.0 * (1.0 - d / 80.0) * (bird - near) / d
+    for drones in ((near, far), (far, near)):
+        batch = Batch([bird], [[0.0, 0.0]], FEAR, pursuer_pos=drones, pursuer_vel=(10.0, 0.0))
+        a = accel_of(batch)[0, 0]
+        np.testing.assert_allclose(a, law, rtol=1e-12)
+        assert a @ (bird - near) > 0.0  # away from the near drone
+        assert a @ (far - bird) > 0.0  # and so toward the far one
+    alone = Batch([bird], [[0.0, 0.0]], FEAR, pursuer_pos=far, pursuer_vel=(10.0, 0.0))
+    assert accel_of(alone)[0, 0] @ (bird - far) > 0.0  # the far drone is a threat by itself
+
+
+def test_two_drones_at_one_spot_frighten_like_one():
+    # Nearest, not summed: two drones at the same spot are one threat. The bird is inside the
+    # dodge radius, so radial flight and the sideways dodge both act; summing would double both.
+    bird = [[8.0, 1.0]]
+    one = Batch(bird, [[0.0, 0.0]], FEAR, pursuer_pos=(0.0, 0.0), pursuer_vel=(10.0, 0.0))
+    two = Batch(
+        bird, [[0.0, 0.0]], FEAR, pursuer_pos=((0.0, 0.0), (0.0, 0.0)), pursuer_vel=(10.0, 0.0)
+    )
+    np.testing.assert_array_equal(accel_of(two), accel_of(one))
+
+
+def test_dodge_follows_the_nearest_drones_line_of_approach():
+    # The dodge is perpendicular to the line of approach of the drone the bird fears. Near drone
+    # at the origin flying +x, far drone (59 m, inside the alarm radius) flying -y: the bird at
+    # (8, 1) is left of the near drone's approach, so it dodges +y (documented law, as in
+    # test_fear_inside_dodge_radius_adds_sideways_dodge); the far drone's line would send it +x.
+    bird = np.array([8.0, 1.0])
+    batch = Batch(
+        [bird],
+        [[0.0, 0.0]],
+        FEAR,
+        pursuer_pos=((8.0, 60.0), (0.0, 0.0)),
+        pursuer_vel=((0.0, -10.0), (10.0, 0.0)),
+    )
+    a = accel_of(batch)[0, 0]
+    d = np.linalg.norm(bird)
+    flee = 20.0 * (1.0 - d / 80.0) * bird / d
+    dodge = 10.0 * (1.0 - d / 15.0) * np.array([0.0, 1.0])
+    np.testing.assert_allclose(a, flee + dodge, rtol=1e-12)
+
+
+def test_each_drone_moves_under_its_own_command_and_limits():
+    # Two drones from rest (textbook kinematics): drone 0 under u = (0.6, 0.3) and 8 m/s^2 stays
+    # below its 30 m/s cap, x = a t^2 / 2; drone 1 under u = (0, -1), 5 m/s^2 and a 5 m/s cap
+    # reaches the cap at t* = 1 s, then x(T) = a t*^2 / 2 + v_max (T - t*).
+    u0 = np.array([0.6, 0.3])
+    batch = Batch(
+        np.zeros((0, 2)),
+        np.zeros((0, 2)),
+        pursuer_pos=((0.0, 0.0), (10.0, 10.0)),
+        pursuer_limits=((30.0, 8.0), (5.0, 5.0)),
+        action=(u0, (0.0, -1.0)),
+    )
+    batch.step(20)
+    t = 2.0
+    np.testing.assert_allclose(batch.pursuer_pos[0, 0], 0.5 * 8.0 * u0 * t**2, atol=1e-9)
+    np.testing.assert_allclose(batch.pursuer_vel[0, 0], 8.0 * u0 * t, atol=1e-9)
+    np.testing.assert_allclose(batch.pursuer_pos[0, 1], (10.0, 10.0 - 7.5), atol=1e-9)
+    np.testing.assert_allclose(batch.pursuer_vel[0, 1], (0.0, -5.0), atol=1e-12)
+
+
 def test_acceleration_cap_limits_summed_steering():
     # The summed steering is capped at max_accel: |a| = min(|a_sum|, max_accel) along a_sum.
     flock = dataclasses.replace(FEAR, max_accel=4.0)
