@@ -167,7 +167,9 @@ def test_actions_are_finite_and_in_range(name: str) -> None:
         (np.zeros((5, 2)), np.array([0.0, 500.0])),  # coincident birds, drone at the goal
         (np.array([[-600.0, 0.0], [-597.0, 0.0]]), np.array([-150.0, -100.0])),
     ]:
-        view = StateView(birds, np.ones_like(birds), drone, np.zeros(2), flock, scenario, 1)
+        view = StateView(
+            birds, np.ones_like(birds), drone[None], np.zeros((1, 2)), flock, scenario, 1
+        )
         recorder.actions.append(np.asarray(controller.act(None, view)))
     for action in recorder.actions:
         assert action.shape == (2,)

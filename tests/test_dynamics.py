@@ -41,8 +41,18 @@ OFF = dataclasses.replace(
 )
 
 
+def per_drone(value, drones: int, worlds: int) -> np.ndarray:
+    """A (2,) value shared by every drone, or one (2,) row per drone, as (worlds, drones, 2)."""
+    rows = np.broadcast_to(np.asarray(value, np.float64).reshape(-1, 2), (drones, 2))
+    return np.tile(rows, (worlds, 1, 1))
+
+
 class Batch:
-    """All arguments of ``step_worlds`` for B worlds of up to N birds, built from plain arrays."""
+    """All arguments of ``step_worlds`` for B worlds of up to N birds, built from plain arrays.
+
+    ``pursuer_pos`` is (2,) for one drone or (P, 2) for P drones; the drones' velocities, limits
+    and actions are (2,) shared by every drone or (P, 2) one row per drone.
+    """
 
     def __init__(
         self,
@@ -66,13 +76,14 @@ class Batch:
         self.vel = np.array(vel, dtype=np.float64).reshape(self.pos.shape)
         b, n = self.pos.shape[:2]
         self.count = np.full(b, n, dtype=np.int64) if count is None else np.array(count, np.int64)
-        self.pursuer_pos = np.tile(np.asarray(pursuer_pos, np.float64), (b, 1))
-        self.pursuer_vel = np.tile(np.asarray(pursuer_vel, np.float64), (b, 1))
+        drones = np.asarray(pursuer_pos, np.float64).reshape(-1, 2).shape[0]
+        self.pursuer_pos = per_drone(pursuer_pos, drones, b)  # (B, P, 2)
+        self.pursuer_vel = per_drone(pursuer_vel, drones, b)
         self.destination = np.tile(np.asarray(destination, np.float64), (b, 1))
         self.params = np.tile(flock.kernel_vector(), (b, 1))
         self.tables = np.tile(alignment_table(flock.alignment_beta), (b, 1))
-        self.pursuer_limits = np.tile(np.asarray(pursuer_limits, np.float64), (b, 1))
-        self.action = np.tile(np.asarray(action, np.float64), (b, 1))
+        self.pursuer_limits = per_drone(pursuer_limits, drones, b)
+        self.action = per_drone(action, drones, b)
         self.noise = np.zeros((b, 0, 0, 2)) if noise is None else np.asarray(noise, np.float64)
         self.noise_row = np.zeros(b, dtype=np.int64)
         self.dt = dt
@@ -129,17 +140,17 @@ def test_pursuer_constant_command_matches_closed_form(dt):
     # v(t) = v0 + a t, with a = u * max_accel while the speed stays below max_speed.
     x0, v0, u, a_max = np.array([3.0, -7.0]), np.array([1.0, -2.0]), np.array([0.6, 0.3]), 8.0
     batch = Batch(np.zeros((0, 2)), np.zeros((0, 2)), pursuer_limits=(30.0, a_max), dt=dt)
-    batch.pursuer_pos[0] = x0
-    batch.pursuer_vel[0] = v0
-    batch.action[0] = u
+    batch.pursuer_pos[0, 0] = x0
+    batch.pursuer_vel[0, 0] = v0
+    batch.action[0, 0] = u
     a = u * a_max
     steps = round(3.0 / dt)
     for k in range(1, steps + 1):
         batch.step()
         t = k * dt
-        np.testing.assert_allclose(batch.pursuer_vel[0], v0 + a * t, rtol=0, atol=1e-9)
-        np.testing.assert_allclose(batch.pursuer_pos[0], x0 + v0 * t + 0.5 * a * t**2, atol=1e-9)
-    assert np.linalg.norm(batch.pursuer_vel[0]) < 30.0  # the clamp never acted
+        np.testing.assert_allclose(batch.pursuer_vel[0, 0], v0 + a * t, rtol=0, atol=1e-9)
+        np.testing.assert_allclose(batch.pursuer_pos[0, 0], x0 + v0 * t + 0.5 * a * t**2, atol=1e-9)
+    assert np.linalg.norm(batch.pursuer_vel[0, 0]) < 30.0  # the clamp never acted
 
 
 @pytest.mark.parametrize("dt", [0.1, 0.05, 0.01])
@@ -167,17 +178,17 @@ def test_pursuer_speed_never_exceeds_max_speed():
     a_max, v_max, dt = 8.0, 20.0, 0.1
     u = np.array([0.8, -0.6])  # unit norm
     batch = Batch(np.zeros((0, 2)), np.zeros((0, 2)), pursuer_limits=(v_max, a_max), dt=dt)
-    batch.pursuer_pos[0] = 0.0
-    batch.action[0] = u
+    batch.pursuer_pos[0, 0] = 0.0
+    batch.action[0, 0] = u
     for k in range(1, 201):
         batch.step()
-        speed = np.linalg.norm(batch.pursuer_vel[0])
+        speed = np.linalg.norm(batch.pursuer_vel[0, 0])
         assert speed <= v_max * (1 + 1e-12)
         assert speed == pytest.approx(min(a_max * k * dt, v_max), rel=0, abs=1e-9)
     t_cap, t_end = v_max / a_max, 20.0
     distance = 0.5 * a_max * t_cap**2 + v_max * (t_end - t_cap)
-    np.testing.assert_allclose(batch.pursuer_pos[0], distance * u, rtol=0, atol=1e-9)
-    np.testing.assert_allclose(batch.pursuer_vel[0], v_max * u, rtol=0, atol=1e-12)
+    np.testing.assert_allclose(batch.pursuer_pos[0, 0], distance * u, rtol=0, atol=1e-9)
+    np.testing.assert_allclose(batch.pursuer_vel[0, 0], v_max * u, rtol=0, atol=1e-12)
 
 
 @pytest.mark.parametrize(
@@ -191,9 +202,9 @@ def test_pursuer_command_norm_is_capped_at_one(command, norm):
     batch = Batch(
         np.zeros((0, 2)), np.zeros((0, 2)), pursuer_limits=(20.0, a_max), action=command, dt=dt
     )
-    batch.pursuer_pos[0] = 0.0
+    batch.pursuer_pos[0, 0] = 0.0
     batch.step()
-    dv = batch.pursuer_vel[0]
+    dv = batch.pursuer_vel[0, 0]
     assert np.linalg.norm(dv) == pytest.approx(norm * a_max * dt, rel=1e-12)
     assert np.all(np.sign(dv) == np.sign(command))  # same quadrant as the command
     if norm < 1.0 or abs(command[0]) == abs(command[1]):  # inside the unit box: same direction
@@ -426,6 +437,80 @@ def test_fear_beyond_alarm_radius_is_nothing():
     assert np.array_equal(fear_accel((0.0, -200.0), pursuer_vel=(0.0, -10.0)), np.zeros(2))
 
 
+# Several drones: a bird fears the nearest one only, so the one-drone closed forms above hold
+# with the nearest drone in the place of the pursuer; a sum over the drones would break them.
+
+
+def test_bird_between_two_drones_flees_the_nearer_one():
+    # Unit check against the fear law. The bird is 30 m from the near drone and 65 m from the far
+    # one, inside the alarm radius (80 m) of both and outside the dodge radius (15 m). It flees the
+    # near drone alone: flee_gain (1 - d / alarm_radius) along bird - near drone, whichever index
+    # the near drone has, so it flies toward the far drone, which on its own would push it back.
+    bird = np.array([30.0, 4.0])
+    near, far = np.array([0.0, 0.0]), np.array([95.0, 0.0])
+    d = np.linalg.norm(bird - near)
+    law = 20.0 * (1.0 - d / 80.0) * (bird - near) / d
+    for drones in ((near, far), (far, near)):
+        batch = Batch([bird], [[0.0, 0.0]], FEAR, pursuer_pos=drones, pursuer_vel=(10.0, 0.0))
+        a = accel_of(batch)[0, 0]
+        np.testing.assert_allclose(a, law, rtol=1e-12)
+        assert a @ (bird - near) > 0.0  # away from the near drone
+        assert a @ (far - bird) > 0.0  # and so toward the far one
+    alone = Batch([bird], [[0.0, 0.0]], FEAR, pursuer_pos=far, pursuer_vel=(10.0, 0.0))
+    assert accel_of(alone)[0, 0] @ (bird - far) > 0.0  # the far drone is a threat by itself
+
+
+def test_two_drones_at_one_spot_frighten_like_one():
+    # Nearest, not summed: two drones at the same spot are one threat. The bird is inside the
+    # dodge radius, so radial flight and the sideways dodge both act; summing would double both.
+    bird = [[8.0, 1.0]]
+    one = Batch(bird, [[0.0, 0.0]], FEAR, pursuer_pos=(0.0, 0.0), pursuer_vel=(10.0, 0.0))
+    two = Batch(
+        bird, [[0.0, 0.0]], FEAR, pursuer_pos=((0.0, 0.0), (0.0, 0.0)), pursuer_vel=(10.0, 0.0)
+    )
+    np.testing.assert_array_equal(accel_of(two), accel_of(one))
+
+
+def test_dodge_follows_the_nearest_drones_line_of_approach():
+    # The dodge is perpendicular to the line of approach of the drone the bird fears. Near drone
+    # at the origin flying +x, far drone (59 m, inside the alarm radius) flying -y: the bird at
+    # (8, 1) is left of the near drone's approach, so it dodges +y (documented law, as in
+    # test_fear_inside_dodge_radius_adds_sideways_dodge); the far drone's line would send it +x.
+    bird = np.array([8.0, 1.0])
+    batch = Batch(
+        [bird],
+        [[0.0, 0.0]],
+        FEAR,
+        pursuer_pos=((8.0, 60.0), (0.0, 0.0)),
+        pursuer_vel=((0.0, -10.0), (10.0, 0.0)),
+    )
+    a = accel_of(batch)[0, 0]
+    d = np.linalg.norm(bird)
+    flee = 20.0 * (1.0 - d / 80.0) * bird / d
+    dodge = 10.0 * (1.0 - d / 15.0) * np.array([0.0, 1.0])
+    np.testing.assert_allclose(a, flee + dodge, rtol=1e-12)
+
+
+def test_each_drone_moves_under_its_own_command_and_limits():
+    # Two drones from rest (textbook kinematics): drone 0 under u = (0.6, 0.3) and 8 m/s^2 stays
+    # below its 30 m/s cap, x = a t^2 / 2; drone 1 under u = (0, -1), 5 m/s^2 and a 5 m/s cap
+    # reaches the cap at t* = 1 s, then x(T) = a t*^2 / 2 + v_max (T - t*).
+    u0 = np.array([0.6, 0.3])
+    batch = Batch(
+        np.zeros((0, 2)),
+        np.zeros((0, 2)),
+        pursuer_pos=((0.0, 0.0), (10.0, 10.0)),
+        pursuer_limits=((30.0, 8.0), (5.0, 5.0)),
+        action=(u0, (0.0, -1.0)),
+    )
+    batch.step(20)
+    t = 2.0
+    np.testing.assert_allclose(batch.pursuer_pos[0, 0], 0.5 * 8.0 * u0 * t**2, atol=1e-9)
+    np.testing.assert_allclose(batch.pursuer_vel[0, 0], 8.0 * u0 * t, atol=1e-9)
+    np.testing.assert_allclose(batch.pursuer_pos[0, 1], (10.0, 10.0 - 7.5), atol=1e-9)
+    np.testing.assert_allclose(batch.pursuer_vel[0, 1], (0.0, -5.0), atol=1e-12)
+
+
 def test_acceleration_cap_limits_summed_steering():
     # The summed steering is capped at max_accel: |a| = min(|a_sum|, max_accel) along a_sum.
     flock = dataclasses.replace(FEAR, max_accel=4.0)
@@ -511,14 +596,14 @@ def test_empty_and_padded_worlds(use_grid):
         use_grid=use_grid,
         destination=(500.0, 0.0),
     )
-    batch.pursuer_pos[0] = 0.0
+    batch.pursuer_pos[0, 0] = 0.0
     batch.step(30)
     alone.step(30)
     assert np.all(np.isnan(batch.pos[0])) and np.all(np.isnan(batch.pos[1, 3:]))  # untouched
     assert np.array_equal(batch.pos[1, :3], alone.pos[0])
     assert np.array_equal(batch.vel[1, :3], alone.vel[0])
     t = 30 * 0.1
-    np.testing.assert_allclose(batch.pursuer_pos[0], [0.5 * 4.0 * t**2, 0.0], atol=1e-9)
+    np.testing.assert_allclose(batch.pursuer_pos[0, 0], [0.5 * 4.0 * t**2, 0.0], atol=1e-9)
     # A kernel call with no bird slots at all.
     empty = Batch(np.zeros((0, 2)), np.zeros((0, 2)), FlockParams(), count=[0], use_grid=use_grid)
     empty.step(3)

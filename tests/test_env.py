@@ -115,7 +115,7 @@ def test_out_of_range_action_is_clipped():
         oa, *_ = a.step(np.array([7.0, -0.0]))
         ob, *_ = b.step(np.array([1.0, 0.0]))
     np.testing.assert_array_equal(oa, ob)
-    speed = np.hypot(*a.task.state.pursuer_vel[0])
+    speed = np.hypot(*a.task.state.pursuer_vel[0, 0])
     assert speed == pytest.approx(min(20 * 0.1 * a.scenario.pursuer.max_accel, 20.0))
 
 

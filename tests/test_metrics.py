@@ -226,15 +226,19 @@ def test_polarisation_of_random_headings() -> None:
 
 
 @settings(deadline=None, max_examples=50)
-@given(seed=seeds)
-def test_nearest_distance_matches_cdist(seed: int) -> None:
+@given(seed=seeds, drones=st.integers(1, 4))
+def test_nearest_distance_matches_cdist(seed: int, drones: int) -> None:
     pos, _, count = random_batch(seed)
-    point = np.random.default_rng(seed).uniform(-20.0, 60.0, size=(len(count), 2))
-    got = nearest_distance(pos, count, point)
+    points = np.random.default_rng(seed).uniform(-20.0, 60.0, size=(len(count), drones, 2))
+    got = nearest_distance(pos, count, points)
     for b, n in enumerate(count):
-        # Reference: scipy.spatial.distance.cdist minimum over the active birds.
-        want = cdist(point[b : b + 1], pos[b, :n]).min() if n else math.inf
+        # Reference: scipy.spatial.distance.cdist minimum over every drone and active bird.
+        want = cdist(points[b], pos[b, :n]).min() if n else math.inf
         assert math.isclose(got[b], want, rel_tol=1e-12)
+    # One (x, y) point per world, (B, 2), is the same as one drone, (B, 1, 2).
+    np.testing.assert_array_equal(
+        nearest_distance(pos, count, points[:, 0]), nearest_distance(pos, count, points[:, :1])
+    )
 
 
 @pytest.mark.parametrize("zone", [PROTECTED, GOAL])
@@ -277,7 +281,7 @@ def test_zone_distance_matches_shapely(seed: int) -> None:
 @given(seed=seeds)
 def test_padding_is_ignored(seed: int) -> None:
     pos, vel, count = random_batch(seed)
-    pursuer = np.zeros((len(count), 2))
+    pursuer = np.zeros((len(count), 1, 2))  # one drone per world
     clean = step_metrics(
         np.nan_to_num(pos), np.nan_to_num(vel), count, pursuer, 5.0, PROTECTED, GOAL
     )
@@ -293,10 +297,12 @@ def test_padding_is_ignored(seed: int) -> None:
 
 
 @settings(deadline=None, max_examples=40)
-@given(seed=seeds, worlds=st.integers(1, 8), slots=st.integers(1, 60))
-def test_step_metrics_agrees_with_individual_functions(seed: int, worlds: int, slots: int) -> None:
+@given(seed=seeds, worlds=st.integers(1, 8), slots=st.integers(1, 60), drones=st.integers(1, 3))
+def test_step_metrics_agrees_with_individual_functions(
+    seed: int, worlds: int, slots: int, drones: int
+) -> None:
     pos, vel, count = random_batch(seed, worlds, slots)
-    pursuer = np.random.default_rng(seed).uniform(0.0, 40.0, size=(worlds, 2))
+    pursuer = np.random.default_rng(seed).uniform(0.0, 40.0, size=(worlds, drones, 2))
     m = step_metrics(pos, vel, count, pursuer, 6.0, PROTECTED, GOAL)
     _, n_comp, largest = components(pos, count, 6.0)
     c = centroid(pos, count)
@@ -328,3 +334,7 @@ def test_inputs_are_validated() -> None:
         centroid(pos[0], np.array([1]))
     with pytest.raises(ValueError, match="method"):
         components(pos, np.array([1, 1]), 1.0, "kdtree")  # type: ignore[arg-type]
+    with pytest.raises(ValueError, match="P >= 1"):
+        nearest_distance(pos, np.array([1, 1]), np.zeros((2, 0, 2)))  # no drones
+    with pytest.raises(ValueError, match="P >= 1"):
+        nearest_distance(pos, np.array([1, 1]), np.zeros((3, 1, 2)))  # a world too many

@@ -89,6 +89,29 @@ def test_info_entries_change_the_status_text(renderer):
     assert changed_pixels(quiet, loud) > 20
 
 
+def two_drone_state(second: tuple[float, float]) -> WorldState:
+    """flock_state's world 1 with a second drone at ``second``."""
+    one = flock_state()
+    state = WorldState.zeros(2, 6, drones=2)
+    for name in ("bird_pos", "bird_vel", "count"):
+        getattr(state, name)[:] = getattr(one, name)
+    state.pursuer_pos[1] = (one.pursuer_pos[1, 0], second)
+    return state
+
+
+def test_every_drone_and_its_track_is_drawn(renderer):
+    first = flock_state().pursuer_pos[1, 0]
+    on_top = renderer.draw(two_drone_state(tuple(first)), 1, track(), {})
+    apart = renderer.draw(two_drone_state((250.0, -250.0)), 1, track(), {})
+    assert changed_pixels(on_top, apart) > 20  # the second drone shows
+    # A (T, 2) track is one drone's: the same picture as the (T, 1, 2) track.
+    single = renderer.draw(flock_state(), 1, track(), {})
+    np.testing.assert_array_equal(renderer.draw(flock_state(), 1, track()[:, None], {}), single)
+    second_path = track() + (300.0, -300.0)
+    both = np.stack([track(), second_path], axis=1)  # (T, P, 2)
+    assert changed_pixels(renderer.draw(two_drone_state(tuple(first)), 1, both, {}), on_top) > 20
+
+
 def episode_frames(steps: int) -> list[dict]:
     """A made-up episode: the flock drifts +x while the drone circles the flock start."""
     frames = []
@@ -118,6 +141,17 @@ def test_episode_still_writes_a_png_and_leaves_no_temporary(tmp_path):
     assert 800 <= width <= 2000 and 400 <= height <= 1400
     assert width > height  # map on the left, plots on the right
     assert sorted(p.name for p in out.parent.iterdir()) == ["still.png"]
+
+
+def test_still_and_animation_take_frames_of_several_drones(tmp_path):
+    frames = episode_frames(12)
+    for frame in frames:
+        frame["pursuer_pos"] = np.stack([frame["pursuer_pos"], frame["pursuer_pos"] + 40.0])
+    episode_still(POLYGON_SCENARIO, frames, tmp_path / "still.png")
+    episode_animation(CIRCLE_SCENARIO, frames, tmp_path / "run.gif", stride=3)
+    with Image.open(tmp_path / "run.gif") as image:
+        assert image.n_frames == 4
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["run.gif", "still.png"]
 
 
 def test_episode_still_rejects_a_changing_flock_size(tmp_path):

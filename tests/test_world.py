@@ -21,7 +21,7 @@ def make_world(scenario, seeds, neighbour_search="auto"):
 
 
 def pursuer_into_flock(world: World, b: int, offset=(20.0, 5.0)) -> None:
-    """Put world b's pursuer beside its flock's centroid, so fear and dodging act at once."""
+    """Put world b's drones beside its flock's centroid, so fear and dodging act at once."""
     n = int(world.state.count[b])
     world.state.pursuer_pos[b] = world.state.bird_pos[b, :n].mean(axis=0) + np.asarray(offset)
 
@@ -53,14 +53,14 @@ def test_airspeeds_stay_within_limits(name):
     rng = np.random.default_rng(0)
     at_max = at_min = 0
     for _ in range(300):
-        world.step(rng.uniform(-1.5, 1.5, (world.n_worlds, 2)))
+        world.step(rng.uniform(-1.5, 1.5, (world.n_worlds, 1, 2)))
         speed = np.linalg.norm(world.state.bird_vel, axis=-1)
         assert np.all(speed[slots] >= np.broadcast_to(lo, speed.shape)[slots] * (1 - 1e-12))
         assert np.all(speed[slots] <= np.broadcast_to(hi, speed.shape)[slots] * (1 + 1e-12))
         at_max += np.sum(np.abs(speed - hi)[slots] < 1e-9)
         at_min += np.sum(np.abs(speed - lo)[slots] < 1e-9)
         p_speed = np.linalg.norm(world.state.pursuer_vel, axis=-1)
-        assert np.all(p_speed <= world.pursuer_limits[:, 0] * (1 + 1e-12))
+        assert np.all(p_speed <= world.pursuer_limits[..., 0] * (1 + 1e-12))
     assert at_max > 0 and at_min > 0  # both clamps were exercised, not just never reached
     assert np.all(np.isfinite(world.state.bird_pos))
 
@@ -72,7 +72,7 @@ def test_airspeeds_stay_within_limits(name):
 def rollout(world: World, steps: int, seed: int = 5) -> None:
     rng = np.random.default_rng(seed)
     for _ in range(steps):
-        world.step(rng.uniform(-1.0, 1.0, (world.n_worlds, 2)))
+        world.step(rng.uniform(-1.0, 1.0, (world.n_worlds, 1, 2)))
 
 
 def test_same_seed_same_trajectory():
@@ -104,7 +104,7 @@ def test_batched_worlds_equal_worlds_alone(name):
     assert steps > 2 * NOISE_BLOCK
     together = make_world(scenario, seeds)
     pursuer_into_flock(together, 1)
-    actions = np.random.default_rng(9).uniform(-1.0, 1.0, (steps, len(seeds), 2))
+    actions = np.random.default_rng(9).uniform(-1.0, 1.0, (steps, len(seeds), 1, 2))
     for k in range(steps):
         together.step(actions[k])
     if name == "crosswind-mix":
@@ -129,7 +129,7 @@ def test_live_mask_leaves_other_worlds_untouched():
     for k in range(120):
         live = np.array([True, k % 3 == 0, True])
         before = world.state.copy()
-        action = rng.uniform(-1.0, 1.0, (3, 2))
+        action = rng.uniform(-1.0, 1.0, (3, 1, 2))
         world.step(action, live)
         if live[1]:
             reference.step(action[1:2])
@@ -154,7 +154,7 @@ def test_reset_restarts_one_world_only():
     assert same_state(world.state, other_before, 1, 1)
     rng = np.random.default_rng(3)
     for _ in range(70):
-        action = rng.uniform(-1.0, 1.0, (2, 2))
+        action = rng.uniform(-1.0, 1.0, (2, 1, 2))
         world.step(action)
         fresh.step(action[:1])
     assert same_state(world.state, fresh.state, 0, 0)
@@ -180,7 +180,7 @@ def test_grid_equals_all_pairs(count):
         pursuer_into_flock(worlds[mode], 1, offset=(25.0, 5.0))  # fear and dodging in world 1
     assert worlds["grid"].use_grid and not worlds["all-pairs"].use_grid
     assert make_world(scenario, [0]).use_grid == (count >= GRID_MIN_BIRDS)  # 'auto'
-    actions = np.random.default_rng(2).uniform(-1.0, 1.0, (20, 2, 2))
+    actions = np.random.default_rng(2).uniform(-1.0, 1.0, (20, 2, 1, 2))
     for k in range(20):
         for world in worlds.values():
             world.step(actions[k])

@@ -54,7 +54,7 @@ def _world(worlds: int, birds: int, neighbour_search: str = "auto"):
 def simulator_rate(worlds: int, birds: int, steps: int, repeats: int = 5, search="auto") -> float:
     """Bird-steps per second of the bare step kernel."""
     world = _world(worlds, birds, search)
-    action = np.zeros((worlds, 2))
+    action = np.zeros((worlds, world.n_drones, 2))
 
     def run() -> int:
         for _ in range(steps):
@@ -69,7 +69,7 @@ def interpreted_rate() -> float:
     code = (
         "import json,time,numpy as np\n"
         "from flockward_baselines.bench import _world\n"
-        "w=_world(1,50); a=np.zeros((1,2)); w.step(a)\n"
+        "w=_world(1,50); a=np.zeros((1,w.n_drones,2)); w.step(a)\n"
         "t=time.perf_counter()\n"
         "for _ in range(5): w.step(a)\n"
         "print(json.dumps(250/(time.perf_counter()-t)))\n"
@@ -229,7 +229,7 @@ def _murmuration_world(birds: int, search: str):
     world = World(scenario, 1, search)
     world.reset(0, np.random.default_rng(0))
     for _ in range(SCALING_WARMUP):
-        world.step(np.zeros((1, 2)))
+        world.step(np.zeros((1, world.n_drones, 2)))
     return world
 
 
@@ -259,8 +259,8 @@ def _scaling_runs(birds: int) -> tuple[dict[str, Callable[[], object]], bool]:
     from flockward.sim import metrics
     from flockward.sim.geometry import zone_arrays
 
-    action = np.zeros((1, 2))
     worlds = {search: _murmuration_world(birds, search) for search in NEIGHBOUR_SEARCHES}
+    action = np.zeros((1, worlds["auto"].n_drones, 2))
     runs: dict[str, Callable[[], object]] = {
         search: partial(world.step, action) for search, world in worlds.items()
     }

@@ -49,7 +49,7 @@ class FlockwardVecEnv(VecEnv):
             self.task.observations.space(),
             gym.spaces.Box(-1.0, 1.0, (2,), np.float32),
         )
-        self._actions = np.zeros((self.num_envs, 2))
+        self._actions = np.zeros((self.num_envs, 1, 2))  # (worlds, drones, 2), as check_actions
         self._generators: list[np.random.Generator] | None = None
 
     def reset(self):

@@ -24,8 +24,8 @@ class StateView:
 
     bird_pos: np.ndarray  # (n, 2) m, active birds only
     bird_vel: np.ndarray  # (n, 2) m/s
-    pursuer_pos: np.ndarray  # (2,) m
-    pursuer_vel: np.ndarray  # (2,) m/s
+    pursuer_pos: np.ndarray  # (P, 2) m, every drone; the controller flies drone 0
+    pursuer_vel: np.ndarray  # (P, 2) m/s
     flock: FlockParams  # this episode's (possibly randomised) behaviour parameters
     scenario: Scenario  # site geometry, pursuer limits, episode rules
     step: int  # steps since reset
@@ -41,7 +41,7 @@ class Controller:
         """Called before each episode with the scenario and the episode's seed."""
 
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
-        """The normalised pursuer acceleration, shape (2,), each component in [-1, 1]."""
+        """The normalised acceleration of drone 0, shape (2,), each component in [-1, 1]."""
         raise NotImplementedError
 
     def parameters(self) -> dict[str, Any]:

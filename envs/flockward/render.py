@@ -4,7 +4,8 @@ Everything headless draws on ``matplotlib.figure.Figure`` with an Agg canvas, so
 without a display and never changes the global matplotlib backend. Only ``interactive=True`` (the
 environment's "human" mode) imports ``matplotlib.pyplot`` and opens a window.
 
-All coordinates are world metres; one frame shows one world of a batched ``WorldState``.
+All coordinates are world metres; one frame shows one world of a batched ``WorldState`` with all
+its drones. Drone tracks are (T, P, 2): T time samples of P drones; a (T, 2) track is one drone.
 """
 
 from __future__ import annotations
@@ -35,7 +36,7 @@ TEAL = "#2f9c95"  # goal region
 PLUM = "#6b4f8a"  # the flock's destination
 CHARCOAL = "#33373b"  # birds
 SMOKE = "#5d6b78"  # bird trails in the still
-CRIMSON = "#b8283f"  # the drone and its track
+CRIMSON = "#b8283f"  # the drones and their tracks
 PAPER = "#f4f5f2"  # figure background of the still
 
 ZONE_FILL_ALPHA = 0.28  # translucency of zone interiors
@@ -137,6 +138,25 @@ def path_segments(path: np.ndarray) -> np.ndarray:
     return np.stack([path[:-1], path[1:]], axis=1)
 
 
+def drone_tracks(track: np.ndarray) -> np.ndarray:
+    """A drone track as (T, P, 2) float64; a (T, 2) track is one drone's."""
+    track = np.asarray(track, dtype=np.float64)
+    return track[:, None, :] if track.ndim == 2 else track
+
+
+def track_segments(
+    track: np.ndarray, colour: str, max_alpha: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """Line segments (S, 2, 2) of every drone's path in a (T, P, 2) track, drone after drone, and
+    their (S, 4) colours, each drone's fading from its oldest segment to its newest."""
+    track = drone_tracks(track)
+    segments = [path_segments(track[:, q]) for q in range(track.shape[1])]
+    colours = [fading_colours(colour, len(s), max_alpha) for s in segments]
+    if not segments:
+        return np.empty((0, 2, 2)), np.empty((0, 4))
+    return np.concatenate(segments), np.concatenate(colours)
+
+
 def velocity_ticks(pos: np.ndarray, vel: np.ndarray) -> np.ndarray:
     """(n, 2, 2) segments from each bird along its velocity for TICK_SECONDS."""
     return np.stack([pos, pos + TICK_SECONDS * vel], axis=1)
@@ -225,17 +245,18 @@ class FrameRenderer:
     def draw(
         self, state: WorldState, index: int, track: np.ndarray, info: Mapping[str, Any]
     ) -> np.ndarray:
-        """An (H, W, 3) uint8 RGB frame of world ``index``; ``track`` (T, 2) is the drone's path."""
+        """An (H, W, 3) uint8 RGB frame of world ``index`` with every drone; ``track`` (T, P, 2)
+        is the drones' recent path."""
         n = int(state.count[index])
         pos = np.asarray(state.bird_pos[index, :n], dtype=np.float64)
         vel = np.asarray(state.bird_vel[index, :n], dtype=np.float64)
         self.birds.set_offsets(pos)
         self.ticks.set_segments(velocity_ticks(pos, vel))
-        segments = path_segments(track)
+        segments, colours = track_segments(track, CRIMSON, max_alpha=0.9)
         self.track.set_segments(segments)
-        self.track.set_color(fading_colours(CRIMSON, len(segments), max_alpha=0.9))
-        px, py = np.asarray(state.pursuer_pos[index], dtype=np.float64)
-        self.pursuer.set_data([px], [py])
+        self.track.set_color(colours)
+        drones = np.asarray(state.pursuer_pos[index], dtype=np.float64)  # (P, 2)
+        self.pursuer.set_data(drones[:, 0], drones[:, 1])
         self.text.set_text(status_line(self.scenario, info))
         canvas = self.fig.canvas
         canvas.draw()
@@ -282,6 +303,11 @@ def _stack_birds(frames: Sequence[Mapping[str, Any]]) -> np.ndarray:
     return np.stack([np.asarray(f["bird_pos"], dtype=np.float64) for f in frames])
 
 
+def _stack_drones(frames: Sequence[Mapping[str, Any]]) -> np.ndarray:
+    """Drone positions of all frames as (T, P, 2); a frame's (2,) position is one drone's."""
+    return np.stack([np.asarray(f["pursuer_pos"], dtype=np.float64).reshape(-1, 2) for f in frames])
+
+
 def _check_frames(frames: Sequence[Mapping[str, Any]]) -> None:
     if len(frames) == 0:
         raise ValueError("frames is empty; record at least the reset state of the episode")
@@ -293,11 +319,12 @@ def episode_still(
     """Write a PNG summary of one episode: a map of trails and three metrics over time.
 
     ``frames`` holds one dict per recorded step with ``bird_pos`` (n, 2), ``bird_vel`` (n, 2),
-    ``pursuer_pos`` (2,), ``step``, ``goal_distance`` (m), ``diameter`` (m) and ``n_components``.
+    ``pursuer_pos`` (P, 2) (or (2,) for one drone), ``step``, ``goal_distance`` (m), ``diameter``
+    (m) and ``n_components``.
     """
     _check_frames(frames)
     birds = _stack_birds(frames)  # (T, n, 2)
-    drone = np.stack([np.asarray(f["pursuer_pos"], dtype=np.float64) for f in frames])  # (T, 2)
+    drones = _stack_drones(frames)  # (T, P, 2)
     seconds = np.array([f["step"] for f in frames], dtype=np.float64) * scenario.episode.dt
 
     fig = Figure(figsize=(12.0, 7.0), dpi=100, facecolor=PAPER)
@@ -308,7 +335,9 @@ def episode_still(
     ax.set_facecolor(SLATE)
     box = ax.get_position()
     panel_aspect = (box.width * fig.get_figwidth()) / (box.height * fig.get_figheight())
-    everything = site_extent(scenario, np.concatenate([birds.reshape(-1, 2), drone]))
+    everything = site_extent(
+        scenario, np.concatenate([birds.reshape(-1, 2), drones.reshape(-1, 2)])
+    )
     x0, x1, y0, y1 = fit_aspect(everything, panel_aspect)
     ax.set_xlim(x0, x1)
     ax.set_ylim(y0, y1)
@@ -328,14 +357,9 @@ def episode_still(
         ax.add_collection(
             LineCollection(pairs.reshape(-1, 2, 2), colors=colours, linewidths=0.5, zorder=2)
         )
-    drone_segments = path_segments(drone)
+    drone_segments, drone_colours = track_segments(drones, CRIMSON, 0.95)
     ax.add_collection(
-        LineCollection(
-            drone_segments,
-            colors=fading_colours(CRIMSON, len(drone_segments), 0.95),
-            linewidths=1.3,
-            zorder=3,
-        )
+        LineCollection(drone_segments, colors=drone_colours, linewidths=1.3, zorder=3)
     )
     last = frames[-1]
     final_pos = birds[-1]
@@ -346,8 +370,9 @@ def episode_still(
         )
     )
     ax.scatter(final_pos[:, 0], final_pos[:, 1], s=10.0, color=CHARCOAL, linewidths=0, zorder=5)
-    ax.plot(*drone[0], marker="o", markersize=6, color="none", markeredgecolor=CRIMSON, zorder=6)
-    ax.plot(*drone[-1], marker="D", markersize=7, color=CRIMSON, markeredgecolor=INK, zorder=6)
+    start, end = drones[0], drones[-1]  # (P, 2) each
+    ax.plot(*start.T, "o", markersize=6, color="none", markeredgecolor=CRIMSON, zorder=6)
+    ax.plot(*end.T, "D", markersize=7, color=CRIMSON, markeredgecolor=INK, zorder=6)
     handles = [
         patches.Patch(
             facecolor=to_rgba(AMBER, ZONE_FILL_ALPHA), edgecolor=AMBER, label="protected"
@@ -423,7 +448,7 @@ def episode_animation(
     _check_frames(frames)
     if stride < 1 or fps <= 0:
         raise ValueError(f"stride = {stride}, fps = {fps}: need stride >= 1 and fps > 0")
-    drone = np.stack([np.asarray(f["pursuer_pos"], dtype=np.float64) for f in frames])
+    drones = _stack_drones(frames)  # (T, P, 2)
     palette = Image.new("P", (1, 1))
     palette.putpalette(blend_palette().ravel().tolist())
     renderer = FrameRenderer(scenario, size_px=size_px)
@@ -435,13 +460,13 @@ def episode_animation(
             state = WorldState(
                 bird_pos=pos[None],
                 bird_vel=np.asarray(frame["bird_vel"], dtype=np.float64).reshape(1, -1, 2),
-                pursuer_pos=drone[t][None],
-                pursuer_vel=np.zeros((1, 2)),
+                pursuer_pos=drones[t][None],
+                pursuer_vel=np.zeros((1,) + drones.shape[1:]),
                 count=np.array([len(pos)], dtype=np.int64),
             )
             info = {key: frame[key] for key in INFO_LABELS if key in frame}
             info["steps"] = int(frame["step"])
-            track = drone[max(0, t - ANIMATION_TRACK_STEPS) : t + 1]
+            track = drones[max(0, t - ANIMATION_TRACK_STEPS) : t + 1]
             rgb = Image.fromarray(renderer.draw(state, 0, track, info))
             images.append(rgb.quantize(palette=palette, dither=Image.Dither.NONE))
     finally:

@@ -178,7 +178,7 @@ class BoundaryArc(Controller):
             return np.zeros(2)
         if self._prepared is not state.scenario:
             self.reset(state.scenario)
-        pos, vel = state.pursuer_pos, state.pursuer_vel
+        pos, vel = state.pursuer_pos[0], state.pursuer_vel[0]  # the drone this controller flies
         birds = state.bird_pos
         dt = state.scenario.episode.dt
         centroid = birds.mean(axis=0)

@@ -113,10 +113,11 @@ class CollectDrive(Controller):
         gcm = birds.mean(axis=0)
         radius = float(np.max(np.hypot(*(birds - gcm).T)))
         pursuer = state.scenario.pursuer
-        waypoint = around(state.pursuer_pos, target, gcm, radius + flock.dodge_radius)
+        pos, vel = state.pursuer_pos[0], state.pursuer_vel[0]  # the drone this controller flies
+        waypoint = around(pos, target, gcm, radius + flock.dodge_radius)
         return fly_to(
-            state.pursuer_pos,
-            state.pursuer_vel,
+            pos,
+            vel,
             waypoint,
             pursuer,
             self.speed * pursuer.max_speed,

@@ -33,12 +33,13 @@ class DirectPursuit(Controller):
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
         if state is None or len(state.bird_pos) == 0:
             return np.zeros(2)
+        pos, vel = state.pursuer_pos[0], state.pursuer_vel[0]  # the drone this controller flies
         if self.target == "centroid":
             aim = state.bird_pos.mean(axis=0)
         else:
-            gaps = np.hypot(*(state.bird_pos - state.pursuer_pos).T)
+            gaps = np.hypot(*(state.bird_pos - pos).T)
             aim = state.bird_pos[int(np.argmin(gaps))]
-        return head_for(state.pursuer_pos, state.pursuer_vel, aim, state.scenario.pursuer)
+        return head_for(pos, vel, aim, state.scenario.pursuer)
 
     def parameters(self) -> dict[str, Any]:
         return {"target": self.target}

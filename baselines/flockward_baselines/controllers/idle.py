@@ -30,9 +30,10 @@ class Idle(Controller):
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
         if state is None:
             return np.zeros(2)
+        pos, vel = state.pursuer_pos[0], state.pursuer_vel[0]  # the drone this controller flies
         if self._home is None:
-            self._home = state.pursuer_pos.copy()
-        return fly_to(state.pursuer_pos, state.pursuer_vel, self._home, state.scenario.pursuer)
+            self._home = pos.copy()
+        return fly_to(pos, vel, self._home, state.scenario.pursuer)
 
     def parameters(self) -> dict[str, Any]:
         return {}

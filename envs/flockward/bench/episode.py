@@ -28,11 +28,11 @@ class EpisodeRecord:
     breached_birds: int  # distinct birds that entered the protected zone
     peak_components: int  # most flock fragments at any step
     min_largest_fraction: float  # lowest share of birds in the largest fragment
-    collision_steps: int  # steps with the pursuer inside its safety radius of a bird
-    closest_approach: float  # m, pursuer to nearest bird over the episode
+    collision_steps: int  # steps with a drone inside its safety radius of a bird
+    closest_approach: float  # m, closest drone to nearest bird over the episode
     diameter_growth: float  # largest diameter / initial diameter
-    path_length: float  # m, pursuer track length
-    energy: float  # (m/s^2)^2 s, integral of the commanded acceleration squared
+    path_length: float  # m, drone track lengths summed over the drones
+    energy: float  # (m/s^2)^2 s, integral of the commanded acceleration squared, over the drones
     episode_return: float
     error: str | None = None  # why the controller failed the episode, if it did
 
@@ -42,6 +42,25 @@ class EpisodeRecord:
 
 class ControllerFault(Exception):
     """The controller raised or returned an unusable action; the episode is failed, not the run."""
+
+
+def _command_energy(action: np.ndarray, max_accel: np.ndarray, dt: float) -> float:
+    """One step's commanded acceleration squared times dt, summed over drones, (m/s^2)^2 s.
+
+    ``action`` holds one (2,) command per drone, ``max_accel`` (P,) m/s^2; each command counts as
+    the kernel applies it: clipped to the unit box, then its norm capped at 1.
+    """
+    total = 0.0
+    for command, amax in zip(np.reshape(action, (-1, 2)), max_accel, strict=True):
+        u = np.clip(command, -1.0, 1.0)
+        u = u / max(1.0, float(np.hypot(*u)))
+        total += float((u * amax) @ (u * amax)) * dt
+    return total
+
+
+def _track_length(before: np.ndarray, after: np.ndarray) -> float:
+    """Distance flown in one step, summed over the drones of (P, 2) positions, m."""
+    return sum(float(np.hypot(*(a - b))) for a, b in zip(after, before, strict=True))
 
 
 def _checked_action(raw: Any) -> np.ndarray:
@@ -75,7 +94,7 @@ def play_episode(
     state = task.state
     wants_state = controller.information_level == "state"
     dt = scenario.episode.dt
-    amax = scenario.pursuer.max_accel
+    max_accel = task.world.pursuer_limits[0, :, 1]  # (P,) m/s^2
     d0 = max(info["diameter"], 1e-9)
     frames: list[dict[str, Any]] = []
     peak_components = info["n_components"]
@@ -116,13 +135,11 @@ def play_episode(
             break
         if on_action is not None:
             on_action(obs, action)
-        before = state.pursuer_pos[0].copy()
+        before = state.pursuer_pos[0].copy()  # (P, 2) m
         obs, reward, terminated, truncated, info = env.step(action)
         step += 1
-        u = np.clip(action, -1.0, 1.0)
-        u = u / max(1.0, float(np.hypot(*u)))
-        energy += float((u * amax) @ (u * amax)) * dt
-        path += float(np.hypot(*(state.pursuer_pos[0] - before)))
+        energy += _command_energy(action, max_accel, dt)
+        path += _track_length(before, state.pursuer_pos[0])
         total += reward
         peak_components = max(peak_components, info["n_components"])
         min_largest = min(min_largest, info["largest_fraction"])
@@ -160,6 +177,7 @@ def play_episode(
 
 
 def _frame(state, step: int, info: dict[str, Any]) -> dict[str, Any]:
+    """One recorded step of world 0: active birds (n, 2), drones ``pursuer_pos`` (P, 2), metrics."""
     n = int(state.count[0])
     return {
         "bird_pos": state.bird_pos[0, :n].copy(),

@@ -1,4 +1,4 @@
-"""The step kernel: birds and pursuer of B independent worlds advanced by one time step.
+"""The step kernel: birds and drones of B independent worlds advanced by one time step.
 
 Written once, batch-first, compiled with numba. Birds are double integrators steered by the sum of
 published terms:
@@ -11,8 +11,8 @@ published terms:
 - cohesion: toward the centroid of flockmates within ``cohesion_radius`` (Reynolds 1987);
 - destination: steering toward the cruise velocity aimed at the flock's roost, a normalised form of
   the navigational feedback of Olfati-Saber 2006 (IEEE TAC);
-- fear of the pursuer: radial flight inside ``alarm_radius`` and, inside the smaller
-  ``dodge_radius``, a sideways dodge perpendicular to the pursuer's line of approach;
+- fear of the nearest drone (pursuer): radial flight inside ``alarm_radius`` and, inside the
+  smaller ``dodge_radius``, a sideways dodge perpendicular to that drone's line of approach;
 - optional Gaussian acceleration noise.
 
 The summed acceleration is capped at ``max_accel`` and the airspeed is clamped to
@@ -22,7 +22,14 @@ Integration: each step holds the acceleration constant (zero-order hold) and app
 discretisation of the double integrator, v' = v + a dt and x' = x + (v + v') dt / 2, which equals
 x + v dt + a dt^2 / 2 and so is exact for constant acceleration, unlike explicit or semi-implicit
 Euler, at the cost of one force evaluation per step. After the speed clamp the position still
-advances by the mean of the old and the clamped new velocity. The pursuer uses the same scheme.
+advances by the mean of the old and the clamped new velocity. Each drone uses the same scheme, with
+its own command and limits.
+
+Several drones: a bird fears only the nearest one (the lowest index on a tie), not the sum of all.
+A bird reacts to the most pressing threat, and the fear law's gains describe one threat: summing
+would make two drones at the same spot twice as frightening as one. With one drone this is the
+single-drone law, operation for operation. Birds see every drone where it was at the start of the
+step; the drones move after the birds.
 
 Neighbour search: all pairs (each pair visited once, contributions applied to both birds) for small
 flocks; for large flocks a cell grid with cell size equal to the interaction cut-off (birds sorted
@@ -214,14 +221,14 @@ def _advance(x, y, vx, vy, ax, ay, vmin, vmax, dt):
 def step_worlds(
     bird_pos,  # (B, N, 2) m, updated in place
     bird_vel,  # (B, N, 2) m/s, updated in place
-    pursuer_pos,  # (B, 2) m, updated in place
-    pursuer_vel,  # (B, 2) m/s, updated in place
+    pursuer_pos,  # (B, P, 2) m, drone positions, updated in place
+    pursuer_vel,  # (B, P, 2) m/s, drone velocities, updated in place
     count,  # (B,) active birds
     destination,  # (B, 2) m
     params,  # (B, len(KERNEL_FIELDS)) per-world bird parameters
     align_tables,  # (B, ALIGN_TABLE_SIZE + 2) per-world alignment_table(beta)
-    pursuer_limits,  # (B, 2) max speed m/s, max acceleration m/s^2
-    action,  # (B, 2) normalised command, already finite
+    pursuer_limits,  # (B, P, 2) per drone: max speed m/s, max acceleration m/s^2
+    action,  # (B, P, 2) normalised command per drone, already finite
     noise,  # (B, T, N, 2) standard normals, or shape (B, 0, 0, 2) for none
     noise_row,  # (B,) which of the T rows this step uses
     dt,  # s
@@ -241,12 +248,8 @@ def step_worlds(
         prm = params[b]
         pos = bird_pos[b]
         vel = bird_vel[b]
-        px = pursuer_pos[b, 0]
-        py = pursuer_pos[b, 1]
-        pvx = pursuer_vel[b, 0]
-        pvy = pursuer_vel[b, 1]
-        # Line of approach: the pursuer's velocity when it moves, else the bird-pursuer line.
-        pspeed = math.sqrt(pvx * pvx + pvy * pvy)
+        drones = pursuer_pos[b]
+        n_drones = drones.shape[0]
         for i in range(n):
             work[_X, i] = pos[i, 0]
             work[_Y, i] = pos[i, 1]
@@ -284,14 +287,27 @@ def step_worlds(
             if g > _TINY:
                 ax += k_dst * (cruise * gx / g - vx)
                 ay += k_dst * (cruise * gy / g - vy)
-            rx = x - px
-            ry = y - py
-            d = math.sqrt(rx * rx + ry * ry)
+            # The nearest drone (first on a tie) is the one this bird fears.
+            near = 0
+            rx = x - drones[0, 0]
+            ry = y - drones[0, 1]
+            d2 = rx * rx + ry * ry
+            for q in range(1, n_drones):
+                qx = x - drones[q, 0]
+                qy = y - drones[q, 1]
+                q2 = qx * qx + qy * qy
+                if q2 < d2:
+                    near, rx, ry, d2 = q, qx, qy, q2
+            d = math.sqrt(d2)
             if d < r_alarm and d > _TINY:
                 f = k_flee * (1.0 - d / r_alarm) / d
                 ax += f * rx
                 ay += f * ry
                 if d < r_dodge:
+                    # Line of approach: the drone's velocity if it moves, else the bird-drone line.
+                    pvx = pursuer_vel[b, near, 0]
+                    pvy = pursuer_vel[b, near, 1]
+                    pspeed = math.sqrt(pvx * pvx + pvy * pvy)
                     if pspeed > _TINY:
                         ux = pvx / pspeed
                         uy = pvy / pspeed
@@ -317,21 +333,30 @@ def step_worlds(
             pos[i, 1] = ny_
             vel[i, 0] = nvx
             vel[i, 1] = nvy
-        # The pursuer: the command is clipped to the unit box, then its norm capped at 1.
-        ux = min(max(action[b, 0], -1.0), 1.0)
-        uy = min(max(action[b, 1], -1.0), 1.0)
-        u = math.sqrt(ux * ux + uy * uy)
-        if u > 1.0:
-            ux /= u
-            uy /= u
-        amax_p = pursuer_limits[b, 1]
-        nx_, ny_, nvx, nvy = _advance(
-            px, py, pvx, pvy, ux * amax_p, uy * amax_p, 0.0, pursuer_limits[b, 0], dt
-        )
-        pursuer_pos[b, 0] = nx_
-        pursuer_pos[b, 1] = ny_
-        pursuer_vel[b, 0] = nvx
-        pursuer_vel[b, 1] = nvy
+        # Each drone: its command is clipped to the unit box, then its norm capped at 1.
+        for q in range(n_drones):
+            ux = min(max(action[b, q, 0], -1.0), 1.0)
+            uy = min(max(action[b, q, 1], -1.0), 1.0)
+            u = math.sqrt(ux * ux + uy * uy)
+            if u > 1.0:
+                ux /= u
+                uy /= u
+            amax_p = pursuer_limits[b, q, 1]
+            nx_, ny_, nvx, nvy = _advance(
+                drones[q, 0],
+                drones[q, 1],
+                pursuer_vel[b, q, 0],
+                pursuer_vel[b, q, 1],
+                ux * amax_p,
+                uy * amax_p,
+                0.0,
+                pursuer_limits[b, q, 0],
+                dt,
+            )
+            drones[q, 0] = nx_
+            drones[q, 1] = ny_
+            pursuer_vel[b, q, 0] = nvx
+            pursuer_vel[b, q, 1] = nvy
 
 
 def choose_grid(max_birds: int, interaction_radius: float, neighbour_search: str = "auto") -> bool:

@@ -40,7 +40,7 @@ class StepMetrics(NamedTuple):
     diameter: np.ndarray  # (B,) m, twice the smallest enclosing circle radius
     n_components: np.ndarray  # (B,) int64, fragments of the link-radius proximity graph
     largest_fraction: np.ndarray  # (B,) share of active birds in the largest fragment
-    nearest_distance: np.ndarray  # (B,) m, pursuer to the closest active bird
+    nearest_distance: np.ndarray  # (B,) m, closest drone to the closest active bird
     goal_distance: np.ndarray  # (B,) m, signed distance from the centroid to the goal zone
     in_protected: np.ndarray  # (B, N) bool, bird strictly inside the protected zone
     in_goal: np.ndarray  # (B, N) bool, bird strictly inside the goal zone
@@ -65,6 +65,19 @@ def _check_points(points: np.ndarray, worlds: int) -> np.ndarray:
     points = np.ascontiguousarray(points, dtype=np.float64)
     if points.shape != (worlds, 2):
         raise ValueError(f"expected one (x, y) point per world ({worlds}, 2), got {points.shape}")
+    return points
+
+
+def _check_point_sets(points: np.ndarray, worlds: int) -> np.ndarray:
+    """Contiguous float64 (B, P, 2) points, P >= 1 per world; (B, 2) counts as P = 1."""
+    points = np.ascontiguousarray(points, dtype=np.float64)
+    if points.ndim == 2:
+        points = points[:, None, :]
+    if points.ndim != 3 or points.shape[0] != worlds or points.shape[1] < 1 or points.shape[2] != 2:
+        raise ValueError(
+            f"expected (x, y) points per world, shape ({worlds}, 2) or ({worlds}, P, 2), P >= 1;"
+            f" got {points.shape}"
+        )
     return points
 
 
@@ -265,10 +278,19 @@ def _nearest_world(p: np.ndarray, n: int, x: float, y: float) -> float:
 
 
 @numba.njit(cache=True)
-def _nearest_kernel(pos: np.ndarray, count: np.ndarray, point: np.ndarray) -> np.ndarray:
+def _nearest_to_points(p: np.ndarray, n: int, points: np.ndarray) -> float:
+    """Shortest distance between any of ``points`` (P, 2) and the first n birds of ``p``."""
+    best = _nearest_world(p, n, points[0, 0], points[0, 1])
+    for q in range(1, points.shape[0]):
+        best = min(best, _nearest_world(p, n, points[q, 0], points[q, 1]))
+    return best
+
+
+@numba.njit(cache=True)
+def _nearest_kernel(pos: np.ndarray, count: np.ndarray, points: np.ndarray) -> np.ndarray:
     out = np.empty(pos.shape[0])
     for b in range(pos.shape[0]):
-        out[b] = _nearest_world(pos[b], count[b], point[b, 0], point[b, 1])
+        out[b] = _nearest_to_points(pos[b], count[b], points[b])
     return out
 
 
@@ -307,7 +329,7 @@ def _step_kernel(
     pos: np.ndarray,
     vel: np.ndarray,
     count: np.ndarray,
-    pursuer: np.ndarray,
+    drones: np.ndarray,
     link_radius: float,
     protected_arr: np.ndarray,
     goal_arr: np.ndarray,
@@ -341,7 +363,7 @@ def _step_kernel(
             mean_vel[b, 0], mean_vel[b, 1] = svx / n, svy / n
             goal_dist[b] = _signed_distance_xy(goal_arr, sx / n, sy / n)
         polar[b] = _polarisation_world(vel[b], n)
-        nearest[b] = _nearest_world(p, n, pursuer[b, 0], pursuer[b, 1])
+        nearest[b] = _nearest_to_points(p, n, drones[b])
         n_comp[b], largest[b] = _world_components(p, n, link_radius, _AUTO, labels)
         diam[b] = _world_hull(p, n, on_hull[b])
     return (
@@ -412,10 +434,13 @@ def polarisation(vel: np.ndarray, count: np.ndarray) -> np.ndarray:
     return _polarisation_kernel(*_check_batch(vel, count))
 
 
-def nearest_distance(pos: np.ndarray, count: np.ndarray, point: np.ndarray) -> np.ndarray:
-    """Distance from each world's point (B, 2) to its nearest active bird, (B,) m (inf if none)."""
+def nearest_distance(pos: np.ndarray, count: np.ndarray, points: np.ndarray) -> np.ndarray:
+    """Shortest distance between each world's points and its active birds, (B,) m (inf if none).
+
+    ``points`` is (B, P, 2), e.g. the drones, or (B, 2) for one point per world.
+    """
     pos, count = _check_batch(pos, count)
-    return _nearest_kernel(pos, count, _check_points(point, pos.shape[0]))
+    return _nearest_kernel(pos, count, _check_point_sets(points, pos.shape[0]))
 
 
 def inside_zone(zone_arr: np.ndarray, pos: np.ndarray, count: np.ndarray) -> np.ndarray:
@@ -445,7 +470,10 @@ def step_metrics(
     protected_arr: np.ndarray,
     goal_arr: np.ndarray,
 ) -> StepMetrics:
-    """All per-step flock metrics in one compiled pass per world (see StepMetrics)."""
+    """All per-step flock metrics in one compiled pass per world (see StepMetrics).
+
+    ``pursuer_pos`` holds the drone positions, (B, P, 2) m ((B, 2) counts as one drone).
+    """
     pos, count = _check_batch(pos, count)
     vel = np.ascontiguousarray(vel, dtype=np.float64)
     if vel.shape != pos.shape:
@@ -455,7 +483,7 @@ def step_metrics(
             pos,
             vel,
             count,
-            _check_points(pursuer_pos, pos.shape[0]),
+            _check_point_sets(pursuer_pos, pos.shape[0]),
             float(link_radius),
             np.ascontiguousarray(protected_arr, np.float64),
             np.ascontiguousarray(goal_arr, np.float64),

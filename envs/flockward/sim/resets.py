@@ -26,8 +26,8 @@ class ResetSample:
     heading: float  # rad, counter-clockwise from +x
     bird_pos: np.ndarray  # (n, 2) m
     bird_vel: np.ndarray  # (n, 2) m/s
-    pursuer_pos: np.ndarray  # (2,) m
-    pursuer_vel: np.ndarray  # (2,) m/s, zeros
+    pursuer_pos: np.ndarray  # (2,) m, where every drone starts
+    pursuer_vel: np.ndarray  # (2,) m/s, zeros (every drone starts at rest)
 
 
 # Order of the uniform draws of every reset: fixed, so adding a range to a scenario changes only

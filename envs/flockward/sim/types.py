@@ -196,26 +196,32 @@ class Scenario:
 
 @dataclass
 class WorldState:
-    """The batched state of B independent worlds with room for N birds each.
+    """The batched state of B independent worlds with room for N birds and P drones each.
 
-    Birds beyond ``count[b]`` in world b are padding and are ignored everywhere.
+    Birds beyond ``count[b]`` in world b are padding and are ignored everywhere. Every world flies
+    the same number of drones, so the drone axis has no padding.
     """
 
     bird_pos: np.ndarray  # (B, N, 2) m
     bird_vel: np.ndarray  # (B, N, 2) m/s
-    pursuer_pos: np.ndarray  # (B, 2) m
-    pursuer_vel: np.ndarray  # (B, 2) m/s
+    pursuer_pos: np.ndarray  # (B, P, 2) m, drone positions
+    pursuer_vel: np.ndarray  # (B, P, 2) m/s, drone velocities
     count: np.ndarray  # (B,) int64, active birds per world
 
     @classmethod
-    def zeros(cls, worlds: int, birds: int) -> WorldState:
+    def zeros(cls, worlds: int, birds: int, drones: int = 1) -> WorldState:
         return cls(
             bird_pos=np.zeros((worlds, birds, 2)),
             bird_vel=np.zeros((worlds, birds, 2)),
-            pursuer_pos=np.zeros((worlds, 2)),
-            pursuer_vel=np.zeros((worlds, 2)),
+            pursuer_pos=np.zeros((worlds, drones, 2)),
+            pursuer_vel=np.zeros((worlds, drones, 2)),
             count=np.zeros(worlds, dtype=np.int64),
         )
+
+    @property
+    def drones(self) -> int:
+        """P, the number of drones in every world."""
+        return self.pursuer_pos.shape[1]
 
     def copy(self) -> WorldState:
         return WorldState(**{f.name: getattr(self, f.name).copy() for f in fields(self)})

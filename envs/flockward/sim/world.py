@@ -18,22 +18,36 @@ NOISE_BLOCK = 64  # steps of noise drawn per generator call: amortises the per-w
 
 
 class World:
-    """The batched simulation: reset any subset of worlds, step all of them in one call."""
+    """The batched simulation: reset any subset of worlds, step all of them in one call.
 
-    def __init__(self, scenario: Scenario, worlds: int = 1, neighbour_search: str = "auto"):
+    Every world flies ``drones`` drones (P), all with the scenario's pursuer limits and start.
+    Scenarios describe one drone, which is the default; the environments build one-drone worlds.
+    """
+
+    def __init__(
+        self,
+        scenario: Scenario,
+        worlds: int = 1,
+        neighbour_search: str = "auto",
+        drones: int = 1,
+    ):
         if worlds < 1:
             raise ValueError(f"worlds = {worlds}: must be at least 1")
+        if drones < 1:
+            raise ValueError(f"drones = {drones}: must be at least 1")
         self.scenario = scenario
         self.n_worlds = worlds
+        self.n_drones = drones
         self.max_birds = scenario.max_birds
         self.dt = scenario.episode.dt
-        self.state = WorldState.zeros(worlds, self.max_birds)
+        self.state = WorldState.zeros(worlds, self.max_birds, drones)
         self.params = np.tile(scenario.flock.kernel_vector(), (worlds, 1))
         self.align_tables = np.tile(alignment_table(scenario.flock.alignment_beta), (worlds, 1))
         self.flocks: list[FlockParams] = [scenario.flock] * worlds
         self.destination = np.tile(np.asarray(scenario.site.destination, float), (worlds, 1))
         limits = [scenario.pursuer.max_speed, scenario.pursuer.max_accel]
-        self.pursuer_limits = np.tile(np.asarray(limits, float), (worlds, 1))
+        # (B, P, 2) per drone: max speed m/s, max acceleration m/s^2
+        self.pursuer_limits = np.tile(np.asarray(limits, float), (worlds, drones, 1))
         self.rngs = [np.random.default_rng() for _ in range(worlds)]
         self.steps = np.zeros(worlds, dtype=np.int64)  # steps since each world's reset
         self._all_live = np.ones(worlds, dtype=np.bool_)
@@ -50,7 +64,10 @@ class World:
         self._index_work = np.zeros((2, max(self.max_birds, 1)), dtype=np.int64)
 
     def reset(self, index: int, rng: np.random.Generator | None = None) -> None:
-        """Start world ``index`` afresh, from ``rng`` if given, else from its own generator."""
+        """Start world ``index`` afresh, from ``rng`` if given, else from its own generator.
+
+        Every drone starts at rest at the scenario's pursuer start.
+        """
         if rng is not None:
             self.rngs[index] = rng
         sample = sample_reset(self.scenario, self.rngs[index])
@@ -60,8 +77,8 @@ class World:
         s.bird_vel[index] = 0.0
         s.bird_pos[index, :n] = sample.bird_pos
         s.bird_vel[index, :n] = sample.bird_vel
-        s.pursuer_pos[index] = sample.pursuer_pos
-        s.pursuer_vel[index] = sample.pursuer_vel
+        s.pursuer_pos[index, :] = sample.pursuer_pos
+        s.pursuer_vel[index, :] = sample.pursuer_vel
         s.count[index] = n
         self.flocks[index] = sample.flock
         self.params[index] = sample.flock.kernel_vector()
@@ -72,7 +89,14 @@ class World:
             self._noise_row[index] = NOISE_BLOCK  # the first step draws a fresh block
 
     def step(self, action: np.ndarray, live: np.ndarray | None = None) -> None:
-        """Advance the ``live`` worlds (default all) by one step under ``action`` (B, 2), finite."""
+        """Advance the ``live`` worlds (default all) by one step under ``action`` (B, P, 2): each
+        drone's normalised acceleration command, finite."""
+        action = np.ascontiguousarray(action, dtype=np.float64)
+        expected = (self.n_worlds, self.n_drones, 2)
+        if action.shape != expected:
+            raise ValueError(
+                f"action has shape {action.shape}; expected (worlds, drones, 2) {expected}"
+            )
         live = self._all_live if live is None else live
         if self.has_noise:
             for b in np.flatnonzero((self._noise_row >= NOISE_BLOCK) & live):
@@ -90,7 +114,7 @@ class World:
             self.params,
             self.align_tables,
             self.pursuer_limits,
-            np.ascontiguousarray(action, dtype=np.float64),
+            action,
             self._noise,
             self._noise_row,
             self.dt,

@@ -97,7 +97,7 @@ class DivertTask:
 
     def _approach_potential(self, m: StepMetrics) -> np.ndarray:
         s = self.world.state
-        gap = np.hypot(*(m.centroid - s.pursuer_pos).T)
+        gap = np.hypot(*(m.centroid - s.pursuer_pos[:, 0]).T)  # drone 0
         return rewards.approach_potential(gap, self.scenario.flock.alarm_radius, self.site_scale)
 
     def metrics_info(self) -> dict[str, np.ndarray]:
@@ -111,7 +111,7 @@ class DivertTask:
         }
 
     def step(self, action: np.ndarray, live: np.ndarray | None = None) -> StepBatch:
-        """Advance the live worlds under ``action`` (B, 2) finite; return the batch's outcome.
+        """Advance the live worlds under ``action`` (B, P, 2) finite; return the batch's outcome.
 
         info holds per-world arrays: ``reward_terms`` (a dict of the named terms), ``outcome``,
         and the flock metrics ``n_components``, ``largest_fraction``, ``diameter``,
@@ -176,7 +176,8 @@ class DivertTask:
 
 
 def check_actions(action, worlds: int) -> np.ndarray:
-    """Actions as a (worlds, 2) float64 array; NaN, inf or a wrong shape raise ValueError.
+    """Actions as a (worlds, 1, 2) float64 array (one drone per world); NaN, inf or a wrong shape
+    raise ValueError.
 
     Finite values outside [-1, 1] are accepted: the kernel clips each component to [-1, 1] and
     then caps the command's norm at 1.
@@ -187,7 +188,7 @@ def check_actions(action, worlds: int) -> np.ndarray:
             f"action has shape {np.shape(action)}; expected {(2,) if worlds == 1 else (worlds, 2)}"
             " (normalised pursuer acceleration, x and y)"
         )
-    a = a.reshape(worlds, 2)
+    a = a.reshape(worlds, 1, 2)
     if not np.all(np.isfinite(a)):
         raise ValueError(f"action contains NaN or inf: {np.asarray(action).tolist()}")
     return a

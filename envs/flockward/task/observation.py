@@ -214,8 +214,8 @@ class ObservationBuilder:
         s = self.scales
         _vector_obs(
             state.bird_pos,
-            state.pursuer_vel,
-            state.pursuer_pos,
+            state.pursuer_vel[:, 0],  # the observation is drone 0's
+            state.pursuer_pos[:, 0],
             metrics.centroid,
             metrics.mean_velocity,
             metrics.diameter,
@@ -236,8 +236,8 @@ class ObservationBuilder:
             return vector
         worlds, n_slots = state.bird_pos.shape[:2]
         birds = np.zeros((worlds, self.max_birds, 4), dtype=np.float32)
-        rel_pos = (state.bird_pos - state.pursuer_pos[:, None, :]) / s.near
-        rel_vel = (state.bird_vel - state.pursuer_vel[:, None, :]) / s.pursuer_speed
+        rel_pos = (state.bird_pos - state.pursuer_pos[:, :1]) / s.near  # relative to drone 0
+        rel_vel = (state.bird_vel - state.pursuer_vel[:, :1]) / s.pursuer_speed
         mask = (np.arange(n_slots)[None, :] < state.count[:, None]).astype(np.float32)
         birds[:, :n_slots, :2] = rel_pos * mask[..., None]
         birds[:, :n_slots, 2:] = rel_vel * mask[..., None]
