@@ -84,7 +84,7 @@ def test_shaping_term_is_potential_based():
     env = DivertEnv("headon", overrides={"episode.max_steps": 40})
     env.reset(seed=0)
     gamma = env.scenario.reward.discount
-    scale = env.task.site_scale
+    scale = env.task.setting.scales.site
     phi0 = -max(env.task.metrics.goal_distance[0], 0.0) / scale
     total = 0.0
     for t in range(40):
