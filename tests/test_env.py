@@ -13,11 +13,11 @@ from stable_baselines3.common.env_checker import check_env as sb3_check_env
 import flockward  # noqa: F401  (registers the ids)
 from flockward.config.scenarios import list_scenarios
 from flockward.task.env import DivertEnv
+from flockward.task.registration import ENV_ID
 from flockward.task.reward import REWARD_TERMS
 from flockward.task.vector_env import DivertVectorEnv
 from flockward_baselines.sb3 import make_vec_env
 
-ENV_ID = "flockward/Divert-v0"
 SHORT = {"episode.max_steps": 60}
 
 
