@@ -13,11 +13,11 @@ from stable_baselines3.common.env_checker import check_env as sb3_check_env
 import flockward  # noqa: F401  (registers the ids)
 from flockward.config.scenarios import list_scenarios
 from flockward.task.env import DivertEnv
+from flockward.task.registration import ENV_ID
 from flockward.task.reward import REWARD_TERMS
 from flockward.task.vector_env import DivertVectorEnv
 from flockward_baselines.sb3 import make_vec_env
 
-ENV_ID = "flockward/Divert-v0"
 SHORT = {"episode.max_steps": 60}
 
 
@@ -84,7 +84,7 @@ def test_shaping_term_is_potential_based():
     env = DivertEnv("headon", overrides={"episode.max_steps": 40})
     env.reset(seed=0)
     gamma = env.scenario.reward.discount
-    scale = env.task.site_scale
+    scale = env.task.setting.scales.site
     phi0 = -max(env.task.metrics.goal_distance[0], 0.0) / scale
     total = 0.0
     for t in range(40):

@@ -18,6 +18,8 @@ from functools import partial
 
 import numpy as np
 
+from flockward.task.registration import ENV_ID
+
 # Rough floating-point operations per interacting pair (distance, three terms, both birds'
 # accumulators) and per bird (steering sum, fear, clamps, integration): counted by hand from the
 # kernel source, so the GFLOP/s figure is an estimate, not a hardware count.
@@ -167,7 +169,7 @@ def ppo_rates(worlds: int = 16, timesteps: int = 16 * 256, repeats: int = 3) -> 
 
     torch.set_num_threads(1)
     envs = {
-        "flockward/Divert-v0": make_vec_env(num_envs=worlds, seed=0, scenario="headon"),
+        ENV_ID: make_vec_env(num_envs=worlds, seed=0, scenario="headon"),
         "CartPole-v1": sb3_make_vec_env("CartPole-v1", n_envs=worlds, seed=0),
     }
     out = {}
@@ -412,7 +414,7 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
         ppo = ppo_rates()
         for name, rate in ppo.items():
             emit(f"  {name:<24} {rate:10,.0f}")
-        ratio = ppo["flockward/Divert-v0"] / ppo["CartPole-v1"]
+        ratio = ppo[ENV_ID] / ppo["CartPole-v1"]
         emit(f"  flockward / CartPole:      {ratio:6.2f}")
         results["ppo"] = ppo
     return results

@@ -217,6 +217,9 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
             name = args.controller
             factory = partial(make_controller, args.controller, **params)
+        env_options = {
+            key: getattr(args, key) for key in ("observation", "reward") if getattr(args, key)
+        }
         with _backend(args) as (workers, backend):
             path = run_suite(
                 suite,
@@ -227,6 +230,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
                 limit=args.limit,
                 slug=controller_slug(name),
                 backend=backend,
+                env_options=env_options,
             )
     except KeyboardInterrupt:
         print("interrupted: finished episodes are saved; rerun the command to resume",
@@ -349,6 +353,13 @@ def build_parser() -> argparse.ArgumentParser:
     )
     run.add_argument(
         "--limit", type=int, help="stop after this many new episodes (a rerun continues)"
+    )
+    run.add_argument(
+        "--observation",
+        help="observation of the episodes: vector (default), dict, or package.module:Name",
+    )
+    run.add_argument(
+        "--reward", help="reward of the episodes: herding (default) or package.module:Name"
     )
     run.set_defaults(handler=_cmd_run)
 

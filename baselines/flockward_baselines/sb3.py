@@ -11,15 +11,13 @@ from __future__ import annotations
 
 from typing import Any
 
-import gymnasium as gym
 import numpy as np
 from gymnasium.utils import seeding
 from stable_baselines3.common.vec_env.base_vec_env import VecEnv
 
-from flockward.task.batched import DivertTask, check_actions
-from flockward.task.env import resolve_scenario, scalar_info
-
-ENV_ID = "flockward/Divert-v0"
+from flockward.task.batched import DivertTask, action_space, check_actions, scalar_info
+from flockward.task.env_config import EnvConfig
+from flockward.task.registration import ENV_ID
 
 
 class FlockwardVecEnv(VecEnv):
@@ -29,26 +27,14 @@ class FlockwardVecEnv(VecEnv):
     batched task, so every index sees the same object: get_attr returns one value per index.
     """
 
-    def __init__(self, num_envs: int = 16, **env_kwargs: Any):
-        scenario = resolve_scenario(
-            env_kwargs.pop("scenario", "headon"), env_kwargs.pop("overrides", None)
-        )
-        allowed = {"observation", "rim_birds", "max_birds", "neighbour_search", "max_episode_steps"}
-        unknown = sorted(set(env_kwargs) - allowed)
-        if unknown:
-            raise TypeError(
-                f"unknown environment argument(s) {unknown}; allowed: scenario, overrides, "
-                + ", ".join(sorted(allowed))
-            )
-        max_steps = env_kwargs.pop("max_episode_steps", None)
-        self.task = DivertTask(scenario, int(num_envs), max_steps=max_steps, **env_kwargs)
-        self.scenario = scenario
+    def __init__(self, num_envs: int = 16, config: EnvConfig | Any = None, **options: Any):
+        self.config = EnvConfig.from_options(config, **options)
+        if self.config.render_mode is not None:
+            raise ValueError("the SB3 adapter does not render; render a single DivertEnv instead")
+        self.task = DivertTask(self.config, int(num_envs))
+        self.scenario = self.task.scenario
         self.render_mode = None
-        super().__init__(
-            int(num_envs),
-            self.task.observations.space(),
-            gym.spaces.Box(-1.0, 1.0, (2,), np.float32),
-        )
+        super().__init__(int(num_envs), self.task.observation_space(), action_space())
         self._actions = np.zeros((self.num_envs, 1, 2))  # (worlds, drones, 2), as check_actions
         self._generators: list[np.random.Generator] | None = None
 
@@ -187,7 +173,11 @@ def _merge(obs, fresh, rows: np.ndarray):
 def make_vec_env(
     env_id: str = ENV_ID, num_envs: int = 16, seed: int | None = 0, **env_kwargs: Any
 ) -> FlockwardVecEnv:
-    """An SB3 VecEnv of ``num_envs`` worlds; world i is seeded ``seed + i`` at the first reset."""
+    """An SB3 VecEnv of ``num_envs`` worlds; world i is seeded ``seed + i`` at the first reset.
+
+    ``env_kwargs`` are the fields of flockward.task.env_config.EnvConfig (scenario, overrides,
+    observation, reward, ...), or ``config=`` one EnvConfig.
+    """
     if env_id != ENV_ID:
         raise ValueError(f"env_id = {env_id!r}: flockward registers only {ENV_ID!r}")
     env = FlockwardVecEnv(num_envs, **env_kwargs)

@@ -23,6 +23,7 @@ from typing import Any
 import numpy as np
 
 from flockward.config.scenarios import ConfigError, list_scenarios, load_scenario
+from flockward.task.env_config import EnvConfig
 
 ALGORITHMS = ("ppo", "sac")
 
@@ -84,7 +85,14 @@ class TrainConfig:
     net_arch: tuple[int, ...] = (64, 64)
     hyperparameters: dict[str, Any] = field(default_factory=dict)
     pretrain: dict[str, Any] | None = None  # behaviour cloning of a scripted expert, see PRETRAIN
+    observation: str = "vector"  # shipped observation name or import path package.module:Name
+    reward: str = "herding"  # shipped reward name or import path package.module:Name
     source_file: str = ""
+
+    @property
+    def env_options(self) -> dict[str, Any]:
+        """Environment arguments shared by training, demonstrations and validation."""
+        return {"observation": self.observation, "reward": self.reward}
 
 
 _TOP_KEYS: dict[str, tuple[type, float, float]] = {
@@ -123,6 +131,7 @@ def load_train_config(path: str | Path) -> TrainConfig:
     except tomllib.TOMLDecodeError as error:
         raise ConfigError(f"{label}: invalid TOML: {error}") from None
     allowed = {"name", "algorithm", "scenarios", "overrides", "eval_suite", "net_arch", "pretrain"}
+    allowed |= {"observation", "reward"}
     allowed |= set(_TOP_KEYS) | set(ALGORITHMS)
     for key in raw:
         if key not in allowed:
@@ -223,6 +232,17 @@ def load_train_config(path: str | Path) -> TrainConfig:
     eval_suite = raw.get("eval_suite", "validation")
     if not isinstance(eval_suite, str):
         raise ConfigError(f"{label}: key 'eval_suite' = {eval_suite!r}: must be a suite name")
+    parts = {key: raw[key] for key in ("observation", "reward") if key in raw}
+    for key, value in parts.items():
+        if not isinstance(value, str):
+            raise ConfigError(
+                f"{label}: key '{key}' = {value!r}: must be a name or an import path "
+                "'package.module:Name'"
+            )
+    try:
+        EnvConfig.from_options(**parts)
+    except ValueError as error:
+        raise ConfigError(f"{label}: key {error}") from None
     return TrainConfig(
         name=name,
         algorithm=algorithm,
@@ -233,6 +253,7 @@ def load_train_config(path: str | Path) -> TrainConfig:
         hyperparameters=hyper,
         pretrain=pretrain,
         source_file=label,
+        **parts,
         **top,
     )
 
@@ -248,7 +269,11 @@ def make_training_env(config: TrainConfig):
     for scenario, worlds in zip(config.scenarios, shares, strict=True):
         parts.append(
             make_vec_env(
-                num_envs=worlds, seed=first_seed, scenario=scenario, overrides=config.overrides
+                num_envs=worlds,
+                seed=first_seed,
+                scenario=scenario,
+                overrides=config.overrides,
+                **config.env_options,
             )
         )
         first_seed += worlds
@@ -287,7 +312,7 @@ def demonstrations(config: TrainConfig) -> tuple[np.ndarray, np.ndarray]:
         for episode in range(config.pretrain["episodes"]):
             seed = DEMO_SEED + 1000 * k + episode
             play_episode(scenario, make_controller(config.pretrain["expert"]), seed,
-                         on_action=record)  # fmt: skip
+                         env_kwargs=config.env_options, on_action=record)  # fmt: skip
     return np.stack(observations), np.stack(actions)
 
 
@@ -313,7 +338,7 @@ def behaviour_clone(model, observations: np.ndarray, actions: np.ndarray, config
     return loss.item()
 
 
-def validate(model, suite_name: str) -> float:
+def validate(model, suite_name: str, env_options: dict[str, Any] | None = None) -> float:
     """Mean headline score of the deterministic policy over the validation suite."""
     from flockward.bench.episode import play_episode
     from flockward.bench.leaderboard import episode_score
@@ -328,7 +353,9 @@ def validate(model, suite_name: str) -> float:
             scenarios[spec.family] = next(
                 e.scenario for e in suite.entries if e.family == spec.family
             )
-        record, _ = play_episode(scenarios[spec.family], controller, spec.seed)
+        record, _ = play_episode(
+            scenarios[spec.family], controller, spec.seed, env_kwargs=env_options
+        )
         scores.append(episode_score(record.as_dict()))
     return float(np.mean(scores))
 
@@ -490,7 +517,7 @@ def train(config: TrainConfig, run_dir: str | Path, resume: bool = False, progre
 
     def _evaluate(current, steps: int) -> None:
         """Validate, log, and keep the best-scoring policy as best_model.zip."""
-        score = validate(current, config.eval_suite)
+        score = validate(current, config.eval_suite, config.env_options)
         if not evals or score > max(e[1] for e in evals):
             _save_atomic(current, run_dir / "best_model.zip")
         evals.append((steps, score, _wall()))

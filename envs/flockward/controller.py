@@ -9,13 +9,22 @@ from __future__ import annotations
 
 import importlib
 from dataclasses import dataclass
+from enum import StrEnum
 from typing import Any
 
 import numpy as np
 
 from flockward.sim.types import FlockParams, Scenario
 
-INFORMATION_LEVELS = ("observation", "state")
+
+class InformationLevel(StrEnum):
+    """What a controller may see; each member equals its string, as result files store it."""
+
+    OBSERVATION = "observation"  # the Gymnasium observation only
+    STATE = "state"  # the observation and privileged simulator state
+
+
+INFORMATION_LEVELS = tuple(level.value for level in InformationLevel)
 
 
 @dataclass(frozen=True)
@@ -35,7 +44,7 @@ class Controller:
     """Base class: override ``act``; override ``reset`` if the controller keeps memory."""
 
     name: str = "unnamed"
-    information_level: str = "observation"
+    information_level: str = InformationLevel.OBSERVATION
 
     def reset(self, scenario: Scenario, seed: int | None = None) -> None:
         """Called before each episode with the scenario and the episode's seed."""

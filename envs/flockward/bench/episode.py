@@ -9,9 +9,10 @@ from typing import Any
 
 import numpy as np
 
-from flockward.controller import Controller, StateView
+from flockward.controller import Controller, InformationLevel, StateView
 from flockward.sim.types import Scenario
 from flockward.task.env import DivertEnv
+from flockward.task.outcome import Outcome
 
 
 @dataclass(frozen=True)
@@ -92,7 +93,7 @@ def play_episode(
         return _failed(scenario, seed, env, f"reset raised {type(error).__name__}: {error}"), []
     task = env.task
     state = task.state
-    wants_state = controller.information_level == "state"
+    wants_state = controller.information_level == InformationLevel.STATE
     dt = scenario.episode.dt
     max_accel = task.world.pursuer_limits[0, :, 1]  # (P,) m/s^2
     d0 = max(info["diameter"], 1e-9)
@@ -106,7 +107,7 @@ def play_episode(
     energy = 0.0
     total = 0.0
     step = 0
-    outcome = "timeout"
+    outcome = Outcome.TIMEOUT
     error = None
     success_time = None
     breached = int(task.ever_inside[0].sum())
@@ -128,10 +129,10 @@ def play_episode(
         try:
             action = _checked_action(controller.act(obs, view))
         except ControllerFault as fault:
-            outcome, error = "error", str(fault)
+            outcome, error = Outcome.ERROR, str(fault)
             break
         except Exception as fault:
-            outcome, error = "error", f"act raised {type(fault).__name__}: {fault}"
+            outcome, error = Outcome.ERROR, f"act raised {type(fault).__name__}: {fault}"
             break
         if on_action is not None:
             on_action(obs, action)
@@ -151,14 +152,14 @@ def play_episode(
             frames.append(_frame(state, step, info))
         if terminated or truncated:
             outcome = info["outcome"]
-            if outcome == "success":
+            if outcome == Outcome.SUCCESS:
                 success_time = step * dt
             break
     record = EpisodeRecord(
         scenario=scenario.name,
         seed=int(seed),
         birds=int(state.count[0]),
-        success=outcome == "success",
+        success=outcome == Outcome.SUCCESS,
         outcome=outcome,
         steps=step,
         time_to_success=success_time,
@@ -187,7 +188,7 @@ def _frame(state, step: int, info: dict[str, Any]) -> dict[str, Any]:
         "goal_distance": info.get("goal_distance", math.nan),
         "diameter": info.get("diameter", math.nan),
         "n_components": info.get("n_components", 1),
-        "outcome": info.get("outcome", "running"),
+        "outcome": info.get("outcome", Outcome.RUNNING),
     }
 
 
@@ -197,7 +198,7 @@ def _failed(scenario: Scenario, seed: int, env: DivertEnv, error: str) -> Episod
         seed=int(seed),
         birds=int(env.task.state.count[0]),
         success=False,
-        outcome="error",
+        outcome=Outcome.ERROR,
         steps=0,
         time_to_success=None,
         breached_birds=0,

@@ -6,6 +6,9 @@ The result file ``RESULTS_DIR/<suite>/<controller-slug>.json`` is one JSON objec
      "information_level", "controller_parameters", "provenance": {...},
      "episodes": [{"family", "scenario", "seed", "index", **EpisodeRecord.as_dict()}, ...]}
 
+plus ``"environment": {"observation": ..., "reward": ...}`` when the run set environment
+arguments (absent for the defaults).
+
 with episodes sorted by index. It is rewritten atomically (temp file in the same directory,
 fsync, rename) every few episodes and at the end, so an interrupted run keeps what it finished
 and a rerun plays only the missing episodes. Strict JSON: a non-finite number (the closest
@@ -30,6 +33,7 @@ import tempfile
 import time
 from collections.abc import Callable, Iterable
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from dataclasses import fields
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
@@ -43,6 +47,7 @@ from flockward.bench.suites import EpisodeSpec, Suite, suite_hash
 from flockward.config.scenarios import scenario_hash
 from flockward.controller import INFORMATION_LEVELS, Controller
 from flockward.sim.types import Scenario
+from flockward.task.env_config import EnvConfig
 
 __all__ = [
     "RESULTS_FORMAT",
@@ -141,7 +146,12 @@ def _finite(value: Any) -> Any:
     return value
 
 
-def _play(factory: ControllerFactory, scenario: Scenario, spec: EpisodeSpec) -> dict[str, Any]:
+def _play(
+    factory: ControllerFactory,
+    scenario: Scenario,
+    spec: EpisodeSpec,
+    env_options: dict[str, Any] | None = None,
+) -> dict[str, Any]:
     """One episode as a result row; top-level so worker processes can run it."""
     try:
         controller = factory()
@@ -149,7 +159,7 @@ def _play(factory: ControllerFactory, scenario: Scenario, spec: EpisodeSpec) -> 
         raise RuntimeError(
             f"the controller factory raised {type(error).__name__}: {error}"
         ) from None
-    record, _ = play_episode(scenario, controller, spec.seed)
+    record, _ = play_episode(scenario, controller, spec.seed, env_kwargs=env_options)
     row = {
         "family": spec.family,
         "scenario": spec.scenario_name,
@@ -181,6 +191,27 @@ def _write_atomic(path: Path, data: dict[str, Any]) -> None:
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
+
+
+def _environment(env_options: dict[str, Any] | None) -> dict[str, Any] | None:
+    """The episodes' environment arguments, checked, as JSON data; None for the defaults."""
+    defaults = {f.name: f.default for f in fields(EnvConfig)}
+    env_options = {k: v for k, v in (env_options or {}).items() if defaults.get(k, v) != v}
+    if not env_options:
+        return None
+    fixed = sorted(set(env_options) & {"scenario", "overrides", "render_mode"})
+    if fixed:
+        raise ValueError(
+            f"environment argument(s) {', '.join(fixed)}: set by the suite, not by the run"
+        )
+    EnvConfig.from_options(**env_options)
+    try:
+        return json.loads(json.dumps(env_options, allow_nan=False))
+    except (TypeError, ValueError):
+        raise ValueError(
+            f"environment arguments {env_options!r}: give observation and reward by name or "
+            "import path 'package.module:Name', so the result file can record them"
+        ) from None
 
 
 def _header(suite: Suite, controller_name: str, controller: Controller) -> dict[str, Any]:
@@ -218,11 +249,12 @@ def _resume(path: Path, header: dict[str, Any], specs: list[EpisodeSpec]) -> dic
         ("controller", "controller"),
         ("information_level", "information level"),
         ("controller_parameters", "controller parameters"),
+        ("environment", "environment arguments"),
     ):
-        if data.get(key) != header[key]:
+        if data.get(key) != header.get(key):
             raise ResultsConflict(
                 f"{path}: holds results of a different {what} ({data.get(key)!r}, this run "
-                f"{header[key]!r}); {advice}"
+                f"{header.get(key)!r}); {advice}"
             )
     episodes = data.get("episodes")
     if not isinstance(episodes, list) or not isinstance(data.get("provenance"), dict):
@@ -255,6 +287,7 @@ def run_suite(
     limit: int | None = None,
     slug: str | None = None,
     backend: Backend | None = None,
+    env_options: dict[str, Any] | None = None,
 ) -> Path:
     """Play the suite's missing episodes with fresh controllers and return the result file.
 
@@ -265,7 +298,10 @@ def run_suite(
     derived from ``controller_name``. ``backend`` plays the episodes instead of local workers
     (see Backend); the file is again the same. Raises ResultsConflict, leaving the file
     untouched, if the file holds another suite version, controller or parameter set. A resumed
-    file keeps the provenance of the session that created it.
+    file keeps the provenance of the session that created it. ``env_options`` are environment
+    arguments for every episode (EnvConfig fields other than scenario, overrides and
+    render_mode, e.g. ``{"observation": "pkg.mod:MyObs"}``), recorded in the file's header
+    under "environment" when given.
     """
     if workers < 1:
         raise ValueError(f"workers = {workers}: must be an integer >= 1")
@@ -274,6 +310,9 @@ def run_suite(
     if limit is not None and limit < 0:
         raise ValueError(f"limit = {limit}: must be an integer >= 0")
     header = _header(suite, controller_name, controller_factory())
+    environment = _environment(env_options)
+    if environment is not None:
+        header["environment"] = environment
     path = result_path(results_dir, suite.name, slug or controller_slug(controller_name))
     specs = suite.episodes()
     if path.exists():
@@ -292,7 +331,9 @@ def run_suite(
     scenarios = suite.scenarios
     bar = _progress_bar(len(specs), len(done), f"{suite.name}/{path.stem}", progress)
     unsaved, last_save = 0, time.monotonic()
-    calls = [(controller_factory, scenarios[spec.scenario_name], spec) for spec in pending]
+    calls = [
+        (controller_factory, scenarios[spec.scenario_name], spec, environment) for spec in pending
+    ]
     rows = _rows(calls, workers) if backend is None else backend(_play, calls)
     try:
         for row in rows:

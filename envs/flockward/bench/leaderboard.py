@@ -46,9 +46,12 @@ from typing import Any
 
 import numpy as np
 
+from flockward.controller import INFORMATION_LEVELS
+from flockward.task.outcome import Outcome
+
 RESULTS_FORMAT = "flockward-results/1"
 OUTPUT_STEM = "leaderboard"  # leaderboard.md / .png (and any leaderboard.*) are never inputs
-OUTCOMES = ("success", "breach", "timeout", "error")
+OUTCOMES = tuple(o.value for o in Outcome if o is not Outcome.RUNNING)  # how episodes end
 ROW_KEYS = (
     "controller",
     "information_level",
@@ -79,7 +82,7 @@ class LeaderboardError(ValueError):
 
 def episode_score(ep: Mapping[str, Any]) -> float:
     """The headline score in [0, 1] of one episode record (see the module docstring)."""
-    if ep["outcome"] == "error":
+    if ep["outcome"] == Outcome.ERROR:
         return 0.0
     kept = float(ep["breached_birds"] == 0)
     cohesion = min(1.0, max(0.0, float(ep["min_largest_fraction"])))
@@ -163,9 +166,9 @@ def _episode_problem(ep: Any) -> str | None:
     outcome = ep.get("outcome")
     if outcome not in OUTCOMES:
         return f"has outcome {outcome!r}; allowed: {', '.join(OUTCOMES)}"
-    if not isinstance(ep.get("success"), bool) or ep["success"] != (outcome == "success"):
+    if not isinstance(ep.get("success"), bool) or ep["success"] != (outcome == Outcome.SUCCESS):
         return "has 'success' that is not a boolean matching its outcome"
-    if outcome == "error":
+    if outcome == Outcome.ERROR:
         return None  # an error scores 0 whatever its other fields hold
     birds, breached = ep.get("birds"), ep.get("breached_birds")
     if not (_is_int(birds) and birds >= 1):
@@ -178,7 +181,7 @@ def _episode_problem(ep: Any) -> str | None:
     if not (_is_num(mlf) and 0.0 <= mlf <= 1.0):
         return "has 'min_largest_fraction' that is not a number in [0, 1]"
     t = ep.get("time_to_success")
-    if outcome == "success" and not (_is_num(t) and t >= 0):
+    if outcome == Outcome.SUCCESS and not (_is_num(t) and t >= 0):
         return "is a success without a non-negative 'time_to_success'"
     return None
 
@@ -200,7 +203,7 @@ def _file_problem(data: Any, suite: str, expected_hash: str) -> str | None:
         return "has no integer 'suite_version'"
     if not isinstance(data.get("controller"), str) or not data["controller"]:
         return "has no controller name"
-    if data.get("information_level") not in ("observation", "state"):
+    if data.get("information_level") not in INFORMATION_LEVELS:
         return "has 'information_level' that is neither 'observation' nor 'state'"
     episodes = data.get("episodes")
     if not isinstance(episodes, list) or not episodes:
@@ -246,7 +249,7 @@ def load_results(results_dir: str | os.PathLike[str], suite: str, expected_hash:
 
 def _row(result: Mapping[str, Any], reps: int, seed: int) -> dict[str, Any]:
     eps = result["episodes"]
-    ok = [ep for ep in eps if ep["outcome"] != "error"]
+    ok = [ep for ep in eps if ep["outcome"] != Outcome.ERROR]
     n = len(eps)
     by_task: dict[str, list[float]] = {}
     for ep in eps:

@@ -9,17 +9,22 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
+import gymnasium as gym
 import numpy as np
 
-from flockward.sim.geometry import zone_arrays
+from flockward.sim.geometry import zone_arrays, zone_center
 from flockward.sim.metrics import StepMetrics, step_metrics
-from flockward.sim.types import Scenario
 from flockward.sim.world import World
-from flockward.task import reward as rewards
-from flockward.task.observation import ObservationBuilder
+from flockward.task.context import Scales, StepContext, TaskSetting
+from flockward.task.env_config import EnvConfig
+from flockward.task.outcome import Outcome
+from flockward.task.reward import total
+from flockward.task.state import WorldView
 
-# Why an episode ended, as reported in info["outcome"].
-RUNNING, SUCCESS, BREACH, TIMEOUT = "running", "success", "breach", "timeout"
+
+def action_space() -> gym.spaces.Box:
+    """The action space of one world: the drone's acceleration as a fraction of its limit."""
+    return gym.spaces.Box(-1.0, 1.0, (2,), np.float32)
 
 
 @dataclass
@@ -34,39 +39,54 @@ class StepBatch:
 
 
 class DivertTask:
-    """Batched episodes of one scenario, each world with its own generator and bookkeeping."""
+    """Batched episodes of one scenario, each world with its own generator and bookkeeping.
 
-    def __init__(
-        self,
-        scenario: Scenario,
-        worlds: int = 1,
-        observation: str = "vector",
-        rim_birds: int = 4,
-        max_birds: int | None = None,
-        neighbour_search: str = "auto",
-        max_steps: int | None = None,
-    ):
+    ``config`` holds the environment's arguments (see EnvConfig); the task takes its own copies
+    of the observation and reward objects.
+    """
+
+    def __init__(self, config: EnvConfig, worlds: int = 1):
+        self.config = config
+        scenario = config.load_scenario()
+        config.check_scenario(scenario)
         self.scenario = scenario
         self.n_worlds = worlds
-        self.world = World(scenario, worlds, neighbour_search)
-        self.protected_arr = zone_arrays(scenario.site.protected)
-        self.goal_arr = zone_arrays(scenario.site.goal)
-        self.observations = ObservationBuilder(
-            scenario, worlds, self.protected_arr, self.goal_arr, observation, rim_birds, max_birds
+        self.world = World(scenario, worlds, config.neighbour_search)
+        self.setting = TaskSetting(
+            scenario=scenario,
+            worlds=worlds,
+            protected_arr=zone_arrays(scenario.site.protected),
+            goal_arr=zone_arrays(scenario.site.goal),
+            goal_center=zone_center(scenario.site.goal),
+            scales=Scales.of(scenario),
+            rim_birds=config.rim_birds,
+            max_birds=scenario.max_birds if config.max_birds is None else config.max_birds,
         )
-        if max_steps is not None and max_steps < 1:
-            raise ValueError(f"max_episode_steps = {max_steps}: must be a positive integer")
-        self.max_steps = scenario.episode.max_steps if max_steps is None else int(max_steps)
-        self.site_scale = self.observations.scales.site
+        self.observation = config.make_observation()
+        self.reward = config.make_reward()
+        for part in (self.observation, self.reward):
+            setup = getattr(part, "setup", None)
+            if callable(setup):
+                setup(self.setting)
+        steps = config.max_episode_steps
+        self.max_steps = scenario.episode.max_steps if steps is None else int(steps)
         self.link_radius = scenario.flock.linking_radius
         self.ever_inside = np.zeros((worlds, self.world.max_birds), dtype=np.bool_)
-        self.potential = np.zeros(worlds)
-        self.approach = np.zeros(worlds)
         self.metrics: StepMetrics | None = None
+        self._all = np.ones(worlds, dtype=np.bool_)
+        self._none = np.zeros(worlds, dtype=np.bool_)
 
     @property
     def state(self):
         return self.world.state
+
+    def view(self, index: int) -> WorldView:
+        """A read-only copy of world ``index``'s bird and drone state."""
+        return WorldView.of(self.world.state, index)
+
+    def observation_space(self) -> gym.spaces.Space:
+        """The observation space of one world."""
+        return self.observation.space()
 
     def measure(self) -> StepMetrics:
         """Flock metrics of every world in the current state (one compiled call)."""
@@ -77,8 +97,8 @@ class DivertTask:
             s.count,
             s.pursuer_pos,
             self.link_radius,
-            self.protected_arr,
-            self.goal_arr,
+            self.setting.protected_arr,
+            self.setting.goal_arr,
         )
 
     def reset(self, indices, rngs=None):
@@ -89,16 +109,25 @@ class DivertTask:
             self.ever_inside[index] = False
         self.metrics = self.measure()
         self.ever_inside[indices] |= self.metrics.in_protected[indices]
-        self.potential[indices] = rewards.potential(
-            self.metrics.goal_distance[indices], self.site_scale
+        none = self._none
+        context = StepContext(
+            setting=self.setting,
+            state=self.world.state,
+            before=None,
+            metrics=self.metrics,
+            live=none,
+            terminated=none,
+            success=none,
+            failure=none,
+            truncated=none,
+            new_breaches=np.zeros(self.n_worlds, dtype=np.int64),
+            collided=none,
         )
-        self.approach[indices] = self._approach_potential(self.metrics)[indices]
-        return self.observations.build(self.world.state, self.metrics)
-
-    def _approach_potential(self, m: StepMetrics) -> np.ndarray:
-        s = self.world.state
-        gap = np.hypot(*(m.centroid - s.pursuer_pos[:, 0]).T)  # drone 0
-        return rewards.approach_potential(gap, self.scenario.flock.alarm_radius, self.site_scale)
+        for part in (self.reward, self.observation):
+            hook = getattr(part, "reset", None)
+            if callable(hook):
+                hook(context, indices)
+        return self.observation.build(context)
 
     def metrics_info(self) -> dict[str, np.ndarray]:
         """The latest flock metrics that a reset reports in its info."""
@@ -119,6 +148,7 @@ class DivertTask:
         ``birds_in_goal``, ``goal_distance``, ``collision``, ``steps``.
         """
         self.world.step(action, live)
+        before = self.metrics
         m = self.measure()
         self.metrics = m
         new_breaches = (m.in_protected & ~self.ever_inside).sum(axis=1)
@@ -133,28 +163,26 @@ class DivertTask:
         terminated = success | failure
         truncated = (self.world.steps >= self.max_steps) & ~terminated
         collided = m.nearest_distance < self.scenario.pursuer.safety_radius
-        after = rewards.potential(m.goal_distance, self.site_scale)
-        approach_after = self._approach_potential(m)
-        terms = rewards.reward_terms(
-            self.scenario.reward,
-            self.potential,
-            after,
-            self.approach,
-            approach_after,
-            terminated,
-            m.largest_fraction,
-            collided,
-            new_breaches,
-            success,
+        context = StepContext(
+            setting=self.setting,
+            state=self.world.state,
+            before=before,
+            metrics=m,
+            live=self._all if live is None else live,
+            terminated=terminated,
+            success=success,
+            failure=failure,
+            truncated=truncated,
+            new_breaches=new_breaches,
+            collided=collided,
         )
-        if live is None:
-            self.potential = after
-            self.approach = approach_after
-        else:
-            self.potential = np.where(live, after, self.potential)
-            self.approach = np.where(live, approach_after, self.approach)
+        terms = self.reward.terms(context)
         outcome = np.where(
-            success, SUCCESS, np.where(failure, BREACH, np.where(truncated, TIMEOUT, RUNNING))
+            success,
+            Outcome.SUCCESS,
+            np.where(
+                failure, Outcome.BREACH, np.where(truncated, Outcome.TIMEOUT, Outcome.RUNNING)
+            ),
         )
         info = {
             "reward_terms": terms,
@@ -171,8 +199,9 @@ class DivertTask:
             "collision": collided,
             "steps": self.world.steps.copy(),
         }
-        observation = self.observations.build(self.world.state, m)
-        return StepBatch(observation, rewards.total(terms), terminated, truncated, info)
+        observation = self.observation.build(context)
+        reward = total(terms, self.n_worlds)
+        return StepBatch(observation, reward, terminated, truncated, info)
 
 
 def check_actions(action, worlds: int) -> np.ndarray:
@@ -192,3 +221,14 @@ def check_actions(action, worlds: int) -> np.ndarray:
     if not np.all(np.isfinite(a)):
         raise ValueError(f"action contains NaN or inf: {np.asarray(action).tolist()}")
     return a
+
+
+def scalar_info(info: dict[str, Any], index: int) -> dict[str, Any]:
+    """World ``index``'s entries of a batched info dict, as Python scalars."""
+    out: dict[str, Any] = {}
+    for key, value in info.items():
+        if isinstance(value, dict):
+            out[key] = scalar_info(value, index)
+        else:
+            out[key] = value[index].item()
+    return out

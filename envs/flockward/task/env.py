@@ -3,37 +3,16 @@
 from __future__ import annotations
 
 from collections import deque
-from pathlib import Path
 from typing import Any
 
 import gymnasium as gym
 import numpy as np
 
-from flockward.config.scenarios import load_scenario
-from flockward.sim.types import Scenario
-from flockward.task.batched import DivertTask, check_actions
+from flockward.task.batched import DivertTask, action_space, check_actions, scalar_info
+from flockward.task.env_config import RENDER_MODES, EnvConfig
+from flockward.task.state import WorldView
 
 TRACK_LENGTH = 200  # steps of pursuer track kept for rendering
-
-
-def resolve_scenario(scenario: str | Path | Scenario, overrides=None) -> Scenario:
-    """A Scenario from a shipped name, a TOML path or an existing record (with overrides)."""
-    if isinstance(scenario, Scenario):
-        if overrides:
-            raise ValueError("overrides apply to a scenario name or file, not to a Scenario record")
-        return scenario
-    return load_scenario(scenario, overrides)
-
-
-def scalar_info(info: dict[str, Any], index: int) -> dict[str, Any]:
-    """World ``index``'s entries of a batched info dict, as Python scalars."""
-    out: dict[str, Any] = {}
-    for key, value in info.items():
-        if isinstance(value, dict):
-            out[key] = scalar_info(value, index)
-        else:
-            out[key] = value[index].item()
-    return out
 
 
 class DivertEnv(gym.Env):
@@ -51,14 +30,37 @@ class DivertEnv(gym.Env):
     inf raises ValueError.
 
     ## Observation space
-    ``observation="vector"`` (default): a float32 vector of 14 + 3k entries, k = ``rim_birds``
-    (see ``flockward.task.observation.GLOBAL_FIELDS`` and the README's table).
+    ``observation="vector"`` (default): a float32 vector of 14 + 3k entries, k = ``rim_birds``,
+    world frame (x east, y north). Site scale = distance from the flock's start to the goal
+    centre; near scale = the flock's alarm radius. Layout and bounds come from
+    ``flockward.task.observation.GLOBAL_FIELDS``:
+
+    | index | field | scaling | bounds |
+    | --- | --- | --- | --- |
+    | 0-1 | pursuer_velocity: drone velocity | / drone top speed | unbounded |
+    | 2-3 | centroid_offset: flock centroid minus drone position | / site scale | unbounded |
+    | 4-5 | flock_velocity: flock mean velocity | / cruise speed | unbounded |
+    | 6 | flock_diameter: smallest enclosing circle | / near scale | unbounded |
+    | 7 | largest_cluster: largest-cluster fraction | fraction | [0, 1] |
+    | 8-9 | protected_direction: centroid to nearest protected-zone edge | unit vector | [-1, 1] |
+    | 10 | protected_distance: signed, negative inside | / site scale | unbounded |
+    | 11-12 | goal_direction: centroid to goal-region centre | unit vector | [-1, 1] |
+    | 13 | goal_distance: signed centroid distance to the goal edge | / site scale | unbounded |
+    | 14+3r, 15+3r | rim_offset: r-th most threatening rim bird - drone | / near scale | unbounded |
+    | 16+3r | rim_present: 1 if that rim bird exists, 0 if padded | mask | [0, 1] |
+
     ``observation="dict"``: ``{"context": that vector, "birds": (max_birds, 4) relative position
-    and velocity of every bird, "mask": (max_birds,) 1 for a real bird}``.
+    and velocity of every bird, "mask": (max_birds,) 1 for a real bird}``. Any other observation
+    is an object (or an import path ``package.module:Name`` of its class) following
+    ``flockward.task.observation.Observation``.
 
     ## Rewards
-    A weighted sum of named terms (progress shaping, fragmentation, collision, breach, time,
-    success), weights from the scenario's ``[reward]`` table; ``info["reward_terms"]`` holds each.
+    The sum of named terms, each in ``info["reward_terms"]``, weights from the scenario's
+    ``[reward]`` table: ``progress`` (potential-based shaping toward the goal), ``approach``
+    (the same shaping on the drone's distance to the flock beyond the alarm radius),
+    ``fragmentation``, ``collision``, ``breach``, ``time``, ``success`` (see
+    ``flockward.task.reward``). ``reward=`` takes another object (or import path) following
+    ``flockward.task.reward.Reward``.
 
     ## Starting state
     Drawn from the scenario at every reset: formation, heading, position, count and gains within
@@ -69,13 +71,22 @@ class DivertEnv(gym.Env):
     (more than ``max_breaching_birds`` distinct birds have entered the protected zone); truncated
     at the scenario's step limit or ``max_episode_steps``.
 
+    ## State
+    ``env.unwrapped.state``: a read-only ``WorldView`` of the world after the latest reset or step
+    (``bird_pos`` and ``bird_vel`` (count, 2) of the active birds, ``drone_pos``, ``drone_vel``
+    (P, 2) of every drone, ``count``); its arrays are copies that raise ValueError when
+    written to.
+
     ## Arguments
+    The fields of ``flockward.task.env_config.EnvConfig``, as keywords or as one EnvConfig:
     ``scenario`` (shipped name, TOML path or Scenario), ``overrides`` (dotted config keys, checked
-    like the file's), ``observation``, ``rim_birds``, ``max_birds``, ``render_mode``,
-    ``neighbour_search`` ("auto", "all-pairs", "grid"), ``max_episode_steps``.
+    like the file's), ``observation``, ``reward``, ``rim_birds``, ``max_birds``,
+    ``neighbour_search`` ("auto", "all-pairs", "grid"), ``max_episode_steps``, ``render_mode``.
 
     ## Version history
-    v0: first release.
+    v0: first release. Later changes that leave every observation value, reward and episode as
+    they were: observation and reward as objects passed in; finite bounds on the bounded
+    observation entries (unit vectors, fractions, masks).
 
     >>> import gymnasium as gym, flockward
     >>> env = gym.make("flockward/Divert-v0", scenario="headon")
@@ -84,38 +95,23 @@ class DivertEnv(gym.Env):
     (26,)
     """
 
-    metadata = {"render_modes": ["human", "rgb_array"], "render_fps": 20}
+    metadata = {"render_modes": list(RENDER_MODES), "render_fps": 20}
 
-    def __init__(
-        self,
-        scenario: str | Path | Scenario = "headon",
-        overrides: dict[str, Any] | None = None,
-        observation: str = "vector",
-        rim_birds: int = 4,
-        max_birds: int | None = None,
-        render_mode: str | None = None,
-        neighbour_search: str = "auto",
-        max_episode_steps: int | None = None,
-    ):
-        if render_mode is not None and render_mode not in self.metadata["render_modes"]:
-            allowed = ", ".join(self.metadata["render_modes"])
-            raise ValueError(f"render_mode = {render_mode!r}: allowed None, {allowed}")
-        self.scenario = resolve_scenario(scenario, overrides)
-        self.task = DivertTask(
-            self.scenario,
-            1,
-            observation,
-            rim_birds,
-            max_birds,
-            neighbour_search,
-            max_episode_steps,
-        )
-        self.render_mode = render_mode
-        self.action_space = gym.spaces.Box(-1.0, 1.0, (2,), np.float32)
-        self.observation_space = self.task.observations.space()
+    def __init__(self, config: EnvConfig | Any = None, **options: Any):
+        self.config = EnvConfig.from_options(config, **options)
+        self.task = DivertTask(self.config, 1)
+        self.scenario = self.task.scenario
+        self.render_mode = self.config.render_mode
+        self.action_space = action_space()
+        self.observation_space = self.task.observation_space()
         self._track: deque[np.ndarray] = deque(maxlen=TRACK_LENGTH)
         self._last_info: dict[str, Any] = {}
         self._renderer = None
+
+    @property
+    def state(self) -> WorldView:
+        """A read-only snapshot of the world (see the class docstring's State section)."""
+        return self.task.view(0)
 
     def reset(self, *, seed: int | None = None, options: dict[str, Any] | None = None):
         super().reset(seed=seed)

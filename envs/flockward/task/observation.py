@@ -1,61 +1,96 @@
 """What a learned policy sees: a fixed-size vector, or a padded per-bird dictionary.
 
-Both are built batched from the step's metrics, without a Python loop over worlds or birds. Lengths
-are scaled by two scales of the scenario (``Scales``): the site scale for where the flock is on the
-airfield, the alarm radius for what happens near the pursuer; speeds by the pursuer's top speed or
-the flock's cruise speed. Directions are in the world frame (x east, y north).
+An observation is an object with ``space()`` and ``build(context)`` (see ``Observation``). The
+shipped ones, ``VectorObservation`` ("vector") and ``DictObservation`` ("dict"), are built
+batched from the step's metrics, without a Python loop over worlds or birds. Lengths are scaled by
+two scales of the scenario (``Scales``): the site scale for where the flock is on the airfield, the
+alarm radius for what happens near the pursuer; speeds by the pursuer's top speed or the flock's
+cruise speed. Directions are in the world frame (x east, y north).
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from abc import ABC, abstractmethod
+from typing import Any
 
 import gymnasium as gym
 import numba
 import numpy as np
 
-from flockward.sim.geometry import _signed_distance_xy, nearest_boundary_point, zone_center
-from flockward.sim.metrics import StepMetrics
-from flockward.sim.types import Scenario, WorldState
+from flockward.sim.geometry import _signed_distance_xy, nearest_boundary_point
+from flockward.task.context import Scales, StepContext, TaskSetting
 
-OBSERVATION_MODES = ("vector", "dict")
+__all__ = [
+    "GLOBAL_FIELDS",
+    "GLOBAL_SIZE",
+    "OBSERVATION_MODES",
+    "RIM_FIELDS",
+    "DictObservation",
+    "Observation",
+    "Scales",
+    "VectorObservation",
+    "vector_bounds",
+]
 
-# Field layout of the vector observation: (name, width). The README's table follows this order.
+INF = math.inf
+
+# Field layout of the vector observation: (name, width, low, high). Every index below, the
+# compiled kernel's and the bounds of the space, is derived from this table; the README's and
+# DivertEnv's tables follow its order. Bounds are finite only where the value is bounded by
+# construction: unit vectors, fractions.
 GLOBAL_FIELDS = (
-    ("pursuer_velocity", 2),  # pursuer velocity / pursuer max speed
-    ("centroid_offset", 2),  # (flock centroid - pursuer) / site scale
-    ("flock_velocity", 2),  # flock mean velocity / cruise speed
-    ("flock_diameter", 1),  # smallest-enclosing-circle diameter / alarm radius
-    ("largest_cluster", 1),  # share of birds in the largest fragment, [0, 1]
-    ("protected_direction", 2),  # unit vector, centroid -> nearest protected-zone edge point
-    ("protected_distance", 1),  # signed centroid distance to that edge / site scale (<0 inside)
-    ("goal_direction", 2),  # unit vector, centroid -> goal-region centre
-    ("goal_distance", 1),  # signed centroid distance to the goal edge / site scale (<0 inside)
+    ("pursuer_velocity", 2, -INF, INF),  # pursuer velocity / pursuer max speed
+    ("centroid_offset", 2, -INF, INF),  # (flock centroid - pursuer) / site scale
+    ("flock_velocity", 2, -INF, INF),  # flock mean velocity / cruise speed
+    ("flock_diameter", 1, -INF, INF),  # smallest-enclosing-circle diameter / alarm radius
+    ("largest_cluster", 1, 0.0, 1.0),  # share of birds in the largest fragment
+    ("protected_direction", 2, -1.0, 1.0),  # unit vector, centroid -> nearest protected-zone edge
+    ("protected_distance", 1, -INF, INF),  # signed centroid distance to that edge / site scale
+    ("goal_direction", 2, -1.0, 1.0),  # unit vector, centroid -> goal-region centre
+    ("goal_distance", 1, -INF, INF),  # signed centroid distance to the goal edge / site scale
 )
-GLOBAL_SIZE = sum(width for _, width in GLOBAL_FIELDS)
-RIM_FIELDS = 3  # per rim bird: offset from the pursuer / alarm radius (2), present mask (1)
+GLOBAL_SIZE = sum(field[1] for field in GLOBAL_FIELDS)
+# Per rim bird: offset from the pursuer / alarm radius (2, unbounded), present mask (1, {0, 1}).
+RIM_LAYOUT = (("rim_offset", 2, -INF, INF), ("rim_present", 1, 0.0, 1.0))
+RIM_FIELDS = sum(field[1] for field in RIM_LAYOUT)
 
 
-@dataclass(frozen=True)
-class Scales:
-    """The lengths and speeds observations are divided by, derived once per scenario."""
+def _offsets(layout) -> dict[str, int]:
+    out, start = {}, 0
+    for name, width, _, _ in layout:
+        out[name] = start
+        start += width
+    return out
 
-    site: float  # m, flock start to goal centre
-    near: float  # m, the flock's alarm radius
-    pursuer_speed: float  # m/s
-    cruise_speed: float  # m/s
 
-    @classmethod
-    def of(cls, scenario: Scenario) -> Scales:
-        start = np.asarray(scenario.site.flock_start)
-        goal = np.asarray(zone_center(scenario.site.goal))
-        return cls(
-            site=max(float(np.hypot(*(goal - start))), 1.0),
-            near=scenario.flock.alarm_radius,
-            pursuer_speed=scenario.pursuer.max_speed,
-            cruise_speed=scenario.flock.cruise_speed,
-        )
+OFFSET = _offsets(GLOBAL_FIELDS)  # first index of each global field
+RIM_OFFSET = _offsets(RIM_LAYOUT)  # index of each rim field within one rim bird's entries
+
+# Module-level integers, so the compiled kernel reads them as compile-time constants.
+_PURSUER_VEL = OFFSET["pursuer_velocity"]
+_CENTROID = OFFSET["centroid_offset"]
+_FLOCK_VEL = OFFSET["flock_velocity"]
+_DIAMETER = OFFSET["flock_diameter"]
+_LARGEST = OFFSET["largest_cluster"]
+_PROTECTED_DIR = OFFSET["protected_direction"]
+_PROTECTED_DIST = OFFSET["protected_distance"]
+_GOAL_DIR = OFFSET["goal_direction"]
+_GOAL_DIST = OFFSET["goal_distance"]
+_RIM_START = GLOBAL_SIZE
+_RIM_STRIDE = RIM_FIELDS
+_RIM_OFFSET = RIM_OFFSET["rim_offset"]
+_RIM_PRESENT = RIM_OFFSET["rim_present"]
+
+
+def vector_bounds(rim_birds: int) -> tuple[np.ndarray, np.ndarray]:
+    """(low, high) float32 arrays of the vector observation with ``rim_birds`` rim birds."""
+    low: list[float] = []
+    high: list[float] = []
+    for _, width, lo, hi in GLOBAL_FIELDS + RIM_LAYOUT * rim_birds:
+        low += [lo] * width
+        high += [hi] * width
+    return np.array(low, dtype=np.float32), np.array(high, dtype=np.float32)
 
 
 @numba.njit(cache=True)
@@ -111,136 +146,183 @@ def _vector_obs(
     vc,
     out,
 ):
+    """Fill ``out`` (B, GLOBAL_SIZE + RIM_FIELDS * k) at the indices of the field table."""
     worlds = pos.shape[0]
     k = rim_idx.shape[1]
     for b in range(worlds):
         cx = centroid[b, 0]
         cy = centroid[b, 1]
-        out[b, 0] = pvel[b, 0] / vp
-        out[b, 1] = pvel[b, 1] / vp
-        out[b, 2] = (cx - ppos[b, 0]) / site
-        out[b, 3] = (cy - ppos[b, 1]) / site
-        out[b, 4] = mean_vel[b, 0] / vc
-        out[b, 5] = mean_vel[b, 1] / vc
-        out[b, 6] = diameter[b] / near
-        out[b, 7] = largest[b]
+        out[b, _PURSUER_VEL] = pvel[b, 0] / vp
+        out[b, _PURSUER_VEL + 1] = pvel[b, 1] / vp
+        out[b, _CENTROID] = (cx - ppos[b, 0]) / site
+        out[b, _CENTROID + 1] = (cy - ppos[b, 1]) / site
+        out[b, _FLOCK_VEL] = mean_vel[b, 0] / vc
+        out[b, _FLOCK_VEL + 1] = mean_vel[b, 1] / vc
+        out[b, _DIAMETER] = diameter[b] / near
+        out[b, _LARGEST] = largest[b]
         ex, ey = nearest_boundary_point(protected_arr, cx, cy)
         dx = ex - cx
         dy = ey - cy
         d = math.hypot(dx, dy)
-        out[b, 8] = dx / d if d > 0 else 0.0
-        out[b, 9] = dy / d if d > 0 else 0.0
-        out[b, 10] = _signed_distance_xy(protected_arr, cx, cy) / site
+        out[b, _PROTECTED_DIR] = dx / d if d > 0 else 0.0
+        out[b, _PROTECTED_DIR + 1] = dy / d if d > 0 else 0.0
+        out[b, _PROTECTED_DIST] = _signed_distance_xy(protected_arr, cx, cy) / site
         dx = goal_cx - cx
         dy = goal_cy - cy
         d = math.hypot(dx, dy)
-        out[b, 11] = dx / d if d > 0 else 0.0
-        out[b, 12] = dy / d if d > 0 else 0.0
-        out[b, 13] = _signed_distance_xy(goal_arr, cx, cy) / site
+        out[b, _GOAL_DIR] = dx / d if d > 0 else 0.0
+        out[b, _GOAL_DIR + 1] = dy / d if d > 0 else 0.0
+        out[b, _GOAL_DIST] = _signed_distance_xy(goal_arr, cx, cy) / site
         for r in range(k):
-            base = 14 + 3 * r
+            base = _RIM_START + _RIM_STRIDE * r
             i = rim_idx[b, r]
             if i >= 0:
-                out[b, base] = (pos[b, i, 0] - ppos[b, 0]) / near
-                out[b, base + 1] = (pos[b, i, 1] - ppos[b, 1]) / near
-                out[b, base + 2] = 1.0
+                out[b, base + _RIM_OFFSET] = (pos[b, i, 0] - ppos[b, 0]) / near
+                out[b, base + _RIM_OFFSET + 1] = (pos[b, i, 1] - ppos[b, 1]) / near
+                out[b, base + _RIM_PRESENT] = 1.0
             else:
-                out[b, base] = 0.0
-                out[b, base + 1] = 0.0
-                out[b, base + 2] = 0.0
+                out[b, base + _RIM_OFFSET] = 0.0
+                out[b, base + _RIM_OFFSET + 1] = 0.0
+                out[b, base + _RIM_PRESENT] = 0.0
 
 
-class ObservationBuilder:
-    """Builds observations of every world from the state and the step's metrics."""
+class Observation(ABC):
+    """What an observation implements. The task deep-copies the object it is given, so one
+    instance can configure several environments.
 
-    def __init__(
-        self,
-        scenario: Scenario,
-        worlds: int,
-        protected_arr: np.ndarray,
-        goal_arr: np.ndarray,
-        mode: str = "vector",
-        rim_birds: int = 4,
-        max_birds: int | None = None,
-    ):
-        if mode not in OBSERVATION_MODES:
-            raise ValueError(f"observation = {mode!r}: allowed {', '.join(OBSERVATION_MODES)}")
-        if not 1 <= rim_birds <= 64:
-            raise ValueError(f"rim_birds = {rim_birds}: must be an integer in [1, 64]")
-        self.mode = mode
-        self.rim_birds = rim_birds
-        self.max_birds = scenario.max_birds if max_birds is None else max_birds
-        if self.max_birds < scenario.max_birds:
-            raise ValueError(
-                f"max_birds = {self.max_birds}: must be at least the scenario's largest flock "
-                f"({scenario.max_birds})"
-            )
-        self.scales = Scales.of(scenario)
-        self.protected_arr = protected_arr
-        self.goal_arr = goal_arr
-        self.goal_center = zone_center(scenario.site.goal)
-        self.vector_size = GLOBAL_SIZE + RIM_FIELDS * rim_birds
-        self._vector = np.zeros((worlds, self.vector_size), dtype=np.float64)
-        self._rim = np.full((worlds, max(scenario.max_birds, rim_birds)), -1, dtype=np.int64)
+    ``setup`` is called once when the task is built (before ``space``), ``reset`` after the given
+    worlds were reset, ``build`` after every reset and step: it returns the observations of all B
+    worlds batched (a (B, ...) array, or a dict of them) matching ``space()`` of one world.
+    """
 
+    def setup(self, setting: TaskSetting) -> None:
+        """Prepare for ``setting.worlds`` worlds of ``setting.scenario`` (default: nothing)."""
+        return None
+
+    @abstractmethod
     def space(self) -> gym.spaces.Space:
         """The observation space of one world."""
-        vector = gym.spaces.Box(-np.inf, np.inf, (self.vector_size,), np.float32)
-        if self.mode == "vector":
-            return vector
-        return gym.spaces.Dict(
-            {
-                "context": vector,
-                "birds": gym.spaces.Box(-np.inf, np.inf, (self.max_birds, 4), np.float32),
-                "mask": gym.spaces.Box(0.0, 1.0, (self.max_birds,), np.float32),
-            }
+
+    def reset(self, context: StepContext, indices: np.ndarray) -> None:
+        """Forget the per-world state of worlds ``indices`` (default: nothing to forget)."""
+        return None
+
+    @abstractmethod
+    def build(self, context: StepContext) -> Any:
+        """The observations of all worlds after this step or reset."""
+
+
+class VectorObservation(Observation):
+    """The fixed-size vector: GLOBAL_FIELDS, then RIM_FIELDS entries per rim bird (float32).
+
+    ``rim_birds`` = k; None takes the environment's ``rim_birds`` argument.
+    """
+
+    def __init__(self, rim_birds: int | None = None):
+        self.rim_birds = rim_birds
+
+    def setup(self, setting: TaskSetting) -> None:
+        if self.rim_birds is None:
+            self.rim_birds = setting.rim_birds
+        if not 1 <= self.rim_birds <= 64:
+            raise ValueError(f"rim_birds = {self.rim_birds}: must be an integer in [1, 64]")
+        scenario = setting.scenario
+        self.setting = setting
+        self.vector_size = GLOBAL_SIZE + RIM_FIELDS * self.rim_birds
+        self._vector = np.zeros((setting.worlds, self.vector_size), dtype=np.float64)
+        self._rim = np.full(
+            (setting.worlds, max(scenario.max_birds, self.rim_birds)), -1, dtype=np.int64
         )
 
-    def rim_indices(self, state: WorldState, metrics: StepMetrics) -> np.ndarray:
+    def vector_space(self) -> gym.spaces.Box:
+        low, high = vector_bounds(self.rim_birds)
+        return gym.spaces.Box(low, high, (self.vector_size,), np.float32)
+
+    def space(self) -> gym.spaces.Space:
+        return self.vector_space()
+
+    def rim_indices(self, context: StepContext) -> np.ndarray:
         """(B, rim_birds) indices of the most threatening rim birds, -1 where padded."""
+        setting = self.setting
         _rim_threat(
-            state.bird_pos,
-            state.count,
-            metrics.on_hull,
-            self.protected_arr,
-            self.goal_arr,
+            context.state.bird_pos,
+            context.state.count,
+            context.metrics.on_hull,
+            setting.protected_arr,
+            setting.goal_arr,
             self.rim_birds,
             self._rim,
         )
         return self._rim[:, : self.rim_birds]
 
-    def build(self, state: WorldState, metrics: StepMetrics):
-        """Observations of all worlds: a (B, D) float32 array, or a dict of batched arrays."""
-        s = self.scales
+    def vector(self, context: StepContext) -> np.ndarray:
+        """The (B, D) float32 vectors of all worlds."""
+        setting = self.setting
+        s = setting.scales
+        m = context.metrics
         _vector_obs(
-            state.bird_pos,
-            state.pursuer_vel[:, 0],  # the observation is drone 0's
-            state.pursuer_pos[:, 0],
-            metrics.centroid,
-            metrics.mean_velocity,
-            metrics.diameter,
-            metrics.largest_fraction,
-            self.rim_indices(state, metrics),
-            self.protected_arr,
-            self.goal_arr,
-            self.goal_center[0],
-            self.goal_center[1],
+            context.state.bird_pos,
+            context.drone_vel,
+            context.drone_pos,
+            m.centroid,
+            m.mean_velocity,
+            m.diameter,
+            m.largest_fraction,
+            self.rim_indices(context),
+            setting.protected_arr,
+            setting.goal_arr,
+            setting.goal_center[0],
+            setting.goal_center[1],
             s.site,
             s.near,
             s.pursuer_speed,
             s.cruise_speed,
             self._vector,
         )
-        vector = self._vector.astype(np.float32)
-        if self.mode == "vector":
-            return vector
+        return self._vector.astype(np.float32)
+
+    def build(self, context: StepContext) -> Any:
+        return self.vector(context)
+
+
+class DictObservation(VectorObservation):
+    """``context`` (the vector), ``birds`` (max_birds, 4) and ``mask`` (max_birds,).
+
+    ``birds`` holds every bird's position and velocity relative to the pursuer, scaled by the
+    alarm radius and the pursuer's top speed, zero for padding; ``mask`` is 1 for a real bird.
+    ``max_birds`` is the environment's ``max_birds`` argument (default: the scenario's largest
+    flock).
+    """
+
+    def space(self) -> gym.spaces.Space:
+        slots = self.setting.max_birds
+        return gym.spaces.Dict(
+            {
+                "context": self.vector_space(),
+                "birds": gym.spaces.Box(-np.inf, np.inf, (slots, 4), np.float32),
+                "mask": gym.spaces.Box(0.0, 1.0, (slots,), np.float32),
+            }
+        )
+
+    def build(self, context: StepContext) -> Any:
+        vector = self.vector(context)
+        state = context.state
+        s = self.setting.scales
+        slots = self.setting.max_birds
         worlds, n_slots = state.bird_pos.shape[:2]
-        birds = np.zeros((worlds, self.max_birds, 4), dtype=np.float32)
-        rel_pos = (state.bird_pos - state.pursuer_pos[:, :1]) / s.near  # relative to drone 0
-        rel_vel = (state.bird_vel - state.pursuer_vel[:, :1]) / s.pursuer_speed
+        birds = np.zeros((worlds, slots, 4), dtype=np.float32)
+        rel_pos = (state.bird_pos - context.drone_pos[:, None, :]) / s.near
+        rel_vel = (state.bird_vel - context.drone_vel[:, None, :]) / s.pursuer_speed
         mask = (np.arange(n_slots)[None, :] < state.count[:, None]).astype(np.float32)
         birds[:, :n_slots, :2] = rel_pos * mask[..., None]
         birds[:, :n_slots, 2:] = rel_vel * mask[..., None]
-        full_mask = np.zeros((worlds, self.max_birds), dtype=np.float32)
+        full_mask = np.zeros((worlds, slots), dtype=np.float32)
         full_mask[:, :n_slots] = mask
         return {"context": vector, "birds": birds, "mask": full_mask}
+
+
+# The shipped observations, selected by name.
+OBSERVATION_MODES: dict[str, type[Observation]] = {
+    "vector": VectorObservation,
+    "dict": DictObservation,
+}

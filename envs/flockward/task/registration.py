@@ -8,15 +8,16 @@ from __future__ import annotations
 
 import gymnasium as gym
 
-ENV_IDS = ("flockward/Divert-v0",)
+ENV_ID = "flockward/Divert-v0"  # the herding task
+ENV_IDS = (ENV_ID,)
 
 
 def register_envs() -> None:
     """Register the ids with Gymnasium (idempotent)."""
-    if "flockward/Divert-v0" in gym.registry:
+    if ENV_ID in gym.registry:
         return
     gym.register(
-        id="flockward/Divert-v0",
+        id=ENV_ID,
         entry_point="flockward.task.env:DivertEnv",
         vector_entry_point="flockward.task.vector_env:DivertVectorEnv",
         # No TimeLimit wrapper: the environment truncates at its scenario's step limit itself.

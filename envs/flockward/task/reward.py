@@ -1,4 +1,8 @@
-"""The reward as a weighted sum of named terms, each reported in ``info["reward_terms"]``.
+"""The reward: a sum of named terms, each reported in ``info["reward_terms"]``.
+
+A reward is an object with ``terms(context)`` returning a dict name -> (B,) array (see
+``Reward``); the task adds the terms in the order the dict lists them. The default,
+``HerdingReward``, has these terms (weights from the scenario's ``[reward]`` table):
 
 - progress: potential-based shaping F = gamma * phi(s') - phi(s) with phi = -(centroid distance
   to the goal region, 0 inside) / site scale, and phi = 0 at a terminal state, so the optimal policy
@@ -17,11 +21,34 @@
 
 from __future__ import annotations
 
+from abc import ABC, abstractmethod
+
 import numpy as np
 
-from flockward.sim.types import RewardWeights
+from flockward.task.context import StepContext, TaskSetting
 
 REWARD_TERMS = ("progress", "approach", "fragmentation", "collision", "breach", "time", "success")
+
+
+class Reward(ABC):
+    """What a reward implements. The task deep-copies the object it is given, so one instance
+    can configure several environments; per-world state lives in the copy.
+
+    ``setup`` is called once when the task is built, ``reset`` after the given worlds were reset
+    (their new state is in the context), ``terms`` once per step.
+    """
+
+    def setup(self, setting: TaskSetting) -> None:
+        """Prepare for ``setting.worlds`` worlds of ``setting.scenario`` (default: nothing)."""
+        return None
+
+    def reset(self, context: StepContext, indices: np.ndarray) -> None:
+        """Forget the per-world state of worlds ``indices`` (default: nothing to forget)."""
+        return None
+
+    @abstractmethod
+    def terms(self, context: StepContext) -> dict[str, np.ndarray]:
+        """Each named term, a (B,) float array; entries of worlds not live are ignored."""
 
 
 def potential(goal_distance: np.ndarray, site_scale: float) -> np.ndarray:
@@ -40,34 +67,46 @@ def _shaping(weight, discount, before, after, terminated):
     return weight * (discount * np.where(terminated, 0.0, after) - before)
 
 
-def reward_terms(
-    weights: RewardWeights,
-    potential_before: np.ndarray,  # (B,)
-    potential_after: np.ndarray,  # (B,)
-    approach_before: np.ndarray,  # (B,)
-    approach_after: np.ndarray,  # (B,)
-    terminated: np.ndarray,  # (B,) bool
-    largest_fraction: np.ndarray,  # (B,)
-    collided: np.ndarray,  # (B,) bool
-    new_breaches: np.ndarray,  # (B,) birds that entered the protected zone this step
-    success: np.ndarray,  # (B,) bool
-) -> dict[str, np.ndarray]:
-    """Each weighted term for every world; their sum is the reward."""
-    g = weights.discount
-    return {
-        "progress": _shaping(weights.progress, g, potential_before, potential_after, terminated),
-        "approach": _shaping(weights.approach, g, approach_before, approach_after, terminated),
-        "fragmentation": -weights.fragmentation * (1.0 - largest_fraction),
-        "collision": -weights.collision * collided.astype(np.float64),
-        "breach": -weights.breach * new_breaches,
-        "time": np.full(potential_before.shape, -weights.time),
-        "success": weights.success * success.astype(np.float64),
-    }
+class HerdingReward(Reward):
+    """The default reward: the seven terms of REWARD_TERMS, in that order (module docstring)."""
+
+    def setup(self, setting: TaskSetting) -> None:
+        self._progress = np.zeros(setting.worlds)  # phi of the last state, per world
+        self._approach = np.zeros(setting.worlds)
+
+    def _potentials(self, context: StepContext) -> tuple[np.ndarray, np.ndarray]:
+        site = context.scales.site
+        progress = potential(context.metrics.goal_distance, site)
+        alarm = context.setting.scenario.flock.alarm_radius
+        return progress, approach_potential(context.drone_flock_gap, alarm, site)
+
+    def reset(self, context: StepContext, indices: np.ndarray) -> None:
+        progress, approach = self._potentials(context)
+        self._progress[indices] = progress[indices]
+        self._approach[indices] = approach[indices]
+
+    def terms(self, context: StepContext) -> dict[str, np.ndarray]:
+        w = context.weights
+        g = w.discount
+        progress, approach = self._potentials(context)
+        ended = context.terminated
+        terms = {
+            "progress": _shaping(w.progress, g, self._progress, progress, ended),
+            "approach": _shaping(w.approach, g, self._approach, approach, ended),
+            "fragmentation": -w.fragmentation * (1.0 - context.metrics.largest_fraction),
+            "collision": -w.collision * context.collided.astype(np.float64),
+            "breach": -w.breach * context.new_breaches,
+            "time": np.full(context.worlds, -w.time),
+            "success": w.success * context.success.astype(np.float64),
+        }
+        self._progress = np.where(context.live, progress, self._progress)
+        self._approach = np.where(context.live, approach, self._approach)
+        return terms
 
 
-def total(terms: dict[str, np.ndarray]) -> np.ndarray:
-    """The reward: the sum of the terms, in REWARD_TERMS order (fixed summation order)."""
-    out = np.zeros_like(terms["time"])
-    for name in REWARD_TERMS:
-        out = out + terms[name]
+def total(terms: dict[str, np.ndarray], worlds: int) -> np.ndarray:
+    """The reward: the sum of the terms in the dict's order (a fixed summation order)."""
+    out = np.zeros(worlds)
+    for value in terms.values():
+        out = out + value
     return out

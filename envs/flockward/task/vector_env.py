@@ -8,18 +8,16 @@ list, so world i follows exactly the trajectory of a single DivertEnv reset with
 
 from __future__ import annotations
 
-from pathlib import Path
 from typing import Any
 
-import gymnasium as gym
 import numpy as np
 from gymnasium.utils import seeding
 from gymnasium.vector import AutoresetMode, VectorEnv
 from gymnasium.vector.utils import batch_space
 
-from flockward.sim.types import Scenario
-from flockward.task.batched import DivertTask, check_actions
-from flockward.task.env import resolve_scenario
+from flockward.task.batched import DivertTask, action_space, check_actions
+from flockward.task.env_config import EnvConfig
+from flockward.task.state import WorldView
 
 
 def world_seeds(seed: int | list[int | None] | None, worlds: int) -> list[int | None]:
@@ -35,7 +33,11 @@ def world_seeds(seed: int | list[int | None] | None, worlds: int) -> list[int | 
 
 
 class DivertVectorEnv(VectorEnv):
-    """``flockward/Divert-v0`` batched natively (see DivertEnv for the task itself)."""
+    """``flockward/Divert-v0`` batched natively (see DivertEnv for the task and its arguments).
+
+    ``state(i)`` is world i's read-only WorldView. Note that with next-step autoreset a world
+    that just ended still shows its final state until the next step resets it.
+    """
 
     metadata = {
         "render_modes": [],
@@ -43,38 +45,26 @@ class DivertVectorEnv(VectorEnv):
         "autoreset_mode": AutoresetMode.NEXT_STEP,
     }
 
-    def __init__(
-        self,
-        num_envs: int = 1,
-        scenario: str | Path | Scenario = "headon",
-        overrides: dict[str, Any] | None = None,
-        observation: str = "vector",
-        rim_birds: int = 4,
-        max_birds: int | None = None,
-        neighbour_search: str = "auto",
-        max_episode_steps: int | None = None,
-        render_mode: str | None = None,
-    ):
-        if render_mode is not None:
+    def __init__(self, num_envs: int = 1, config: EnvConfig | Any = None, **options: Any):
+        self.config = EnvConfig.from_options(config, **options)
+        if self.config.render_mode is not None:
             raise ValueError("the vector env does not render; render a single DivertEnv instead")
-        self.scenario = resolve_scenario(scenario, overrides)
         self.num_envs = int(num_envs)
-        self.task = DivertTask(
-            self.scenario,
-            self.num_envs,
-            observation,
-            rim_birds,
-            max_birds,
-            neighbour_search,
-            max_episode_steps,
-        )
+        self.task = DivertTask(self.config, self.num_envs)
+        self.scenario = self.task.scenario
         self.render_mode = None
-        self.single_action_space = gym.spaces.Box(-1.0, 1.0, (2,), np.float32)
-        self.single_observation_space = self.task.observations.space()
+        self.single_action_space = action_space()
+        self.single_observation_space = self.task.observation_space()
         self.action_space = batch_space(self.single_action_space, self.num_envs)
         self.observation_space = batch_space(self.single_observation_space, self.num_envs)
         self._needs_reset = np.zeros(self.num_envs, dtype=np.bool_)
         self._ones = np.ones(self.num_envs, dtype=np.bool_)
+
+    def state(self, index: int) -> WorldView:
+        """A read-only snapshot of world ``index`` after the latest reset or step."""
+        if not 0 <= index < self.num_envs:
+            raise IndexError(f"world {index}: this vector env has worlds 0 to {self.num_envs - 1}")
+        return self.task.view(index)
 
     def reset(self, *, seed=None, options: dict[str, Any] | None = None):
         seeds = world_seeds(seed, self.num_envs)

@@ -1,0 +1,104 @@
+"""What observations and reward terms read: the task's fixed setting and one step's context.
+
+``TaskSetting`` is fixed for the life of a task (scenario, zones as arrays, scales, padding);
+``StepContext`` is one immutable snapshot of a step (or a reset) of every world. Observation and
+reward objects read these two records only, so a new term or field needs no change to the task.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from flockward.sim.geometry import zone_center
+from flockward.sim.metrics import StepMetrics
+from flockward.sim.types import RewardWeights, Scenario, WorldState
+
+
+@dataclass(frozen=True)
+class Scales:
+    """The lengths and speeds observations and shaping divide by, derived once per scenario."""
+
+    site: float  # m, flock start to goal centre
+    near: float  # m, the flock's alarm radius
+    pursuer_speed: float  # m/s
+    cruise_speed: float  # m/s
+
+    @classmethod
+    def of(cls, scenario: Scenario) -> Scales:
+        start = np.asarray(scenario.site.flock_start)
+        goal = np.asarray(zone_center(scenario.site.goal))
+        return cls(
+            site=max(float(np.hypot(*(goal - start))), 1.0),
+            near=scenario.flock.alarm_radius,
+            pursuer_speed=scenario.pursuer.max_speed,
+            cruise_speed=scenario.flock.cruise_speed,
+        )
+
+
+@dataclass(frozen=True)
+class TaskSetting:
+    """Everything about a task that does not change between steps."""
+
+    scenario: Scenario
+    worlds: int  # B
+    protected_arr: np.ndarray  # compiled protected zone (flockward.sim.geometry.zone_arrays)
+    goal_arr: np.ndarray  # compiled goal zone
+    goal_center: tuple[float, float]  # m
+    scales: Scales
+    rim_birds: int  # k, rim birds in the vector observation (the env's rim_birds argument)
+    max_birds: int  # bird slots of padded per-bird observations (at least scenario.max_birds)
+
+    @property
+    def weights(self) -> RewardWeights:
+        return self.scenario.reward
+
+
+@dataclass(frozen=True)
+class StepContext:
+    """One step (or reset) of every world, as observations and reward terms see it.
+
+    Arrays are shared with the task, not copied: read them, never write them. At a reset
+    ``before`` is None, the masks are all False and ``new_breaches`` is zero.
+    """
+
+    setting: TaskSetting
+    state: WorldState  # after the step
+    before: StepMetrics | None  # flock metrics before the step (None at a reset)
+    metrics: StepMetrics  # flock metrics after the step
+    live: np.ndarray  # (B,) bool, worlds that were stepped (others keep their state)
+    terminated: np.ndarray  # (B,) bool, success or breach
+    success: np.ndarray  # (B,) bool, the goal region holds success_fraction of the birds
+    failure: np.ndarray  # (B,) bool, more than max_breaching_birds birds have entered the zone
+    truncated: np.ndarray  # (B,) bool, step limit reached without termination
+    new_breaches: np.ndarray  # (B,) int, birds that entered the protected zone for the first time
+    collided: np.ndarray  # (B,) bool, pursuer inside its safety radius of a bird
+
+    @property
+    def scales(self) -> Scales:
+        return self.setting.scales
+
+    @property
+    def weights(self) -> RewardWeights:
+        return self.setting.weights
+
+    @property
+    def worlds(self) -> int:
+        return self.setting.worlds
+
+    # The pursuer's arrays are read only through these two properties.
+    @property
+    def drone_pos(self) -> np.ndarray:
+        """(B, 2) m, drone 0's position after the step (the one-drone task's drone)."""
+        return self.state.pursuer_pos[:, 0]
+
+    @property
+    def drone_vel(self) -> np.ndarray:
+        """(B, 2) m/s, drone 0's velocity after the step."""
+        return self.state.pursuer_vel[:, 0]
+
+    @property
+    def drone_flock_gap(self) -> np.ndarray:
+        """(B,) m, pursuer to flock centroid after the step."""
+        return np.hypot(*(self.metrics.centroid - self.drone_pos).T)
