@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import csv
 import math
-import os
 import time
 import tomllib
 from dataclasses import dataclass, field
@@ -22,6 +21,7 @@ from typing import Any
 
 import numpy as np
 
+from flockward.config.atomic import atomic_path
 from flockward.config.scenarios import ConfigError, list_scenarios, load_scenario
 
 ALGORITHMS = ("ppo", "sac")
@@ -334,12 +334,10 @@ def validate(model, suite_name: str) -> float:
 
 
 def _write_eval_log(path: Path, rows: list[tuple[int, float, float]]) -> None:
-    tmp = path.with_suffix(".tmp")
-    with tmp.open("w", newline="") as handle:
+    with atomic_path(path) as tmp, tmp.open("w", newline="") as handle:
         writer = csv.writer(handle)
         writer.writerow(["timesteps", "validation_score", "wall_seconds"])
         writer.writerows(rows)
-    os.replace(tmp, path)
 
 
 def _read_eval_log(path: Path) -> list[tuple[int, float, float]]:
@@ -354,9 +352,8 @@ def _read_eval_log(path: Path) -> list[tuple[int, float, float]]:
 
 
 def _save_atomic(model, path: Path) -> None:
-    tmp = path.with_name(path.stem + ".partial.zip")
-    model.save(str(tmp))
-    os.replace(tmp, path)
+    with atomic_path(path, suffix=".partial.zip") as tmp:  # SB3 appends .zip to other names
+        model.save(str(tmp))
 
 
 def _latest_checkpoint(run_dir: Path) -> Path | None:
@@ -394,9 +391,8 @@ def plot_curve(run_dir: Path) -> Path:
     right.set(title="training episode return (mean)", xlabel="timesteps")
     fig.tight_layout()
     out = run_dir / "training_curve.png"
-    tmp = out.with_suffix(".tmp.png")
-    fig.savefig(tmp)
-    os.replace(tmp, out)
+    with atomic_path(out) as tmp:
+        fig.savefig(tmp, format="png")
     return out
 
 
