@@ -137,6 +137,10 @@ def convert(value: object, spec: Spec, origin: Origin) -> object:
     kind = spec.kind
     if kind in ("int", "float"):
         return _number(value, spec, origin, integer=kind == "int")
+    if kind == "bool":
+        if not isinstance(value, bool):
+            raise origin.error(value, spec.allowed())
+        return value
     if kind == "str":
         if not isinstance(value, str) or len(value) > spec.max_len:
             raise origin.error(value, spec.allowed())

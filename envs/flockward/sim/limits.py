@@ -131,8 +131,8 @@ def _is_integer(value: object) -> bool:
 class Spec:
     """Type, bounds and unit of one field (one config key).
 
-    kind: "int", "float", "str", "name" (lower-case identifier), "choice", "point" ([x, y]),
-    "zone" (circle or polygon) or "range" ([lo, hi] of ``item`` numbers).
+    kind: "int", "float", "bool", "str", "name" (lower-case identifier), "choice", "point"
+    ([x, y]), "zone" (circle or polygon) or "range" ([lo, hi] of ``item`` numbers).
     """
 
     kind: str
@@ -163,6 +163,8 @@ class Spec:
             return f"must be an integer in {self.bounds()}"
         if self.kind == "float":
             return f"must be a finite number in {self.bounds()}"
+        if self.kind == "bool":
+            return "must be true or false"
         if self.kind == "str":
             return f"must be a string of at most {self.max_len} characters"
         if self.kind == "name":
@@ -199,6 +201,8 @@ class Spec:
         kind = self.kind
         if kind in ("int", "float"):
             return self.number_ok(value, integer=kind == "int")
+        if kind == "bool":
+            return isinstance(value, bool)
         if kind == "str":
             return isinstance(value, str) and len(value) <= self.max_len
         if kind == "name":
