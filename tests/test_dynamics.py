@@ -8,7 +8,6 @@ steering rules (1987) and the model's own documented formulas where no publicati
 
 from __future__ import annotations
 
-import dataclasses
 import math
 
 import numpy as np
@@ -21,12 +20,14 @@ from flockward.sim.dynamics import (
     choose_grid,
     step_worlds,
 )
+from flockward.sim.limits import derived
 from flockward.sim.types import FlockParams
 
 FAR = (1.0e7, 1.0e7)  # m: a pursuer or destination so far away that it has no effect
 
-# Every bird term off, no acceleration cap, no airspeed clamp: the bare double integrator.
-OFF = dataclasses.replace(
+# Every bird term off, no acceleration cap, no airspeed clamp: the bare double integrator. These
+# values lie beyond what a config may write, so the records are built unchecked (derived).
+OFF = derived(
     FlockParams(),
     separation_gain=0.0,
     alignment_gain=0.0,
@@ -127,7 +128,7 @@ def accel_of(batch: Batch) -> np.ndarray:
 
 def only(**terms) -> FlockParams:
     """OFF with the given fields switched back on."""
-    return dataclasses.replace(OFF, **terms)
+    return derived(OFF, **terms)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -163,7 +164,7 @@ def test_bird_without_forces_flies_straight(dt):
     speed = rng.uniform(7.5, 19.5, n)
     v = np.stack([speed * np.cos(angle), speed * np.sin(angle)], axis=1)
     x0 = rng.uniform(-5.0, 5.0, (n, 2))  # close together: neighbours, but every gain is 0
-    flock = dataclasses.replace(OFF, min_speed=7.0, max_speed=20.0, max_accel=10.0)
+    flock = derived(OFF, min_speed=7.0, max_speed=20.0, max_accel=10.0)
     batch = Batch(x0, v, flock, dt=dt)
     steps = round(2.0 / dt)
     batch.step(steps)
@@ -513,7 +514,7 @@ def test_each_drone_moves_under_its_own_command_and_limits():
 
 def test_acceleration_cap_limits_summed_steering():
     # The summed steering is capped at max_accel: |a| = min(|a_sum|, max_accel) along a_sum.
-    flock = dataclasses.replace(FEAR, max_accel=4.0)
+    flock = derived(FEAR, max_accel=4.0)
     batch = Batch(
         [[8.0, 1.0]], [[0.0, 0.0]], flock, pursuer_pos=(0.0, 0.0), pursuer_vel=(10.0, 0.0)
     )
@@ -533,7 +534,7 @@ def test_airspeed_clamp_keeps_heading():
     fast = Batch(
         [[0.0, 0.0]],
         [[0.0, 19.0]],
-        dataclasses.replace(flock, cruise_speed=60.0),
+        derived(flock, cruise_speed=60.0),
         destination=(0.0, 1e6),
     )
     fast.step(50)

@@ -26,8 +26,11 @@ from flockward.sim.geometry import (
     polygon_area,
     polygon_is_simple,
     signed_distance,
+    vertices_collinear,
     zone_arrays,
     zone_center,
+    zone_contains,
+    zones_overlap,
 )
 from flockward.sim.types import Circle, Polygon
 
@@ -196,6 +199,77 @@ def test_polygon_is_simple_matches_shapely(vertices: list[tuple[int, int]]) -> N
     # and collinear edges.
     want = LinearRing(vertices).is_simple and ShapelyPolygon(vertices).area > 0
     assert polygon_is_simple(np.array(vertices, dtype=np.float64)) == want
+
+
+@settings(deadline=None, max_examples=200)
+@given(
+    st.lists(st.tuples(st.integers(-5, 5), st.integers(-5, 5)), min_size=3, max_size=6, unique=True)
+)
+def test_vertices_collinear_matches_shapely_area(vertices: list[tuple[int, int]]) -> None:
+    # Reference: the convex hull of collinear points has zero area in shapely (GEOS); integer
+    # vertices make any non-collinear set's hull area at least 0.5.
+    want = MultiPoint(vertices).convex_hull.area == 0.0
+    assert vertices_collinear(np.array(vertices, dtype=np.float64)) is want
+
+
+def test_vertices_collinear_allows_rounding_only() -> None:
+    line = np.array([(0.0, 0.0), (1e4, 1e4), (5e3, 5e3 + 1e-6)])
+    assert vertices_collinear(line)  # 1e-6 m off a 14 km line: rounding, no interior
+    assert not vertices_collinear(line + np.array([(0.0, 0.0), (0.0, 0.0), (0.0, 1.0)]))
+
+
+def _shapely_zone(zone: Circle | Polygon):
+    if isinstance(zone, Circle):
+        return Point(zone.center).buffer(zone.radius, quad_segs=256)
+    return ShapelyPolygon(zone.vertices)
+
+
+def _random_zone(rng: np.random.Generator) -> Circle | Polygon:
+    centre = rng.uniform(-50.0, 50.0, size=2)
+    if rng.random() < 0.5:
+        return Circle((float(centre[0]), float(centre[1])), float(rng.uniform(5.0, 40.0)))
+    # A polygon star-shaped about the centre with every angular gap below pi: always simple.
+    n = int(rng.integers(3, 9))
+    angles = (np.arange(n) + rng.uniform(-0.4, 0.4, size=n)) * (2.0 * np.pi / n)
+    radii = rng.uniform(5.0, 40.0, size=n)
+    pts = centre + np.stack((np.cos(angles), np.sin(angles)), axis=1) * radii[:, None]
+    return Polygon(tuple((float(x), float(y)) for x, y in pts))
+
+
+@settings(deadline=None, max_examples=200)
+@given(seed=seeds)
+def test_zones_overlap_matches_shapely(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    a, b = _random_zone(rng), _random_zone(rng)
+    sa, sb = _shapely_zone(a), _shapely_zone(b)
+    # Reference: shapely (GEOS) intersection area, positive exactly when the interiors meet. The
+    # 256-segment circles differ from true discs by < 1e-3 m, so near-tangent pairs are skipped.
+    if sa.distance(sb) < 1e-2 and sa.intersection(sb).area < 1e-2:
+        return
+    assert zones_overlap(a, b) is (sa.intersection(sb).area > 0.0)
+    assert zones_overlap(b, a) is zones_overlap(a, b)
+
+
+def test_zones_overlap_worked_cases() -> None:
+    square = Polygon(((0.0, 0.0), (10.0, 0.0), (10.0, 10.0), (0.0, 10.0)))
+    inner = Polygon(((4.0, 4.0), (6.0, 4.0), (6.0, 6.0), (4.0, 6.0)))
+    beside = Polygon(((10.0, 0.0), (20.0, 0.0), (20.0, 10.0), (10.0, 10.0)))
+    assert zones_overlap(square, inner) and zones_overlap(inner, square)  # one inside the other
+    assert zones_overlap(square, beside)  # touching polygons count as overlapping
+    assert not zones_overlap(Circle((0.0, 0.0), 1.0), Circle((2.0, 0.0), 1.0))  # tangent discs
+    assert zones_overlap(Circle((5.0, 5.0), 100.0), square)  # disc covering the square
+    assert not zones_overlap(Circle((15.0, 5.0), 5.0), square)  # disc touching an edge
+
+
+@settings(deadline=None, max_examples=40)
+@given(seed=seeds)
+def test_zone_contains_matches_shapely(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    zone = Polygon(C_SHAPE)
+    # Reference: shapely (GEOS) strict containment.
+    for p in rng.uniform(-10.0, 50.0, size=(50, 2)):
+        point = (float(p[0]), float(p[1]))
+        assert zone_contains(zone, point) is ShapelyPolygon(C_SHAPE).contains(Point(point))
 
 
 # ---------------------------------------------------------------- convex hull

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 import json
 from pathlib import Path
@@ -15,7 +16,13 @@ from flockward.config.scenarios import ConfigError
 from flockward_baselines.cli import main
 from flockward_baselines.policy import PolicyController
 from flockward_baselines.sb3 import MixedVecEnv, make_vec_env
-from flockward_baselines.train import behaviour_clone, demonstrations, load_train_config, train
+from flockward_baselines.train import (
+    TrainConfig,
+    behaviour_clone,
+    demonstrations,
+    load_train_config,
+    train,
+)
 
 TINY_SUITE = """
 name = "tiny"
@@ -193,3 +200,12 @@ batch_size = 32
     )
     model_path = train(load_train_config(cfg), tmp_path / "sac", progress=False)
     assert model_path.is_file()
+
+
+def test_left_out_keys_take_the_dataclass_defaults(tmp_path):
+    path = _config(tmp_path, 'algorithm = "sac"\nscenarios = ["trio"]\n')
+    config = load_train_config(path)
+    defaults = TrainConfig(name=config.name, algorithm="sac", scenarios=("trio",))
+    for f in dataclasses.fields(TrainConfig):
+        if f.name != "source_file":
+            assert getattr(config, f.name) == getattr(defaults, f.name), f.name

@@ -13,63 +13,76 @@ from __future__ import annotations
 
 import csv
 import math
-import os
 import time
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from flockward.config.scenarios import ConfigError, list_scenarios, load_scenario
+from flockward.config.atomic import atomic_path
+from flockward.config.files import ConfigError, list_scenarios, read_toml
+from flockward.config.files import label as file_label
+from flockward.config.scenarios import load_scenario
+from flockward.config.schema import Origin, Spec, convert
 from flockward.task.env_config import EnvConfig
 
 ALGORITHMS = ("ppo", "sac")
 
-# Hyperparameters a config may set, per algorithm: (type, low, high). Anything else is an error.
-_NUM = (float, 0.0, math.inf)
-HYPERPARAMETERS: dict[str, dict[str, tuple[type, float, float]]] = {
+
+def _int(lo: int, hi: int) -> Spec:
+    return Spec("int", lo, hi)
+
+
+def _float(lo: float, hi: float) -> Spec:
+    return Spec("float", lo, hi)
+
+
+# Hyperparameters a config may set, per algorithm. Anything else is an error.
+HYPERPARAMETERS: dict[str, dict[str, Spec]] = {
     "ppo": {
-        "learning_rate": (float, 1e-7, 1.0),
-        "n_steps": (int, 8, 100_000),
-        "batch_size": (int, 8, 1_000_000),
-        "n_epochs": (int, 1, 100),
-        "gamma": (float, 0.0, 1.0),
-        "gae_lambda": (float, 0.0, 1.0),
-        "clip_range": (float, 0.0, 10.0),
-        "ent_coef": (float, 0.0, 1.0),
-        "vf_coef": (float, 0.0, 10.0),
-        "max_grad_norm": (float, 0.0, 100.0),
-        "use_sde": (bool, 0, 1),
-        "sde_sample_freq": (int, -1, 100_000),
+        "learning_rate": _float(1e-7, 1.0),
+        "n_steps": _int(8, 100_000),
+        "batch_size": _int(8, 1_000_000),
+        "n_epochs": _int(1, 100),
+        "gamma": _float(0.0, 1.0),
+        "gae_lambda": _float(0.0, 1.0),
+        "clip_range": _float(0.0, 10.0),
+        "ent_coef": _float(0.0, 1.0),
+        "vf_coef": _float(0.0, 10.0),
+        "max_grad_norm": _float(0.0, 100.0),
+        "use_sde": Spec("bool"),
+        "sde_sample_freq": _int(-1, 100_000),
     },
     "sac": {
-        "learning_rate": (float, 1e-7, 1.0),
-        "buffer_size": (int, 1000, 10_000_000),
-        "learning_starts": (int, 0, 10_000_000),
-        "batch_size": (int, 8, 100_000),
-        "tau": (float, 0.0, 1.0),
-        "gamma": (float, 0.0, 1.0),
-        "train_freq": (int, 1, 100_000),
-        "gradient_steps": (int, -1, 100_000),
+        "learning_rate": _float(1e-7, 1.0),
+        "buffer_size": _int(1000, 10_000_000),
+        "learning_starts": _int(0, 10_000_000),
+        "batch_size": _int(8, 100_000),
+        "tau": _float(0.0, 1.0),
+        "gamma": _float(0.0, 1.0),
+        "train_freq": _int(1, 100_000),
+        "gradient_steps": _int(-1, 100_000),
     },
 }
 NET_ARCH_MAX = 1024  # units per hidden layer
 
 # Optional [pretrain] table: clone a scripted expert's actions before reinforcement learning.
-PRETRAIN: dict[str, tuple[type, float, float]] = {
-    "episodes": (int, 1, 10_000),  # demonstration episodes per training scenario
-    "epochs": (int, 1, 10_000),  # passes over the demonstrations
-    "learning_rate": (float, 1e-7, 1.0),
-    "batch_size": (int, 8, 1_000_000),
+PRETRAIN: dict[str, Spec] = {
+    "episodes": _int(1, 10_000),  # demonstration episodes per training scenario
+    "epochs": _int(1, 10_000),  # passes over the demonstrations
+    "learning_rate": _float(1e-7, 1.0),
+    "batch_size": _int(8, 1_000_000),
 }
 DEMO_SEED = 100_000  # demonstration seeds start here, clear of every shipped suite's seeds
 
 
 @dataclass(frozen=True)
 class TrainConfig:
-    """A validated training config (see configs/train/*.toml for commented examples)."""
+    """A validated training config (see configs/train/*.toml for commented examples).
+
+    The defaults here are the only ones: a key a config leaves out takes its field's default.
+    """
 
     name: str
     algorithm: str
@@ -95,41 +108,23 @@ class TrainConfig:
         return {"observation": self.observation, "reward": self.reward}
 
 
-_TOP_KEYS: dict[str, tuple[type, float, float]] = {
-    "seed": (int, 0, 2**31 - 1),
-    "total_timesteps": (int, 1, 10**10),
-    "num_envs": (int, 1, 4096),
-    "eval_every": (int, 0, 10**10),
-    "checkpoint_every": (int, 1, 10**10),
-    "torch_threads": (int, 1, 64),
+# Numeric top-level keys, each a TrainConfig field.
+_TOP_KEYS: dict[str, Spec] = {
+    "seed": _int(0, 2**31 - 1),
+    "total_timesteps": _int(1, 10**10),
+    "num_envs": _int(1, 4096),
+    "eval_every": _int(0, 10**10),
+    "checkpoint_every": _int(1, 10**10),
+    "torch_threads": _int(1, 64),
 }
-
-
-def _check_number(label: str, key: str, value: Any, kind: type, lo: float, hi: float) -> Any:
-    if kind is bool:
-        if not isinstance(value, bool):
-            raise ConfigError(f"{label}: key '{key}' = {value!r}: must be true or false")
-        return value
-    ok_type = isinstance(value, int) if kind is int else isinstance(value, int | float)
-    if isinstance(value, bool) or not ok_type:
-        what = "an integer" if kind is int else "a number"
-        raise ConfigError(f"{label}: key '{key}' = {value!r}: must be {what} in [{lo:g}, {hi:g}]")
-    if not (math.isfinite(value) and lo <= value <= hi):
-        what = "an integer" if kind is int else "a finite number"
-        raise ConfigError(f"{label}: key '{key}' = {value!r}: must be {what} in [{lo:g}, {hi:g}]")
-    return kind(value)
 
 
 def load_train_config(path: str | Path) -> TrainConfig:
     """Read and validate a training config; errors are one-line ConfigErrors."""
     path = Path(path)
-    label = str(path)
-    try:
-        raw = tomllib.loads(path.read_text())
-    except FileNotFoundError:
-        raise ConfigError(f"{label}: file not found") from None
-    except tomllib.TOMLDecodeError as error:
-        raise ConfigError(f"{label}: invalid TOML: {error}") from None
+    raw = read_toml(path)
+    label = file_label(path)
+    top = Origin(label, "")
     allowed = {"name", "algorithm", "scenarios", "overrides", "eval_suite", "net_arch", "pretrain"}
     allowed |= {"observation", "reward"}
     allowed |= set(_TOP_KEYS) | set(ALGORITHMS)
@@ -164,25 +159,26 @@ def load_train_config(path: str | Path) -> TrainConfig:
             load_scenario(scenario, overrides)
         except ConfigError as error:
             raise ConfigError(f"{label}: key 'scenarios' entry {scenario!r}: {error}") from None
-    top = {
-        key: _check_number(label, key, raw[key], *spec)
+    given: dict[str, Any] = {
+        key: convert(raw[key], spec, top.child(key))
         for key, spec in _TOP_KEYS.items()
         if key in raw
     }
-    net_arch = raw.get("net_arch", [64, 64])
-    if (
-        not isinstance(net_arch, list)
-        or not net_arch
-        or not all(
-            isinstance(u, int) and not isinstance(u, bool) and 1 <= u <= NET_ARCH_MAX
-            for u in net_arch
-        )
-    ):
-        raise ConfigError(
-            f"{label}: key 'net_arch' = {net_arch!r}: must be a list of layer widths in "
-            f"[1, {NET_ARCH_MAX}]"
-        )
-    hyper: dict[str, Any] = {}
+    if "net_arch" in raw:
+        net_arch = raw["net_arch"]
+        if (
+            not isinstance(net_arch, list)
+            or not net_arch
+            or not all(
+                isinstance(u, int) and not isinstance(u, bool) and 1 <= u <= NET_ARCH_MAX
+                for u in net_arch
+            )
+        ):
+            raise ConfigError(
+                f"{label}: key 'net_arch' = {net_arch!r}: must be a list of layer widths in "
+                f"[1, {NET_ARCH_MAX}]"
+            )
+        given["net_arch"] = tuple(net_arch)
     for algo in ALGORITHMS:
         if algo in raw and algo != algorithm:
             raise ConfigError(
@@ -191,71 +187,66 @@ def load_train_config(path: str | Path) -> TrainConfig:
     table = raw.get(algorithm, {})
     if not isinstance(table, dict):
         raise ConfigError(f"{label}: key '{algorithm}' = {table!r}: must be a table")
-    specs = HYPERPARAMETERS[algorithm]
-    for key, value in table.items():
-        if key not in specs:
-            raise ConfigError(
-                f"{label}: unknown key '{algorithm}.{key}'; allowed: {', '.join(sorted(specs))}"
-            )
-        hyper[key] = _check_number(label, f"{algorithm}.{key}", value, *specs[key])
-    num_envs = top.get("num_envs", 16)
-    if num_envs < len(scenarios):
-        raise ConfigError(
-            f"{label}: key 'num_envs' = {num_envs}: must be at least the number of scenarios "
-            f"({len(scenarios)}), one world each at least"
-        )
-    pretrain = None
+    given["hyperparameters"] = _checked_table(
+        table, HYPERPARAMETERS[algorithm], top.child(algorithm)
+    )
     if "pretrain" in raw:
-        table = raw["pretrain"]
-        if not isinstance(table, dict) or not isinstance(table.get("expert"), str):
+        given["pretrain"] = _pretrain(raw["pretrain"], top.child("pretrain"))
+    if "eval_suite" in raw:
+        if not isinstance(raw["eval_suite"], str):
             raise ConfigError(
-                f"{label}: key 'pretrain' = {table!r}: must be a table with expert = a built-in "
-                "controller name"
+                f"{label}: key 'eval_suite' = {raw['eval_suite']!r}: must be a suite name"
             )
-        from flockward_baselines.controllers import BUILTIN
-
-        if table["expert"] not in BUILTIN:
-            raise ConfigError(
-                f"{label}: key 'pretrain.expert' = {table['expert']!r}: must be one of "
-                + ", ".join(BUILTIN)
+        given["eval_suite"] = raw["eval_suite"]
+    for key in ("observation", "reward"):
+        if key not in raw:
+            continue
+        if not isinstance(raw[key], str):
+            raise top.child(key).error(
+                raw[key], "must be a name or an import path 'package.module:Name'"
             )
-        pretrain = {"expert": table["expert"]}
-        for key, value in table.items():
-            if key == "expert":
-                continue
-            if key not in PRETRAIN:
-                raise ConfigError(
-                    f"{label}: unknown key 'pretrain.{key}'; allowed: expert, "
-                    + ", ".join(PRETRAIN)
-                )
-            pretrain[key] = _check_number(label, f"pretrain.{key}", value, *PRETRAIN[key])
-    eval_suite = raw.get("eval_suite", "validation")
-    if not isinstance(eval_suite, str):
-        raise ConfigError(f"{label}: key 'eval_suite' = {eval_suite!r}: must be a suite name")
-    parts = {key: raw[key] for key in ("observation", "reward") if key in raw}
-    for key, value in parts.items():
-        if not isinstance(value, str):
-            raise ConfigError(
-                f"{label}: key '{key}' = {value!r}: must be a name or an import path "
-                "'package.module:Name'"
-            )
+        given[key] = raw[key]
     try:
-        EnvConfig.from_options(**parts)
+        EnvConfig.from_options(**{k: given[k] for k in ("observation", "reward") if k in given})
     except ValueError as error:
         raise ConfigError(f"{label}: key {error}") from None
-    return TrainConfig(
+    config = TrainConfig(
         name=name,
         algorithm=algorithm,
         scenarios=tuple(scenarios),
         overrides=dict(overrides),
-        eval_suite=eval_suite,
-        net_arch=tuple(net_arch),
-        hyperparameters=hyper,
-        pretrain=pretrain,
         source_file=label,
-        **parts,
-        **top,
+        **given,
     )
+    if config.num_envs < len(scenarios):
+        raise top.child("num_envs").error(
+            config.num_envs,
+            f"must be at least the number of scenarios ({len(scenarios)}), one world each at least",
+        )
+    return config
+
+
+def _checked_table(table: dict[str, Any], specs: dict[str, Spec], origin: Origin) -> dict:
+    """A table's keys checked against their specs; an unlisted key is an error."""
+    for key in table:
+        if key not in specs:
+            raise origin.unknown(key, sorted(specs))
+    return {key: convert(value, specs[key], origin.child(key)) for key, value in table.items()}
+
+
+def _pretrain(table: object, origin: Origin) -> dict[str, Any]:
+    """The [pretrain] table: a built-in expert plus optional PRETRAIN settings."""
+    if not isinstance(table, dict) or not isinstance(table.get("expert"), str):
+        raise origin.error(table, "must be a table with expert = a built-in controller name")
+    from flockward_baselines.controllers import BUILTIN
+
+    if table["expert"] not in BUILTIN:
+        raise origin.child("expert").error(table["expert"], "must be one of " + ", ".join(BUILTIN))
+    settings = {key: value for key, value in table.items() if key != "expert"}
+    for key in settings:
+        if key not in PRETRAIN:
+            raise origin.unknown(key, ["expert", *PRETRAIN])
+    return {"expert": table["expert"], **_checked_table(settings, PRETRAIN, origin)}
 
 
 def make_training_env(config: TrainConfig):
@@ -361,12 +352,10 @@ def validate(model, suite_name: str, env_options: dict[str, Any] | None = None) 
 
 
 def _write_eval_log(path: Path, rows: list[tuple[int, float, float]]) -> None:
-    tmp = path.with_suffix(".tmp")
-    with tmp.open("w", newline="") as handle:
+    with atomic_path(path) as tmp, tmp.open("w", newline="") as handle:
         writer = csv.writer(handle)
         writer.writerow(["timesteps", "validation_score", "wall_seconds"])
         writer.writerows(rows)
-    os.replace(tmp, path)
 
 
 def _read_eval_log(path: Path) -> list[tuple[int, float, float]]:
@@ -381,9 +370,8 @@ def _read_eval_log(path: Path) -> list[tuple[int, float, float]]:
 
 
 def _save_atomic(model, path: Path) -> None:
-    tmp = path.with_name(path.stem + ".partial.zip")
-    model.save(str(tmp))
-    os.replace(tmp, path)
+    with atomic_path(path, suffix=".partial.zip") as tmp:  # SB3 appends .zip to other names
+        model.save(str(tmp))
 
 
 def _latest_checkpoint(run_dir: Path) -> Path | None:
@@ -421,9 +409,8 @@ def plot_curve(run_dir: Path) -> Path:
     right.set(title="training episode return (mean)", xlabel="timesteps")
     fig.tight_layout()
     out = run_dir / "training_curve.png"
-    tmp = out.with_suffix(".tmp.png")
-    fig.savefig(tmp)
-    os.replace(tmp, out)
+    with atomic_path(out) as tmp:
+        fig.savefig(tmp, format="png")
     return out
 
 

@@ -11,8 +11,7 @@ its drones. Drone tracks are (T, P, 2): T time samples of P drones; a (T, 2) tra
 from __future__ import annotations
 
 import os
-import tempfile
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -26,6 +25,7 @@ from matplotlib.figure import Figure
 from matplotlib.gridspec import GridSpec
 from matplotlib.ticker import MaxNLocator
 
+from flockward.config.atomic import atomic_path
 from flockward.sim.types import Circle, Polygon, Scenario, WorldState, Zone
 
 # Palette (hex RGB): light colours for areas, dark ones for things that move.
@@ -273,25 +273,6 @@ class FrameRenderer:
         self.fig.clear()
 
 
-def _atomic_write(out_path: str | os.PathLike[str], write: Callable[[Path], None]) -> Path:
-    """Run ``write`` on a temporary file beside ``out_path``, then move it into place.
-
-    A reader never sees a half-written file, and a failed write leaves no temporary behind.
-    """
-    out = Path(out_path)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp_name = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".tmp", dir=out.parent)
-    os.close(fd)
-    tmp = Path(tmp_name)
-    try:
-        write(tmp)
-        os.replace(tmp, out)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
-    return out
-
-
 def _stack_birds(frames: Sequence[Mapping[str, Any]]) -> np.ndarray:
     """Bird positions of all frames as (T, n, 2); the flock size must not change in an episode."""
     sizes = {np.shape(f["bird_pos"]) for f in frames}
@@ -410,7 +391,9 @@ def episode_still(
         if row == len(series) - 1:
             panel.set_xlabel("time (s)", fontsize=9, color=INK)
 
-    return _atomic_write(out_path, lambda tmp: fig.savefig(tmp, format="png", facecolor=PAPER))
+    with atomic_path(out_path) as tmp:
+        fig.savefig(tmp, format="png", facecolor=PAPER)
+    return Path(out_path)
 
 
 def blend_palette() -> np.ndarray:
@@ -472,7 +455,7 @@ def episode_animation(
     finally:
         renderer.close()
 
-    def write(tmp: Path) -> None:
+    with atomic_path(out_path) as tmp:
         images[0].save(
             tmp,
             format="GIF",
@@ -481,5 +464,4 @@ def episode_animation(
             duration=round(1000.0 / fps),
             loop=0,
         )
-
-    return _atomic_write(out_path, write)
+    return Path(out_path)

@@ -1,18 +1,12 @@
 """Play every episode of a suite with one controller and keep the results in a resumable file.
 
-The result file ``RESULTS_DIR/<suite>/<controller-slug>.json`` is one JSON object::
-
-    {"format": "flockward-results/1", "suite", "suite_version", "suite_hash", "controller",
-     "information_level", "controller_parameters", "provenance": {...},
-     "episodes": [{"family", "scenario", "seed", "index", **EpisodeRecord.as_dict()}, ...]}
-
-plus ``"environment": {"observation": ..., "reward": ...}`` when the run set environment
-arguments (absent for the defaults).
-
-with episodes sorted by index. It is rewritten atomically (temp file in the same directory,
-fsync, rename) every few episodes and at the end, so an interrupted run keeps what it finished
-and a rerun plays only the missing episodes. Strict JSON: a non-finite number (the closest
-approach of an episode whose controller failed before the first step) is written as null.
+The result file ``RESULTS_DIR/<suite>/<controller-slug>.json`` (layout in
+``flockward.bench.results``) holds episodes sorted by index. It is rewritten atomically (temp
+file in the same directory, fsync, rename) every few episodes and at the end, so an interrupted
+run keeps what it finished and a rerun plays only the missing episodes. Strict JSON: a non-finite
+number (the closest approach of an episode whose controller failed before the first step) is
+written as null. A run that sets environment arguments (observation, reward) records
+them under ``"environment"``; the defaults are not written.
 
 Each episode gets a fresh controller from ``controller_factory`` reset with the episode's seed,
 so a result depends only on (scenario, seed, controller settings): never on the order, the
@@ -24,12 +18,10 @@ from __future__ import annotations
 import json
 import math
 import multiprocessing
-import os
 import platform
 import re
 import subprocess
 import sys
-import tempfile
 import time
 from collections.abc import Callable, Iterable
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
@@ -43,8 +35,15 @@ import numpy as np
 
 import flockward
 from flockward.bench.episode import play_episode
+from flockward.bench.results import (
+    RESULTS_FORMAT,
+    UnreadableResults,
+    format_problem,
+    read_json,
+    write_results,
+)
 from flockward.bench.suites import EpisodeSpec, Suite, suite_hash
-from flockward.config.scenarios import scenario_hash
+from flockward.config.hashing import scenario_hash
 from flockward.controller import INFORMATION_LEVELS, Controller
 from flockward.sim.types import Scenario
 from flockward.task.env_config import EnvConfig
@@ -59,7 +58,6 @@ __all__ = [
     "run_suite",
 ]
 
-RESULTS_FORMAT = "flockward-results/1"
 SAVE_EVERY = 8  # episodes between saves
 SAVE_INTERVAL = 30.0  # s, longest wait between saves while episodes keep finishing
 
@@ -91,13 +89,13 @@ def read_results(path: str | Path) -> dict[str, Any]:
     """A result file's content; ResultsConflict if it is not a readable flockward result file."""
     path = Path(path)
     try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as error:
+        data = read_json(path)
+    except UnreadableResults as error:
         raise ResultsConflict(
             f"{path}: cannot read the existing result file ({error}); move or delete it, or "
             "write elsewhere with --results DIR"
         ) from None
-    if not isinstance(data, dict) or data.get("format") != RESULTS_FORMAT:
+    if format_problem(data) is not None:
         found = data.get("format") if isinstance(data, dict) else type(data).__name__
         raise ResultsConflict(
             f"{path}: not a {RESULTS_FORMAT} file (format {found!r}); move or delete it, or "
@@ -168,29 +166,6 @@ def _play(
         **record.as_dict(),
     }
     return _finite(row)
-
-
-def _umask() -> int:
-    mask = os.umask(0)
-    os.umask(mask)
-    return mask
-
-
-def _write_atomic(path: Path, data: dict[str, Any]) -> None:
-    """Replace ``path`` by ``data`` as JSON: a reader sees the old file or the new, never half."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; results are meant to be shared
-        with os.fdopen(fd, "w", encoding="utf-8") as handle:
-            json.dump(data, handle, indent=1, allow_nan=False)
-            handle.write("\n")
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
 
 
 def _environment(env_options: dict[str, Any] | None) -> dict[str, Any] | None:
@@ -326,7 +301,7 @@ def run_suite(
 
     def save() -> None:
         data["episodes"].sort(key=lambda row: row["index"])
-        _write_atomic(path, data)
+        write_results(path, data)
 
     scenarios = suite.scenarios
     bar = _progress_bar(len(specs), len(done), f"{suite.name}/{path.stem}", progress)

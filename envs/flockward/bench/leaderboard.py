@@ -35,10 +35,8 @@ from __future__ import annotations
 import csv
 import io
 import json
-import math
 import os
 import sys
-import tempfile
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -46,12 +44,11 @@ from typing import Any
 
 import numpy as np
 
-from flockward.controller import INFORMATION_LEVELS
+from flockward.bench.results import UnreadableResults, file_problem, read_json
+from flockward.config.atomic import write_atomic
 from flockward.task.outcome import Outcome
 
-RESULTS_FORMAT = "flockward-results/1"
 OUTPUT_STEM = "leaderboard"  # leaderboard.md / .png (and any leaderboard.*) are never inputs
-OUTCOMES = tuple(o.value for o in Outcome if o is not Outcome.RUNNING)  # how episodes end
 ROW_KEYS = (
     "controller",
     "information_level",
@@ -153,68 +150,6 @@ def _is_int(v: Any) -> bool:
     return isinstance(v, int) and not isinstance(v, bool)
 
 
-def _is_num(v: Any) -> bool:
-    return (_is_int(v) or isinstance(v, float)) and math.isfinite(v)
-
-
-def _episode_problem(ep: Any) -> str | None:
-    """Why an episode record cannot be scored, or None when it can."""
-    if not isinstance(ep, dict):
-        return "is not an object"
-    if not isinstance(ep.get("family"), str):
-        return "has no string 'family'"
-    outcome = ep.get("outcome")
-    if outcome not in OUTCOMES:
-        return f"has outcome {outcome!r}; allowed: {', '.join(OUTCOMES)}"
-    if not isinstance(ep.get("success"), bool) or ep["success"] != (outcome == Outcome.SUCCESS):
-        return "has 'success' that is not a boolean matching its outcome"
-    if outcome == Outcome.ERROR:
-        return None  # an error scores 0 whatever its other fields hold
-    birds, breached = ep.get("birds"), ep.get("breached_birds")
-    if not (_is_int(birds) and birds >= 1):
-        return "has 'birds' that is not a positive integer"
-    if not (_is_int(breached) and 0 <= breached <= birds):
-        return "has 'breached_birds' that is not an integer in [0, birds]"
-    if not (_is_int(ep.get("collision_steps")) and ep["collision_steps"] >= 0):
-        return "has 'collision_steps' that is not a non-negative integer"
-    mlf = ep.get("min_largest_fraction")
-    if not (_is_num(mlf) and 0.0 <= mlf <= 1.0):
-        return "has 'min_largest_fraction' that is not a number in [0, 1]"
-    t = ep.get("time_to_success")
-    if outcome == Outcome.SUCCESS and not (_is_num(t) and t >= 0):
-        return "is a success without a non-negative 'time_to_success'"
-    return None
-
-
-def _file_problem(data: Any, suite: str, expected_hash: str) -> str | None:
-    """Why a parsed result file is refused, or None when it is accepted."""
-    if not isinstance(data, dict):
-        return "is not a JSON object"
-    if data.get("format") != RESULTS_FORMAT:
-        return f"has format {data.get('format')!r}, expected {RESULTS_FORMAT!r}"
-    if data.get("suite") != suite:
-        return f"is for suite {data.get('suite')!r}, not {suite!r}"
-    if data.get("suite_hash") != expected_hash:
-        return (
-            f"has suite hash {data.get('suite_hash')!r} but suite {suite!r} as shipped has "
-            f"{expected_hash!r}; re-run the controller on the current suite"
-        )
-    if not _is_int(data.get("suite_version")):
-        return "has no integer 'suite_version'"
-    if not isinstance(data.get("controller"), str) or not data["controller"]:
-        return "has no controller name"
-    if data.get("information_level") not in INFORMATION_LEVELS:
-        return "has 'information_level' that is neither 'observation' nor 'state'"
-    episodes = data.get("episodes")
-    if not isinstance(episodes, list) or not episodes:
-        return "holds no episodes"
-    for i, ep in enumerate(episodes):
-        problem = _episode_problem(ep)
-        if problem:
-            return f"episode {i} {problem}"
-    return None
-
-
 def load_results(results_dir: str | os.PathLike[str], suite: str, expected_hash: str) -> list[dict]:
     """Every acceptable result file under ``<results_dir>/<suite>/``, in file-name order.
 
@@ -228,11 +163,11 @@ def load_results(results_dir: str | os.PathLike[str], suite: str, expected_hash:
         if path.stem == OUTPUT_STEM:
             continue
         try:
-            data = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+            data = read_json(path)
+        except UnreadableResults as exc:
             _warn(f"skipping {path}: not a readable JSON file ({exc})")
             continue
-        problem = _file_problem(data, suite, expected_hash)
+        problem = file_problem(data, suite, expected_hash)
         if problem is None and data["controller"] in seen:
             problem = f"repeats controller {data['controller']!r} of {seen[data['controller']]}"
         if problem:
@@ -342,19 +277,6 @@ _LEVEL_STYLE = {  # information level -> (colour, marker)
 }
 
 
-def _write_atomic(path: Path, data: bytes) -> None:
-    """Write ``data`` to a temporary file beside ``path``, then move it into place."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as f:
-            f.write(data)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-
-
 def write_chart(rows: Sequence[Mapping[str, Any]], path: str | os.PathLike[str]) -> Path:
     """A PNG of each controller's score IQM with CI whiskers; colour and marker show the input."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -386,7 +308,7 @@ def write_chart(rows: Sequence[Mapping[str, Any]], path: str | os.PathLike[str])
     fig.tight_layout()
     buf = io.BytesIO()
     fig.savefig(buf, format="png")
-    _write_atomic(out, buf.getvalue())
+    write_atomic(out, buf.getvalue())
     return out
 
 
@@ -416,7 +338,7 @@ class Leaderboard:
         """Write ``<results_dir>/<suite>/leaderboard.md`` and ``.png`` atomically; return both."""
         folder = Path(results_dir) / self.suite
         md = folder / f"{OUTPUT_STEM}.md"
-        _write_atomic(md, self.render("markdown").encode("utf-8"))
+        write_atomic(md, self.render("markdown"))
         return md, write_chart(self.rows, folder / f"{OUTPUT_STEM}.png")
 
 

@@ -1,9 +1,10 @@
 """Benchmark suites: TOML lists of (scenario, overrides, seed range) entries, read into records.
 
-A suite fixes exactly which episodes a controller is scored on. Its :func:`suite_hash` covers the
-resolved content of every episode, so two result files with the same hash were played on the same
-episodes. The shipped suites' hashes are recorded in ``KNOWN_SUITE_HASHES``: changing a shipped
-suite (or a scenario it uses) without bumping its ``version`` fails the test suite.
+A suite fixes exactly which episodes a controller is scored on. Its :func:`suite_hash` covers what
+determines every episode (each scenario's hash, which includes the model version, plus names,
+overrides and seeds), so two result files with the same hash were played on the same episodes.
+The shipped suites' hashes are recorded in ``KNOWN_SUITE_HASHES``: changing a shipped suite (or a
+scenario it uses) without bumping its ``version`` fails the test suite.
 
 File layout::
 
@@ -27,16 +28,18 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
 
-from flockward.config.scenarios import (
-    SCHEMA,
+from flockward.config.files import (
     ConfigError,
-    _label,
-    _read_toml,
     config_dir,
     list_scenarios,
-    load_scenario,
-    scenario_hash,
+    looks_like_path,
+    read_toml,
+    shipped_names,
 )
+from flockward.config.files import label as _label
+from flockward.config.hashing import scenario_hash
+from flockward.config.scenarios import load_scenario
+from flockward.config.schema import SECTIONS
 from flockward.sim.types import Scenario
 
 __all__ = [
@@ -52,10 +55,10 @@ __all__ = [
 # sha256 of each shipped suite's resolved episodes, by (name, version). A changed suite needs a
 # new version and a new row here (tests/test_suites.py prints the value to record).
 KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
-    ("smoke", 1): "ae28c65875d789ecc1f5916fb498e2dc8bdff62ca80db9078e587c69ec2c35f1",
-    ("standard", 1): "8eb0fbd4b9e9ac3fb0256bebce9f45bbc3b6205d4b4c5f08a187bdd0c5837f61",
-    ("stress", 1): "cfe69766beb7f1c2397fbf21d06624df76038b34d6754bb122dcee38d5be4894",
-    ("validation", 1): "b23c8edae1dafb467cc97709dde3ee01486a9546e0dcb554248a201c47a9fa47",
+    ("smoke", 1): "8a98670a2b6b32da6b48c784f391a15920e70b9425016569f3d5b53cca71240e",
+    ("standard", 1): "20092ffe0d3fd0acc386a195914e183865fd3d11bdd8bfcfa1a60e2470114dd7",
+    ("stress", 1): "6f0a9f2508b2d909ddfa6a2e463a729bc276ad5b04a6e8add73511fde9f40cb1",
+    ("validation", 1): "7481de101df4641372c0b913f5b910d7dcc97e12ea655799409a11b68288b19a",
 }
 
 _NAME_RE = re.compile(r"[a-z0-9][a-z0-9_-]{0,39}")
@@ -64,7 +67,6 @@ _MAX_SEED = 2**31 - 1
 _MAX_VERSION = 1_000_000
 _TOP_KEYS = ("name", "version", "description", "entry")
 _ENTRY_KEYS = ("scenario", "overrides", "seeds", "family")
-_SECTIONS = tuple(s for s in SCHEMA if s)
 
 
 @dataclass(frozen=True)
@@ -118,12 +120,12 @@ class Suite:
 
 def list_suites() -> list[str]:
     """Names of the shipped suites (file stems under configs/suites/)."""
-    return sorted(p.stem for p in (config_dir() / "suites").glob("*.toml"))
+    return shipped_names("suites")
 
 
 def _suite_file(name_or_path: str | Path) -> Path:
     text = str(name_or_path)
-    if isinstance(name_or_path, Path) or text.endswith(".toml") or "/" in text or "\\" in text:
+    if looks_like_path(name_or_path):
         return Path(name_or_path)
     if text not in list_suites():
         raise ConfigError(f"{text}: unknown suite name; shipped: {', '.join(list_suites())}")
@@ -137,7 +139,7 @@ def _flat_overrides(table: Mapping[str, object]) -> dict[str, object]:
     """
     flat: dict[str, object] = {}
     for key, value in table.items():
-        if key in _SECTIONS and isinstance(value, Mapping):
+        if key in SECTIONS and isinstance(value, Mapping):
             for sub, inner in value.items():
                 flat[f"{key}.{sub}"] = inner
         else:
@@ -169,7 +171,7 @@ def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
     ref = raw["scenario"]
     if not isinstance(ref, str) or not ref:
         raise fail("scenario", ref, "must be a shipped scenario name or a path to a TOML file")
-    is_path = ref.endswith(".toml") or "/" in ref or "\\" in ref
+    is_path = looks_like_path(ref)
     if not is_path and ref not in list_scenarios():
         raise fail(
             "scenario",
@@ -224,7 +226,7 @@ def load_suite(name_or_path: str | Path) -> Suite:
     """
     file = _suite_file(name_or_path)
     label = _label(file)
-    data = _read_toml(file)
+    data = read_toml(file)
     for key in data:
         if key not in _TOP_KEYS:
             raise ConfigError(f"{label}: unknown key '{key}'; allowed: {', '.join(_TOP_KEYS)}")

@@ -214,6 +214,41 @@ def polygon_is_simple(vertices: np.ndarray) -> bool:
     return True
 
 
+def vertices_collinear(vertices: np.ndarray, rel_tol: float = 1e-9) -> bool:
+    """Whether all vertices lie on one line, to within ``rel_tol`` of the squared coordinate scale:
+    such a polygon has no interior worth the name, however its edges run."""
+    v = np.asarray(vertices, dtype=np.float64)
+    scale = max(float(np.max(np.abs(v))), 1.0)
+    a = v[0]
+    b = v[int(np.argmax(np.hypot(v[:, 0] - a[0], v[:, 1] - a[1])))]
+    return all(abs(_orient(a, b, c)) <= rel_tol * scale * scale for c in v)
+
+
+def zones_overlap(a: Zone, b: Zone) -> bool:
+    """Whether two zones share interior points. A circle touching another zone from outside does
+    not overlap it; two polygons whose boundaries touch count as overlapping (the safe answer for
+    a goal beside a protected zone)."""
+    if isinstance(a, Circle) and isinstance(b, Circle):
+        return math.dist(a.center, b.center) < a.radius + b.radius
+    if isinstance(a, Polygon) and isinstance(b, Circle):
+        a, b = b, a
+    if isinstance(a, Circle):
+        return float(signed_distance(zone_arrays(b), np.asarray(a.center))) < a.radius
+    va = np.asarray(a.vertices, dtype=np.float64)
+    vb = np.asarray(b.vertices, dtype=np.float64)
+    for i in range(len(va)):
+        for j in range(len(vb)):
+            if _segments_touch(va[i], va[(i + 1) % len(va)], vb[j], vb[(j + 1) % len(vb)]):
+                return True
+    # No edges meet: either the polygons are apart or one lies wholly inside the other.
+    return bool(contains(zone_arrays(b), va[0]) or contains(zone_arrays(a), vb[0]))
+
+
+def zone_contains(zone: Zone, point: tuple[float, float]) -> bool:
+    """Whether one point lies strictly inside a zone record."""
+    return bool(contains(zone_arrays(zone), np.asarray(point, dtype=np.float64)))
+
+
 @numba.njit(cache=True)
 def convex_hull(points: np.ndarray) -> np.ndarray:
     """Indices of the convex-hull vertices of points (n, 2), counter-clockwise from the lowest-x

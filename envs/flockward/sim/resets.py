@@ -5,13 +5,13 @@ Everything ``World.reset`` needs and nothing more, so the simulator never reads 
 
 from __future__ import annotations
 
-import dataclasses
 import math
 from dataclasses import dataclass
 
 import numpy as np
 
 from flockward.sim.formations import formation_offsets
+from flockward.sim.limits import derived
 from flockward.sim.types import SCALABLE_GAINS, FlockParams, Scenario
 
 __all__ = ["RESET_DRAWS", "ResetSample", "sample_reset"]
@@ -66,7 +66,8 @@ def sample_reset(scenario: Scenario, rng: np.random.Generator) -> ResetSample:
     heading = base + math.radians(uniform("heading_deg", 0.0))
     scale = uniform("gain_scale", 1.0)
     changes: dict[str, object] = {name: getattr(flock, name) * scale for name in SCALABLE_GAINS}
-    sampled = dataclasses.replace(
+    # A draw may scale gains or turn the heading past what a config may write: not re-checked.
+    sampled = derived(
         flock,
         count=count,
         heading_deg=math.degrees(heading),

@@ -1,9 +1,9 @@
 """Frozen parameter records and the batched world state.
 
 Every length is in metres, every speed in m/s, every acceleration in m/s^2, every time in seconds,
-every angle in degrees in configs (radians inside the code). Parameters are validated where they
-are read (``flockward.config.scenarios``); the records here only hold them and derive values in
-one place.
+every angle in degrees in configs (radians inside the code). Each parameter record checks its
+fields and their relations when it is built (the rules are in ``flockward.sim.limits``), raising a
+one-line ``ValueError``; derived values are properties computed in one place.
 """
 
 from __future__ import annotations
@@ -13,6 +13,14 @@ from dataclasses import dataclass, field, fields
 import numpy as np
 
 FORMATIONS = ("disc", "hex", "line", "cluster")
+
+
+def _check(record: object) -> None:
+    """Validate a parameter record on construction (rules and messages in flockward.sim.limits)."""
+    # Imported here: limits reads geometry, which reads the zone records of this module.
+    from flockward.sim.limits import check_record
+
+    check_record(record)
 
 
 @dataclass(frozen=True)
@@ -49,6 +57,9 @@ class FlockParams:
     dodge_gain: float = 10.0  # m/s^2 at zero distance, falling linearly to 0 at dodge_radius
     noise_std: float = 0.0  # m/s^2, standard deviation of Gaussian acceleration noise
     link_radius: float | None = None  # m, proximity-graph radius for fragmentation; None = cohesion
+
+    def __post_init__(self) -> None:
+        _check(self)
 
     @property
     def interaction_radius(self) -> float:
@@ -108,6 +119,9 @@ class PursuerParams:
     max_accel: float = 8.0  # m/s^2
     safety_radius: float = 5.0  # m, closer than this to any bird counts as a collision
 
+    def __post_init__(self) -> None:
+        _check(self)
+
 
 @dataclass(frozen=True)
 class Circle:
@@ -136,6 +150,9 @@ class SiteParams:
     destination: tuple[float, float] = (800.0, 0.0)  # m, the flock's roost or feeding ground
     flock_start: tuple[float, float] = (-600.0, 0.0)  # m, centre of the initial formation
 
+    def __post_init__(self) -> None:
+        _check(self)
+
 
 @dataclass(frozen=True)
 class EpisodeParams:
@@ -145,6 +162,9 @@ class EpisodeParams:
     max_steps: int = 1500  # steps (150 s at the default dt)
     success_fraction: float = 0.9  # share of birds inside the goal region that counts as success
     max_breaching_birds: int = 0  # distinct birds allowed inside the protected zone before failure
+
+    def __post_init__(self) -> None:
+        _check(self)
 
 
 @dataclass(frozen=True)
@@ -160,6 +180,9 @@ class RewardWeights:
     success: float = 10.0  # once, on success
     discount: float = 0.99  # gamma of the potential-based shaping term
 
+    def __post_init__(self) -> None:
+        _check(self)
+
 
 @dataclass(frozen=True)
 class Randomisation:
@@ -172,6 +195,9 @@ class Randomisation:
     gain_scale: tuple[float, float] | None = None  # factor on every SCALABLE_GAINS entry
     cruise_speed: tuple[float, float] | None = None  # m/s
     noise_std: tuple[float, float] | None = None  # m/s^2
+
+    def __post_init__(self) -> None:
+        _check(self)
 
 
 @dataclass(frozen=True)
@@ -187,6 +213,9 @@ class Scenario:
     reward: RewardWeights = field(default_factory=RewardWeights)
     randomise: Randomisation = field(default_factory=Randomisation)
     source_file: str | None = None  # where it was read from, for messages and provenance
+
+    def __post_init__(self) -> None:
+        _check(self)
 
     @property
     def max_birds(self) -> int:

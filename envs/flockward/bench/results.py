@@ -1,0 +1,126 @@
+"""Result files: their format, reading, writing and validation, shared by the runner that writes
+them (``flockward.bench.evaluation``) and the leaderboard that reads them.
+
+A result file ``<results>/<suite>/<controller-slug>.json`` is one strict JSON object (indent 1)::
+
+    {"format": "flockward-results/1", "suite", "suite_version", "suite_hash", "controller",
+     "information_level", "controller_parameters", "provenance": {...},
+     "episodes": [{"family", "scenario", "seed", "index", **EpisodeRecord.as_dict()}, ...]}
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+from pathlib import Path
+from typing import Any
+
+from flockward.config.atomic import write_atomic
+from flockward.controller import INFORMATION_LEVELS
+from flockward.task.outcome import Outcome
+
+__all__ = [
+    "OUTCOMES",
+    "RESULTS_FORMAT",
+    "UnreadableResults",
+    "episode_problem",
+    "file_problem",
+    "format_problem",
+    "read_json",
+    "write_results",
+]
+
+RESULTS_FORMAT = "flockward-results/1"
+OUTCOMES = tuple(o.value for o in Outcome if o is not Outcome.RUNNING)  # how episodes end
+
+
+class UnreadableResults(ValueError):
+    """A result file cannot be read or is not JSON; the message says why."""
+
+
+def read_json(path: str | os.PathLike[str]) -> Any:
+    """The parsed content of a result file (not yet validated)."""
+    try:
+        return json.loads(Path(path).read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as error:
+        raise UnreadableResults(str(error)) from None
+
+
+def write_results(path: str | os.PathLike[str], data: dict[str, Any]) -> None:
+    """Replace ``path`` by ``data`` as strict JSON: a reader sees the old file or the new."""
+    write_atomic(path, json.dumps(data, indent=1, allow_nan=False) + "\n")
+
+
+def format_problem(data: Any) -> str | None:
+    """Why parsed content is not a result file of this format, or None."""
+    if not isinstance(data, dict):
+        return "is not a JSON object"
+    if data.get("format") != RESULTS_FORMAT:
+        return f"has format {data.get('format')!r}, expected {RESULTS_FORMAT!r}"
+    return None
+
+
+def _is_int(v: Any) -> bool:
+    return isinstance(v, int) and not isinstance(v, bool)
+
+
+def _is_num(v: Any) -> bool:
+    return (_is_int(v) or isinstance(v, float)) and math.isfinite(v)
+
+
+def episode_problem(ep: Any) -> str | None:
+    """Why an episode record cannot be scored, or None when it can."""
+    if not isinstance(ep, dict):
+        return "is not an object"
+    if not isinstance(ep.get("family"), str):
+        return "has no string 'family'"
+    outcome = ep.get("outcome")
+    if outcome not in OUTCOMES:
+        return f"has outcome {outcome!r}; allowed: {', '.join(OUTCOMES)}"
+    if not isinstance(ep.get("success"), bool) or ep["success"] != (outcome == "success"):
+        return "has 'success' that is not a boolean matching its outcome"
+    if outcome == "error":
+        return None  # an error scores 0 whatever its other fields hold
+    birds, breached = ep.get("birds"), ep.get("breached_birds")
+    if not (_is_int(birds) and birds >= 1):
+        return "has 'birds' that is not a positive integer"
+    if not (_is_int(breached) and 0 <= breached <= birds):
+        return "has 'breached_birds' that is not an integer in [0, birds]"
+    if not (_is_int(ep.get("collision_steps")) and ep["collision_steps"] >= 0):
+        return "has 'collision_steps' that is not a non-negative integer"
+    mlf = ep.get("min_largest_fraction")
+    if not (_is_num(mlf) and 0.0 <= mlf <= 1.0):
+        return "has 'min_largest_fraction' that is not a number in [0, 1]"
+    t = ep.get("time_to_success")
+    if outcome == "success" and not (_is_num(t) and t >= 0):
+        return "is a success without a non-negative 'time_to_success'"
+    return None
+
+
+def file_problem(data: Any, suite: str, expected_hash: str) -> str | None:
+    """Why a parsed result file cannot be scored against ``suite`` as shipped, or None."""
+    problem = format_problem(data)
+    if problem is not None:
+        return problem
+    if data.get("suite") != suite:
+        return f"is for suite {data.get('suite')!r}, not {suite!r}"
+    if data.get("suite_hash") != expected_hash:
+        return (
+            f"has suite hash {data.get('suite_hash')!r} but suite {suite!r} as shipped has "
+            f"{expected_hash!r}; re-run the controller on the current suite"
+        )
+    if not _is_int(data.get("suite_version")):
+        return "has no integer 'suite_version'"
+    if not isinstance(data.get("controller"), str) or not data["controller"]:
+        return "has no controller name"
+    if data.get("information_level") not in INFORMATION_LEVELS:
+        return "has 'information_level' that is neither 'observation' nor 'state'"
+    episodes = data.get("episodes")
+    if not isinstance(episodes, list) or not episodes:
+        return "holds no episodes"
+    for i, ep in enumerate(episodes):
+        problem = episode_problem(ep)
+        if problem:
+            return f"episode {i} {problem}"
+    return None

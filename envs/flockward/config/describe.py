@@ -1,0 +1,38 @@
+"""A scenario in a few lines of text, for people (``flockward check``, ``flockward scenarios``)."""
+
+from __future__ import annotations
+
+from flockward.sim.limits import number_text, point_text, zone_text
+from flockward.sim.resets import RESET_DRAWS
+from flockward.sim.types import Scenario
+
+__all__ = ["describe"]
+
+
+def describe(scenario: Scenario) -> str:
+    """A short multi-line summary: birds, speeds, zones, time step and length."""
+    n = number_text
+    f, site, ep, rnd = scenario.flock, scenario.site, scenario.episode, scenario.randomise
+    heading = "toward destination" if f.heading_deg is None else f"{n(f.heading_deg)} deg"
+    lines = [
+        f"{scenario.name}: {scenario.description}".rstrip(": "),
+        f"  birds:     {f.count} {f.name} in a {f.formation} formation, "
+        f"spacing {n(f.spacing)} m, heading {heading}",
+        f"  speeds:    start {n(f.speed)}, cruise {n(f.cruise_speed)}, "
+        f"range {n(f.min_speed)}-{n(f.max_speed)} m/s; noise {n(f.noise_std)} m/s^2",
+        f"  source:    {f.source}",
+        f"  protected: {zone_text(site.protected)}",
+        f"  goal:      {zone_text(site.goal)}",
+        f"  route:     {point_text(site.flock_start)} -> {point_text(site.destination)} m",
+        f"  pursuer:   start {point_text(scenario.pursuer.start)} m, "
+        f"max {n(scenario.pursuer.max_speed)} m/s, {n(scenario.pursuer.max_accel)} m/s^2",
+        f"  episode:   dt {n(ep.dt)} s x {ep.max_steps} steps = {n(ep.dt * ep.max_steps)} s",
+    ]
+    drawn = [
+        f"{name} {n(span[0])}..{n(span[1])}"
+        for name in RESET_DRAWS
+        if (span := getattr(rnd, name)) is not None
+    ]
+    if drawn:
+        lines.append(f"  randomise: {', '.join(drawn)}")
+    return "\n".join(lines)

@@ -1,0 +1,171 @@
+"""The key schema of config files and the checking of raw values against it.
+
+Every key a scenario may hold, with its type, range and unit, is one row of ``SCHEMA``: the
+records' own table (``flockward.sim.limits.LIMITS``), so a file and a record built in Python obey
+the same ranges. Error messages and :func:`config_reference` are both generated from it. Suites
+and training configs check their own keys with the same :class:`Spec` and :class:`Origin`.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Mapping
+from dataclasses import dataclass
+
+from flockward.config.files import ConfigError
+from flockward.sim.limits import (
+    LIMITS,
+    MAX_VERTICES,
+    NAME_RE,
+    POINT,
+    RADIUS,
+    Spec,
+    polygon_problem,
+    value_text,
+)
+from flockward.sim.types import Circle, Polygon, Zone
+
+__all__ = ["FLOCK_FILE_KEY", "SCHEMA", "SECTIONS", "Origin", "Spec", "config_reference", "convert"]
+
+SCHEMA: dict[str, dict[str, Spec]] = LIMITS
+SECTIONS = tuple(s for s in SCHEMA if s)
+FLOCK_FILE_KEY = "file"  # [flock] file = "gulls": the only key not a FlockParams field
+_CIRCLE_KEYS = ("center", "radius")
+
+
+def config_reference() -> str:
+    """The schema as a Markdown table (key, allowed values), for the documentation."""
+    lines = ["| key | allowed |", "| --- | --- |"]
+    for section, specs in SCHEMA.items():
+        for key, spec in specs.items():
+            dotted = f"{section}.{key}" if section else key
+            note = " (optional)" if spec.optional else ""
+            lines.append(f"| `{dotted}` | {spec.allowed()}{note} |")
+    lines.append(
+        f"| `flock.{FLOCK_FILE_KEY}` | a shipped flock name or a path relative to the scenario "
+        "file; the other [flock] keys override its values (optional) |"
+    )
+    return "\n".join(lines)
+
+
+@dataclass(frozen=True)
+class Origin:
+    """Where a value came from: a file and a dotted key, or an override of that file's scenario."""
+
+    file: str
+    key: str
+    override: bool = False
+    layer: int = 2  # 0 default, 1 flock file, 2 scenario file, 3 override: later layers win
+
+    def default(self) -> Origin:
+        """The same key, marked as not written anywhere (a record default)."""
+        return dataclasses.replace(self, layer=0)
+
+    @property
+    def word(self) -> str:
+        return "override" if self.override else "key"
+
+    def child(self, sub: str) -> Origin:
+        key = f"{self.key}.{sub}" if self.key else sub
+        return dataclasses.replace(self, key=key)
+
+    def error(self, value: object, allowed: str) -> ConfigError:
+        text = f"{self.file}: {self.word} '{self.key}' = {value_text(value)}: {allowed}"
+        return ConfigError(" ".join(text.split("\n")))
+
+    def unknown(self, sub: str, allowed: object) -> ConfigError:
+        dotted = self.child(sub).key
+        names = ", ".join(str(a) for a in allowed)
+        return ConfigError(f"{self.file}: unknown {self.word} '{dotted}'; allowed: {names}")
+
+
+# --------------------------------------------------------------------------------------------
+# Value parsing, one function per Spec kind.
+
+
+def _number(value: object, spec: Spec, origin: Origin, integer: bool) -> float | int:
+    """A bounded number; bool is rejected (TOML true is not 1), as are nan and inf."""
+    if not spec.number_ok(value, integer):
+        raise origin.error(value, spec.allowed())
+    return int(value) if integer else float(value)  # type: ignore[arg-type]
+
+
+def _point(value: object, spec: Spec, origin: Origin) -> tuple[float, float]:
+    if not (isinstance(value, list | tuple) and len(value) == 2):
+        raise origin.error(value, spec.allowed())
+    coord = Spec("float", spec.lo, spec.hi, spec.unit)
+    try:
+        x, y = (_number(v, coord, origin, integer=False) for v in value)
+    except ConfigError:
+        raise origin.error(value, spec.allowed()) from None
+    return (float(x), float(y))
+
+
+def _zone(value: object, spec: Spec, origin: Origin) -> Zone:
+    if not (isinstance(value, Mapping) and len(value) == 1):
+        raise origin.error(value, spec.allowed())
+    ((shape, body),) = value.items()
+    if shape == "circle":
+        sub = origin.child("circle")
+        if not isinstance(body, Mapping):
+            raise sub.error(body, "must be a table { center = [x, y], radius = r }")
+        for key in body:
+            if key not in _CIRCLE_KEYS:
+                raise sub.unknown(key, _CIRCLE_KEYS)
+        for key in _CIRCLE_KEYS:
+            if key not in body:
+                raise sub.error(body, f"needs both {' and '.join(_CIRCLE_KEYS)}")
+        center = _point(body["center"], POINT, sub.child("center"))
+        radius = _number(body["radius"], RADIUS, sub.child("radius"), integer=False)
+        return Circle(center, float(radius))
+    if shape == "polygon":
+        sub = origin.child("polygon")
+        if not isinstance(body, list | tuple) or not 3 <= len(body) <= MAX_VERTICES:
+            raise sub.error(body, f"must list 3 to {MAX_VERTICES} vertices [x, y]")
+        vertices = tuple(_point(v, POINT, sub) for v in body)
+        problem = polygon_problem(vertices)
+        if problem is not None:
+            raise sub.error(body, problem)
+        return Polygon(vertices)
+    raise origin.unknown(str(shape), ("circle", "polygon"))
+
+
+def convert(value: object, spec: Spec, origin: Origin) -> object:
+    """Check one raw value against its Spec and return it in the type the records hold."""
+    if value is None and spec.optional:
+        return None
+    kind = spec.kind
+    if kind in ("int", "float"):
+        return _number(value, spec, origin, integer=kind == "int")
+    if kind == "bool":
+        if not isinstance(value, bool):
+            raise origin.error(value, spec.allowed())
+        return value
+    if kind == "str":
+        if not isinstance(value, str) or len(value) > spec.max_len:
+            raise origin.error(value, spec.allowed())
+        return value
+    if kind == "name":
+        if not (isinstance(value, str) and NAME_RE.fullmatch(value)):
+            raise origin.error(value, spec.allowed())
+        return value
+    if kind == "choice":
+        if value not in spec.choices or not isinstance(value, str):
+            raise origin.error(value, spec.allowed())
+        return value
+    if kind == "point":
+        return _point(value, spec, origin)
+    if kind == "zone":
+        return _zone(value, spec, origin)
+    if kind == "range":
+        if not (isinstance(value, list | tuple) and len(value) == 2):
+            raise origin.error(value, spec.allowed())
+        item = Spec(spec.item, spec.lo, spec.hi, spec.unit, lo_open=spec.lo_open)
+        try:
+            lo, hi = (_number(v, item, origin, integer=spec.item == "int") for v in value)
+        except ConfigError:
+            raise origin.error(value, spec.allowed()) from None
+        if lo > hi:
+            raise origin.error(value, spec.allowed())
+        return (lo, hi)
+    raise AssertionError(kind)
