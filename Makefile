@@ -6,7 +6,7 @@ BIN    := $(VENV)/bin
 TORCH  := torch==2.13.0
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test soak lint format bench clean
+.PHONY: demo test soak lint type format bench clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -21,6 +21,7 @@ demo: $(STAMP)
 test: $(STAMP)
 	$(BIN)/ruff check envs baselines tests
 	$(BIN)/ruff format --check envs baselines tests
+	$(BIN)/mypy
 	$(BIN)/python -m pytest -q
 
 # The long checks (a million random-action world-steps over every scenario); CI runs them too.
@@ -29,6 +30,9 @@ soak: $(STAMP)
 
 lint: $(STAMP)
 	$(BIN)/ruff check envs baselines tests
+
+type: $(STAMP)
+	$(BIN)/mypy
 
 format: $(STAMP)
 	$(BIN)/ruff format envs baselines tests
