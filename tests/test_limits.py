@@ -195,3 +195,19 @@ def test_derived_copy_skips_range_checks_but_not_field_names() -> None:
         dataclasses.replace(flock, heading_deg=500.0)
     with pytest.raises(TypeError, match="no field wingspan"):
         derived(flock, wingspan=1.0)
+
+
+def test_every_parameter_field_declares_its_spec_beside_it():
+    # A parameter's range lives on its field (flockward.sim.spec.param), so a new parameter is one
+    # line in flockward.sim.types; the only fields without a spec hold nested records or provenance.
+    from dataclasses import fields
+
+    from flockward.sim.spec import spec_of
+
+    unchecked = {"flock", "pursuer", "site", "episode", "reward", "randomise", "source_file"}
+    for record, section in RECORD_SECTIONS.items():
+        for f in fields(record):
+            if f.name in unchecked and record.__name__ == "Scenario":
+                continue
+            assert spec_of(f) is not None, f"{record.__name__}.{f.name} has no spec"
+            assert LIMITS[section][f.name] is spec_of(f)

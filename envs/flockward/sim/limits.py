@@ -12,16 +12,23 @@ from __future__ import annotations
 import copy
 import json
 import math
-import re
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, fields
+from dataclasses import fields
 from typing import TypeVar
 
 import numpy as np
 
 from flockward.sim import geometry
+from flockward.sim.spec import (
+    MAX_VERTICES,
+    NAME_RE,
+    POINT,
+    RADIUS,
+    Spec,
+    number_text,
+    spec_of,
+)
 from flockward.sim.types import (
-    FORMATIONS,
     Circle,
     EpisodeParams,
     FlockParams,
@@ -47,6 +54,7 @@ __all__ = [
     "number_text",
     "polygon_problem",
     "value_text",
+    "zone_ok",
     "zone_table",
     "zone_text",
 ]
@@ -55,20 +63,9 @@ __all__ = [
 # the formula by more than 1e-4 relative (flockward.sim.dynamics.alignment_table).
 MAX_ALIGNMENT_REACH = 10.0
 
-COORD = 100_000.0  # m, bound on every coordinate: far beyond any airfield's wildlife zone
-NAME_RE = re.compile(r"[a-z0-9][a-z0-9_-]{0,39}")
-MAX_VERTICES = 256
-
 
 # --------------------------------------------------------------------------------------------
 # Text of numbers and values, shared by record errors and config errors.
-
-
-def number_text(x: object) -> str:
-    """Short number text: 150.0 -> '150', 0.1 -> '0.1'."""
-    if isinstance(x, float) and x.is_integer() and abs(x) < 1e15:
-        return str(int(x))
-    return str(x)
 
 
 def zone_table(zone: Zone) -> dict[str, object]:
@@ -116,210 +113,8 @@ def zone_text(zone: Zone) -> str:
 
 
 # --------------------------------------------------------------------------------------------
-# Per-field specs.
+# Per-field specs, read off the records' field declarations.
 
-
-def _is_number(value: object) -> bool:
-    return not isinstance(value, bool) and isinstance(value, int | float | np.integer | np.floating)
-
-
-def _is_integer(value: object) -> bool:
-    return not isinstance(value, bool) and isinstance(value, int | np.integer)
-
-
-@dataclass(frozen=True)
-class Spec:
-    """Type, bounds and unit of one field (one config key).
-
-    kind: "int", "float", "bool", "str", "name" (lower-case identifier), "choice", "point"
-    ([x, y]), "zone" (circle or polygon) or "range" ([lo, hi] of ``item`` numbers).
-    """
-
-    kind: str
-    lo: float | None = None
-    hi: float | None = None
-    unit: str = ""
-    lo_open: bool = False  # lower bound excluded: the value must be strictly greater than lo
-    optional: bool = False  # may be absent (None); absence means what the field comment says
-    choices: tuple[str, ...] = ()
-    item: str = "float"  # element type of a "range"
-    max_len: int = 2000  # characters of a "str"
-
-    def bounds(self) -> str:
-        """Interval text like '(0, 100] m/s'."""
-        left = "(" if self.lo_open else "["
-        text = f"{left}{number_text(self.lo)}, {number_text(self.hi)}]"
-        return f"{text} {self.unit}" if self.unit else text
-
-    def within(self, x: float) -> bool:
-        """Whether a number lies inside the bounds."""
-        assert self.lo is not None and self.hi is not None
-        below = x <= self.lo if self.lo_open else x < self.lo
-        return not below and x <= self.hi
-
-    def allowed(self) -> str:
-        """What a valid value looks like, for error messages and the reference table."""
-        if self.kind == "int":
-            return f"must be an integer in {self.bounds()}"
-        if self.kind == "float":
-            return f"must be a finite number in {self.bounds()}"
-        if self.kind == "bool":
-            return "must be true or false"
-        if self.kind == "str":
-            return f"must be a string of at most {self.max_len} characters"
-        if self.kind == "name":
-            return "must be a lower-case name of at most 40 characters: a-z, 0-9, '_', '-'"
-        if self.kind == "choice":
-            return f"must be one of: {', '.join(self.choices)}"
-        if self.kind == "point":
-            return f"must be [x, y] with x and y finite numbers in {self.bounds()}"
-        if self.kind == "zone":
-            return (
-                "must be { circle = { center = [x, y], radius = r } } or "
-                "{ polygon = [[x, y], ...] } (a simple polygon, 3 to "
-                f"{MAX_VERTICES} vertices, non-zero area)"
-            )
-        if self.kind == "range":
-            what = "integers" if self.item == "int" else "finite numbers"
-            return f"must be [lo, hi] with lo <= hi, {what} in {self.bounds()}"
-        raise AssertionError(self.kind)
-
-    def number_ok(self, value: object, integer: bool) -> bool:
-        """A bounded number; bool is not a number here (TOML true is not 1), nor are nan, inf."""
-        if integer:
-            return _is_integer(value) and self.within(int(value))  # type: ignore[arg-type]
-        return (
-            _is_number(value)
-            and math.isfinite(float(value))  # type: ignore[arg-type]
-            and self.within(float(value))  # type: ignore[arg-type]
-        )
-
-    def accepts(self, value: object) -> bool:
-        """Whether a value as a record holds it (tuples, zone records) satisfies this spec."""
-        if value is None:
-            return self.optional
-        kind = self.kind
-        if kind in ("int", "float"):
-            return self.number_ok(value, integer=kind == "int")
-        if kind == "bool":
-            return isinstance(value, bool)
-        if kind == "str":
-            return isinstance(value, str) and len(value) <= self.max_len
-        if kind == "name":
-            return isinstance(value, str) and NAME_RE.fullmatch(value) is not None
-        if kind == "choice":
-            return isinstance(value, str) and value in self.choices
-        if kind == "point":
-            coord = Spec("float", self.lo, self.hi)
-            return _pair(value) and all(coord.number_ok(v, False) for v in value)  # type: ignore[union-attr]
-        if kind == "zone":
-            return _zone_ok(value)
-        if kind == "range":
-            item = Spec(self.item, self.lo, self.hi, lo_open=self.lo_open)
-            integer = self.item == "int"
-            return (
-                _pair(value)
-                and all(item.number_ok(v, integer) for v in value)  # type: ignore[union-attr]
-                and value[0] <= value[1]  # type: ignore[index]
-            )
-        raise AssertionError(kind)
-
-
-def _pair(value: object) -> bool:
-    return isinstance(value, list | tuple) and len(value) == 2
-
-
-def _f(lo: float, hi: float, unit: str = "", *, open_lo: bool = False, opt: bool = False) -> Spec:
-    return Spec("float", lo, hi, unit, lo_open=open_lo, optional=opt)
-
-
-def _pos(hi: float, unit: str = "", *, opt: bool = False) -> Spec:
-    """A strictly positive number up to ``hi``."""
-    return _f(0.0, hi, unit, open_lo=True, opt=opt)
-
-
-def _range(
-    lo: float, hi: float, unit: str = "", item: str = "float", open_lo: bool = False
-) -> Spec:
-    return Spec("range", lo, hi, unit, item=item, optional=True, lo_open=open_lo)
-
-
-POINT = Spec("point", -COORD, COORD, "m")
-RADIUS = _pos(COORD, "m")
-
-# One table per record, keyed by the section name a scenario file uses ("" = top-level keys).
-LIMITS: dict[str, dict[str, Spec]] = {
-    "": {
-        "name": Spec("name"),
-        "description": Spec("str", max_len=2000),
-    },
-    "flock": {
-        "name": Spec("name"),
-        "source": Spec("str", max_len=400),
-        "count": Spec("int", 1, 5000, "birds"),
-        "formation": Spec("choice", choices=FORMATIONS),
-        "spacing": _pos(100.0, "m"),
-        "heading_deg": _f(-360.0, 360.0, "deg", opt=True),
-        "speed": _f(0.0, 60.0, "m/s"),
-        "cruise_speed": _pos(60.0, "m/s"),
-        "min_speed": _f(0.0, 60.0, "m/s"),
-        "max_speed": _pos(80.0, "m/s"),
-        "max_accel": _pos(100.0, "m/s^2"),
-        "separation_radius": _pos(100.0, "m"),
-        "separation_gain": _f(0.0, 1000.0, "m^2/s^2"),
-        "alignment_radius": _pos(500.0, "m"),
-        "alignment_gain": _f(0.0, 100.0, "1/s"),
-        "alignment_sigma": _pos(500.0, "m"),
-        "alignment_beta": _f(0.0, 5.0),
-        "cohesion_radius": _pos(500.0, "m"),
-        "cohesion_gain": _f(0.0, 100.0, "1/s^2"),
-        "destination_gain": _f(0.0, 100.0, "1/s"),
-        "alarm_radius": _pos(1000.0, "m"),
-        "flee_gain": _f(0.0, 1000.0, "m/s^2"),
-        "dodge_radius": _pos(1000.0, "m"),
-        "dodge_gain": _f(0.0, 1000.0, "m/s^2"),
-        "noise_std": _f(0.0, 100.0, "m/s^2"),
-        "link_radius": _pos(1000.0, "m", opt=True),
-    },
-    "pursuer": {
-        "start": POINT,
-        # 44.7 m/s = 87 kn, the groundspeed limit for small drones in US 14 CFR 107.51.
-        "max_speed": _pos(44.7, "m/s"),
-        "max_accel": _pos(50.0, "m/s^2"),
-        "safety_radius": _f(0.0, 100.0, "m"),
-    },
-    "site": {
-        "protected": Spec("zone"),
-        "goal": Spec("zone"),
-        "destination": POINT,
-        "flock_start": POINT,
-    },
-    "episode": {
-        "dt": _pos(1.0, "s"),
-        "max_steps": Spec("int", 1, 1_000_000, "steps"),
-        "success_fraction": _pos(1.0),
-        "max_breaching_birds": Spec("int", 0, 5000, "birds"),
-    },
-    "reward": {
-        "progress": _f(0.0, 1000.0),
-        "approach": _f(0.0, 1000.0),
-        "fragmentation": _f(0.0, 1000.0),
-        "collision": _f(0.0, 1000.0),
-        "breach": _f(0.0, 1000.0),
-        "time": _f(0.0, 1000.0),
-        "success": _f(0.0, 1000.0),
-        "discount": _f(0.0, 1.0),
-    },
-    "randomise": {
-        "count": _range(1, 5000, "birds", item="int"),
-        "heading_deg": _range(-180.0, 180.0, "deg"),
-        "offset_x": _range(-5000.0, 5000.0, "m"),
-        "offset_y": _range(-5000.0, 5000.0, "m"),
-        "gain_scale": _range(0.0, 10.0, open_lo=True),
-        "cruise_speed": _range(0.0, 60.0, "m/s", open_lo=True),
-        "noise_std": _range(0.0, 100.0, "m/s^2"),
-    },
-}
 
 # The record each section builds.
 RECORD_SECTIONS: dict[type, str] = {
@@ -330,6 +125,13 @@ RECORD_SECTIONS: dict[type, str] = {
     EpisodeParams: "episode",
     RewardWeights: "reward",
     Randomisation: "randomise",
+}
+
+
+# One table per record, keyed by the section name a scenario file uses ("" = top-level keys).
+LIMITS: dict[str, dict[str, Spec]] = {
+    section: {f.name: spec for f in fields(record) if (spec := spec_of(f)) is not None}
+    for record, section in RECORD_SECTIONS.items()
 }
 
 
@@ -345,7 +147,8 @@ def polygon_problem(vertices: tuple[tuple[float, float], ...]) -> str | None:
     return None
 
 
-def _zone_ok(zone: object) -> bool:
+def zone_ok(zone: object) -> bool:
+    """Whether a zone record has valid coordinates and, for a polygon, a valid outline."""
     if isinstance(zone, Circle):
         return POINT.accepts(zone.center) and RADIUS.number_ok(zone.radius, integer=False)
     if isinstance(zone, Polygon):
@@ -473,7 +276,13 @@ def _check_site(site: SiteParams) -> None:
     for first, second, broken, rule_first, rule_second in relations:
         if broken():
 
-            def rule(key: str, a=first, b=second, ra=rule_first, rb=rule_second) -> str:
+            def rule(
+                key: str,
+                a: str = first,
+                b: str = second,
+                ra: str = rule_first,
+                rb: str = rule_second,
+            ) -> str:
                 other, text = (b, ra) if key == a else (a, rb)
                 return f"{text} site.{other} ({_site_text(site, other)})"
 

@@ -1,9 +1,10 @@
 """Frozen parameter records and the batched world state.
 
 Every length is in metres, every speed in m/s, every acceleration in m/s^2, every time in seconds,
-every angle in degrees in configs (radians inside the code). Each parameter record checks its
-fields and their relations when it is built (the rules are in ``flockward.sim.limits``), raising a
-one-line ``ValueError``; derived values are properties computed in one place.
+every angle in degrees in configs (radians inside the code). Each field declares its range and
+unit beside its default (``param``, ``flockward.sim.spec``), so a new parameter is one line here.
+Each record checks its fields and their relations when it is built (``flockward.sim.limits``),
+raising a one-line ``ValueError``; derived values are properties computed in one place.
 """
 
 from __future__ import annotations
@@ -11,6 +12,16 @@ from __future__ import annotations
 from dataclasses import dataclass, field, fields
 
 import numpy as np
+
+from flockward.sim.spec import (
+    POINT,
+    Spec,
+    number,
+    param,
+    param_factory,
+    positive,
+    span,
+)
 
 FORMATIONS = ("disc", "hex", "line", "cluster")
 
@@ -31,32 +42,48 @@ class FlockParams:
     range of gull airspeeds measured by tracking radar (Alerstam et al. 2007, PLoS Biology 5:e197).
     """
 
-    name: str = "gulls"
-    source: str = "Alerstam et al. 2007, PLoS Biol 5:e197 (gull airspeeds 11-14 m/s)"
-    count: int = 50  # birds
-    formation: str = "disc"  # one of FORMATIONS
-    spacing: float = 3.0  # m, nearest-neighbour distance in the initial formation
-    heading_deg: float | None = None  # deg, counter-clockwise from +x; None = toward destination
-    speed: float = 12.5  # m/s, initial airspeed
-    cruise_speed: float = 12.5  # m/s, airspeed the bird steers toward its destination at
-    min_speed: float = 7.0  # m/s, birds in flapping flight cannot hover
-    max_speed: float = 20.0  # m/s, burst airspeed when fleeing
-    max_accel: float = 10.0  # m/s^2, steering acceleration cap
-    separation_radius: float = 2.0  # m
-    separation_gain: float = 12.0  # m^2/s^2 (inverse-distance repulsion, Reynolds 1987)
-    alignment_radius: float = 15.0  # m
-    alignment_gain: float = 2.0  # 1/s (Cucker-Smale coupling K)
-    alignment_sigma: float = 5.0  # m, Cucker-Smale length scale
-    alignment_beta: float = 0.25  # Cucker-Smale exponent (beta < 1/2: unconditional flocking)
-    cohesion_radius: float = 25.0  # m
-    cohesion_gain: float = 0.4  # 1/s^2
-    destination_gain: float = 0.25  # 1/s, pull toward cruise velocity aimed at the destination
-    alarm_radius: float = 80.0  # m, inside it a bird flees the pursuer radially
-    flee_gain: float = 20.0  # m/s^2 at zero distance, falling linearly to 0 at alarm_radius
-    dodge_radius: float = 15.0  # m, inside it a bird also dodges sideways
-    dodge_gain: float = 10.0  # m/s^2 at zero distance, falling linearly to 0 at dodge_radius
-    noise_std: float = 0.0  # m/s^2, standard deviation of Gaussian acceleration noise
-    link_radius: float | None = None  # m, proximity-graph radius for fragmentation; None = cohesion
+    name: str = param("gulls", Spec("name"))
+    source: str = param(
+        "Alerstam et al. 2007, PLoS Biol 5:e197 (gull airspeeds 11-14 m/s)",
+        Spec("str", max_len=400),
+    )
+    count: int = param(50, Spec("int", 1, 5000, "birds"))
+    formation: str = param("disc", Spec("choice", choices=FORMATIONS))
+    # nearest-neighbour distance in the initial formation
+    spacing: float = param(3.0, positive(100.0, "m"))
+    # counter-clockwise from +x; None = toward destination
+    heading_deg: float | None = param(None, number(-360.0, 360.0, "deg", opt=True))
+    speed: float = param(12.5, number(0.0, 60.0, "m/s"))  # initial airspeed
+    # airspeed the bird steers toward its destination at
+    cruise_speed: float = param(12.5, positive(60.0, "m/s"))
+    # birds in flapping flight cannot hover
+    min_speed: float = param(7.0, number(0.0, 60.0, "m/s"))
+    max_speed: float = param(20.0, positive(80.0, "m/s"))  # burst airspeed when fleeing
+    max_accel: float = param(10.0, positive(100.0, "m/s^2"))  # steering acceleration cap
+    separation_radius: float = param(2.0, positive(100.0, "m"))
+    # inverse-distance repulsion (Reynolds 1987)
+    separation_gain: float = param(12.0, number(0.0, 1000.0, "m^2/s^2"))
+    alignment_radius: float = param(15.0, positive(500.0, "m"))
+    alignment_gain: float = param(2.0, number(0.0, 100.0, "1/s"))  # Cucker-Smale coupling K
+    alignment_sigma: float = param(5.0, positive(500.0, "m"))  # Cucker-Smale length scale
+    # Cucker-Smale exponent (beta < 1/2: unconditional flocking)
+    alignment_beta: float = param(0.25, number(0.0, 5.0))
+    cohesion_radius: float = param(25.0, positive(500.0, "m"))
+    cohesion_gain: float = param(0.4, number(0.0, 100.0, "1/s^2"))
+    # pull toward cruise velocity aimed at the destination
+    destination_gain: float = param(0.25, number(0.0, 100.0, "1/s"))
+    # inside it a bird flees the pursuer radially
+    alarm_radius: float = param(80.0, positive(1000.0, "m"))
+    # at zero distance, falling linearly to 0 at alarm_radius
+    flee_gain: float = param(20.0, number(0.0, 1000.0, "m/s^2"))
+    # inside it a bird also dodges sideways
+    dodge_radius: float = param(15.0, positive(1000.0, "m"))
+    # at zero distance, falling linearly to 0 at dodge_radius
+    dodge_gain: float = param(10.0, number(0.0, 1000.0, "m/s^2"))
+    # standard deviation of Gaussian acceleration noise
+    noise_std: float = param(0.0, number(0.0, 100.0, "m/s^2"))
+    # proximity-graph radius for fragmentation; None = cohesion
+    link_radius: float | None = param(None, positive(1000.0, "m", opt=True))
 
     def __post_init__(self) -> None:
         _check(self)
@@ -114,10 +141,13 @@ SCALABLE_GAINS = (
 class PursuerParams:
     """The drone: a double integrator commanded by a normalised acceleration."""
 
-    start: tuple[float, float] = (0.0, 0.0)  # m
-    max_speed: float = 20.0  # m/s (small multirotor cruise 10-20 m/s, common practice)
-    max_accel: float = 8.0  # m/s^2
-    safety_radius: float = 5.0  # m, closer than this to any bird counts as a collision
+    start: tuple[float, float] = param((0.0, 0.0), POINT)
+    # (small multirotor cruise 10-20 m/s, common practice)
+    # The bound 44.7 m/s = 87 kn is the groundspeed limit for small drones in US 14 CFR 107.51.
+    max_speed: float = param(20.0, positive(44.7, "m/s"))
+    max_accel: float = param(8.0, positive(50.0, "m/s^2"))
+    # closer than this to any bird counts as a collision
+    safety_radius: float = param(5.0, number(0.0, 100.0, "m"))
 
     def __post_init__(self) -> None:
         _check(self)
@@ -145,10 +175,12 @@ Zone = Circle | Polygon
 class SiteParams:
     """Where things are: the airspace to protect, where to herd to, where the flock wants to go."""
 
-    protected: Zone = field(default_factory=lambda: Circle((0.0, 0.0), 150.0))
-    goal: Zone = field(default_factory=lambda: Circle((0.0, 500.0), 150.0))
-    destination: tuple[float, float] = (800.0, 0.0)  # m, the flock's roost or feeding ground
-    flock_start: tuple[float, float] = (-600.0, 0.0)  # m, centre of the initial formation
+    protected: Zone = param_factory(lambda: Circle((0.0, 0.0), 150.0), Spec("zone"))
+    goal: Zone = param_factory(lambda: Circle((0.0, 500.0), 150.0), Spec("zone"))
+    # the flock's roost or feeding ground
+    destination: tuple[float, float] = param((800.0, 0.0), POINT)
+    # centre of the initial formation
+    flock_start: tuple[float, float] = param((-600.0, 0.0), POINT)
 
     def __post_init__(self) -> None:
         _check(self)
@@ -158,10 +190,13 @@ class SiteParams:
 class EpisodeParams:
     """Time step and the rules that end an episode."""
 
-    dt: float = 0.1  # s
-    max_steps: int = 1500  # steps (150 s at the default dt)
-    success_fraction: float = 0.9  # share of birds inside the goal region that counts as success
-    max_breaching_birds: int = 0  # distinct birds allowed inside the protected zone before failure
+    dt: float = param(0.1, positive(1.0, "s"))
+    # (150 s at the default dt)
+    max_steps: int = param(1500, Spec("int", 1, 1_000_000, "steps"))
+    # share of birds inside the goal region that counts as success
+    success_fraction: float = param(0.9, positive(1.0))
+    # distinct birds allowed inside the protected zone before failure
+    max_breaching_birds: int = param(0, Spec("int", 0, 5000, "birds"))
 
     def __post_init__(self) -> None:
         _check(self)
@@ -171,14 +206,19 @@ class EpisodeParams:
 class RewardWeights:
     """Weights of the named reward terms (see flockward.task.reward)."""
 
-    progress: float = 1.0  # per unit of potential (potential = -distance to goal / length scale)
-    approach: float = 1.0  # per unit of potential (-drone distance beyond alarm radius / scale)
-    fragmentation: float = 0.05  # per step, times (1 - largest-cluster fraction)
-    collision: float = 0.5  # per step with the pursuer inside the safety radius of a bird
-    breach: float = 5.0  # per bird entering the protected zone for the first time
-    time: float = 0.002  # per step
-    success: float = 10.0  # once, on success
-    discount: float = 0.99  # gamma of the potential-based shaping term
+    # per unit of potential (potential = -distance to goal / length scale)
+    progress: float = param(1.0, number(0.0, 1000.0))
+    # per unit of potential (-drone distance beyond alarm radius / scale)
+    approach: float = param(1.0, number(0.0, 1000.0))
+    # per step, times (1 - largest-cluster fraction)
+    fragmentation: float = param(0.05, number(0.0, 1000.0))
+    # per step with the pursuer inside the safety radius of a bird
+    collision: float = param(0.5, number(0.0, 1000.0))
+    # per bird entering the protected zone for the first time
+    breach: float = param(5.0, number(0.0, 1000.0))
+    time: float = param(0.002, number(0.0, 1000.0))  # per step
+    success: float = param(10.0, number(0.0, 1000.0))  # once, on success
+    discount: float = param(0.99, number(0.0, 1.0))  # gamma of the potential-based shaping term
 
     def __post_init__(self) -> None:
         _check(self)
@@ -188,13 +228,18 @@ class RewardWeights:
 class Randomisation:
     """Ranges sampled afresh at every reset; None leaves the value fixed."""
 
-    count: tuple[int, int] | None = None  # birds, inclusive
-    heading_deg: tuple[float, float] | None = None  # deg, added to the configured heading
-    offset_x: tuple[float, float] | None = None  # m, added to the flock start
-    offset_y: tuple[float, float] | None = None  # m
-    gain_scale: tuple[float, float] | None = None  # factor on every SCALABLE_GAINS entry
-    cruise_speed: tuple[float, float] | None = None  # m/s
-    noise_std: tuple[float, float] | None = None  # m/s^2
+    # inclusive
+    count: tuple[int, int] | None = param(None, span(1, 5000, "birds", item="int"))
+    # added to the configured heading
+    heading_deg: tuple[float, float] | None = param(None, span(-180.0, 180.0, "deg"))
+    # added to the flock start
+    offset_x: tuple[float, float] | None = param(None, span(-5000.0, 5000.0, "m"))
+    offset_y: tuple[float, float] | None = param(None, span(-5000.0, 5000.0, "m"))
+    # factor on every SCALABLE_GAINS entry
+    gain_scale: tuple[float, float] | None = param(None, span(0.0, 10.0, open_lo=True))
+    # m/s
+    cruise_speed: tuple[float, float] | None = param(None, span(0.0, 60.0, "m/s", open_lo=True))
+    noise_std: tuple[float, float] | None = param(None, span(0.0, 100.0, "m/s^2"))
 
     def __post_init__(self) -> None:
         _check(self)
@@ -204,8 +249,8 @@ class Randomisation:
 class Scenario:
     """A complete, validated episode description."""
 
-    name: str
-    description: str = ""
+    name: str = field(metadata={"spec": Spec("name")})
+    description: str = param("", Spec("str", max_len=2000))
     flock: FlockParams = field(default_factory=FlockParams)
     pursuer: PursuerParams = field(default_factory=PursuerParams)
     site: SiteParams = field(default_factory=SiteParams)
@@ -239,6 +284,7 @@ class WorldState:
 
     @classmethod
     def zeros(cls, worlds: int, birds: int, drones: int = 1) -> WorldState:
+        """An all-zero state with room for ``birds`` birds and ``drones`` drones per world."""
         return cls(
             bird_pos=np.zeros((worlds, birds, 2)),
             bird_vel=np.zeros((worlds, birds, 2)),
@@ -250,7 +296,8 @@ class WorldState:
     @property
     def drones(self) -> int:
         """P, the number of drones in every world."""
-        return self.pursuer_pos.shape[1]
+        return int(self.pursuer_pos.shape[1])
 
     def copy(self) -> WorldState:
+        """A deep copy: every array copied."""
         return WorldState(**{f.name: getattr(self, f.name).copy() for f in fields(self)})
