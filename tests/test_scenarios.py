@@ -39,7 +39,7 @@ FLOCK_FILES = sorted((ROOT / "configs" / "flocks").glob("*.toml"))
 # fixture -> (dotted key the message must name, fragment of what is allowed)
 BAD_CASES = {
     "unknown_key.toml": ("'flock.cout'", "allowed: name, source, count"),
-    "alignment_reach.toml": ("'flock.alignment_radius'", "<= 10 * alignment_sigma"),
+    "flee_cap.toml": ("'flock.flee_accel'", "flee_accel < max_accel"),
     "wrong_type.toml": ("'flock.count'", "integer in [1, 5000]"),
     "bool_number.toml": ("'episode.dt'", "finite number in (0, 1] s"),
     "nan_value.toml": ("'flock.spacing'", "finite number"),
