@@ -74,7 +74,7 @@ class FlockParams:
     speed_gain: float = param(0.8, number(0.0, 100.0, "1/s"))
     separation_radius: float = param(2.0, positive(100.0, "m"))
     # k_sep ((r_sep/d) - 1)^2 per neighbour, smooth to zero at the radius
-    separation_gain: float = param(4.0, number(0.0, 1000.0, "m/s^2"))
+    separation_gain: float = param(8.0, number(0.0, 1000.0, "m/s^2"))
     alignment_model: str = param("motsch-tadmor", Spec("choice", choices=ALIGNMENT_MODELS))
     # up to 100 km, so a Cucker-Smale flock may align globally
     alignment_radius: float = param(15.0, positive(100_000.0, "m"))
@@ -102,7 +102,7 @@ class FlockParams:
     dodge_frame: str = param("relative", Spec("choice", choices=DODGE_FRAMES))
     # heading: rotational diffusion (rad/s^0.5); vector: white-noise acceleration (m/s^1.5)
     noise_model: str = param("heading", Spec("choice", choices=NOISE_MODELS))
-    noise_std: float = param(0.2, number(0.0, 40.0, "rad/s^0.5 or m/s^1.5"))
+    noise_std: float = param(0.05, number(0.0, 40.0, "rad/s^0.5 or m/s^1.5"))
     # proximity-graph radius for fragmentation; None = cohesion
     link_radius: float | None = param(None, positive(1000.0, "m", opt=True))
 
