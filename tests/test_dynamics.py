@@ -189,7 +189,9 @@ def test_pursuer_speed_limit_and_command_cap():
     _, _, _, pv = run(OFF, np.zeros((0, 2)), np.zeros((0, 2)), 50, drones=(0.0, 0.0),
                       action=(3.0, 3.0), limits=(20.0, 8.0))  # fmt: skip
     assert np.hypot(*pv[0]) == pytest.approx(20.0)
-    np.testing.assert_allclose(pv[0, 0], pv[0, 1])  # a command beyond the unit box keeps its bearing
+    np.testing.assert_allclose(
+        pv[0, 0], pv[0, 1]
+    )  # a command beyond the unit box keeps its bearing
 
 
 # ---------------------------------------------------------------------------------------------
@@ -307,8 +309,14 @@ def test_bird_fears_only_the_nearest_drone():
 
 
 @pytest.mark.parametrize(
-    "radius", ["separation_radius", "alignment_radius", "cohesion_radius", "dodge_radius",
-               "alarm_radius"]  # fmt: skip
+    "radius",
+    [
+        "separation_radius",
+        "alignment_radius",
+        "cohesion_radius",
+        "dodge_radius",
+        "alarm_radius",
+    ],  # fmt: skip
 )
 def test_forces_are_continuous_across_every_cut_off(radius):
     # Olfati-Saber 2006 bump functions: the acceleration is continuous (C1) in distance, so the

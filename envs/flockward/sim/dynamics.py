@@ -309,7 +309,8 @@ def flock_acceleration(x, v, n, ctx, out):
         out[i, 1] = ay + k_v * (preferred - speed) * uy
 
 
-@numba.njit(cache=True)
+# Not cached: numba's on-disk cache cannot tell one force function argument from another.
+@numba.njit
 def verlet_heun_substep(x, v, a, v_pred, n, h, force, ctx):
     """One substep of velocity Verlet with a Heun-predicted velocity, in place.
 
@@ -329,7 +330,7 @@ def verlet_heun_substep(x, v, a, v_pred, n, h, force, ctx):
             v[i, c] += half * a[i, c]
 
 
-@numba.njit(cache=True)
+@numba.njit
 def integrate(x, v, h, steps, force, ctx):
     """``steps`` substeps of ``verlet_heun_substep`` from a fresh force evaluation, in place."""
     n = x.shape[0]

@@ -60,7 +60,9 @@ class World:
         noise_hi = scenario.randomise.noise_std[1] if scenario.randomise.noise_std else 0.0
         self.has_noise = max(scenario.flock.noise_std, noise_hi) > 0.0
         self._block_rows = NOISE_BLOCK * self.substeps
-        shape = (worlds, self._block_rows, self.max_birds, 2) if self.has_noise else (worlds, 0, 0, 2)
+        shape = (
+            (worlds, self._block_rows, self.max_birds, 2) if self.has_noise else (worlds, 0, 0, 2)
+        )
         self._noise = np.zeros(shape)
         self._noise_row = np.zeros(worlds, dtype=np.int64)
         self._accel = np.zeros((max(self.max_birds, 1), 2))
