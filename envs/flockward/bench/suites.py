@@ -148,27 +148,36 @@ def _flat_overrides(table: Mapping[str, object]) -> dict[str, object]:
 
 
 def _fmt(value: object) -> str:
+    """A value as it would be written in a file, for error messages."""
     return json.dumps(value, default=str)
 
 
-def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
-    """Validate entry number ``n`` (1-based) of the file ``label``."""
+class _EntryErrors:
+    """One-line errors about entry number ``n`` (1-based) of the suite file ``label``."""
 
-    def fail(key: str, value: object, allowed: str) -> ConfigError:
-        return ConfigError(f"{label}: entry {n}: key '{key}' = {_fmt(value)}: {allowed}")
+    def __init__(self, label: str, n: int):
+        self.prefix = f"{label}: entry {n}"
 
-    if not isinstance(raw, Mapping):
-        raise ConfigError(f"{label}: entry {n}: must be a table ([[entry]])")
+    def __call__(self, key: str, value: object, allowed: str) -> ConfigError:
+        return ConfigError(f"{self.prefix}: key '{key}' = {_fmt(value)}: {allowed}")
+
+    def plain(self, message: str) -> ConfigError:
+        """An error about the entry as a whole rather than one key's value."""
+        return ConfigError(f"{self.prefix}: {message}")
+
+
+def _check_entry_keys(raw: Mapping[str, object], fail: _EntryErrors) -> None:
+    """Only known keys, and the required ones present."""
     for key in raw:
         if key not in _ENTRY_KEYS:
-            raise ConfigError(
-                f"{label}: entry {n}: unknown key '{key}'; allowed: {', '.join(_ENTRY_KEYS)}"
-            )
+            raise fail.plain(f"unknown key '{key}'; allowed: {', '.join(_ENTRY_KEYS)}")
     for key in ("scenario", "seeds"):
         if key not in raw:
-            raise ConfigError(f"{label}: entry {n}: missing key '{key}'")
+            raise fail.plain(f"missing key '{key}'")
 
-    ref = raw["scenario"]
+
+def _scenario_ref(ref: object, base: Path, fail: _EntryErrors) -> tuple[str, bool]:
+    """The entry's scenario reference and whether it is a path (relative to ``base``)."""
     if not isinstance(ref, str) or not ref:
         raise fail("scenario", ref, "must be a shipped scenario name or a path to a TOML file")
     is_path = looks_like_path(ref)
@@ -181,21 +190,34 @@ def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
         )
     if is_path and not (base / ref).is_file():
         raise fail("scenario", ref, f"no such file {_label(base / ref)}")
+    return ref, is_path
 
-    seeds = raw["seeds"]
-    ok = (
-        isinstance(seeds, list)
-        and len(seeds) == 2
-        and all(isinstance(s, int) and not isinstance(s, bool) for s in seeds)
-    )
-    if not ok or not 0 <= seeds[0] <= seeds[1] <= _MAX_SEED:
+
+def _seed_range(seeds: object, fail: _EntryErrors) -> tuple[int, int]:
+    """The entry's inclusive ``[first, last]`` seeds."""
+    if (
+        not isinstance(seeds, list)
+        or len(seeds) != 2
+        or not all(isinstance(s, int) and not isinstance(s, bool) for s in seeds)
+        or not 0 <= seeds[0] <= seeds[1] <= _MAX_SEED
+    ):
         raise fail(
             "seeds",
             seeds,
             f"must be [first, last], integers with 0 <= first <= last <= {_MAX_SEED} "
             "(inclusive; an empty or reversed range plays nothing)",
         )
+    return int(seeds[0]), int(seeds[1])
 
+
+def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
+    """Validate entry number ``n`` (1-based) of the file ``label``."""
+    fail = _EntryErrors(label, n)
+    if not isinstance(raw, Mapping):
+        raise fail.plain("must be a table ([[entry]])")
+    _check_entry_keys(raw, fail)
+    ref, is_path = _scenario_ref(raw["scenario"], base, fail)
+    seeds = _seed_range(raw["seeds"], fail)
     overrides_raw = raw.get("overrides", {})
     if not isinstance(overrides_raw, Mapping):
         raise fail(
@@ -205,7 +227,7 @@ def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
     try:
         scenario = load_scenario(base / ref if is_path else ref, overrides)
     except ConfigError as error:
-        raise ConfigError(f"{label}: entry {n}: {error}") from None
+        raise fail.plain(str(error)) from None
 
     family = raw.get("family", scenario.name)
     if not isinstance(family, str) or not _NAME_RE.fullmatch(family):
@@ -214,7 +236,7 @@ def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
         family=family,
         scenario=scenario,
         overrides=tuple(sorted(overrides.items())),
-        seeds=(int(seeds[0]), int(seeds[1])),
+        seeds=seeds,
     )
 
 
