@@ -16,9 +16,9 @@ from __future__ import annotations
 
 import math
 
-import numba
 import numpy as np
 
+from flockward.sim.jit import compiled
 from flockward.sim.types import Circle, Polygon, Zone
 
 CIRCLE = 0  # zone kind code in row 0 of a zone array
@@ -49,7 +49,7 @@ def zone_arrays(zone: Zone) -> np.ndarray:
     return out
 
 
-@numba.njit(cache=True)
+@compiled
 def _closest_on_segment(
     ax: float, ay: float, bx: float, by: float, x: float, y: float
 ) -> tuple[float, float, float]:
@@ -66,7 +66,7 @@ def _closest_on_segment(
     return px, py, (x - px) ** 2 + (y - py) ** 2
 
 
-@numba.njit(cache=True)
+@compiled
 def _signed_distance_xy(zone_arr: np.ndarray, x: float, y: float) -> float:
     """Signed distance (m) from (x, y) to the zone boundary: negative inside, positive outside."""
     if zone_arr[0, 0] == CIRCLE:
@@ -91,7 +91,7 @@ def _signed_distance_xy(zone_arr: np.ndarray, x: float, y: float) -> float:
     return -distance if inside and distance > 0.0 else distance
 
 
-@numba.njit(cache=True)
+@compiled
 def nearest_boundary_point(zone_arr: np.ndarray, x: float, y: float) -> tuple[float, float]:
     """The point of the zone boundary closest to (x, y); for a circle's centre, the +x point."""
     if zone_arr[0, 0] == CIRCLE:
@@ -115,7 +115,7 @@ def nearest_boundary_point(zone_arr: np.ndarray, x: float, y: float) -> tuple[fl
     return best_x, best_y
 
 
-@numba.njit(cache=True)
+@compiled
 def _signed_distance_many(zone_arr: np.ndarray, points: np.ndarray) -> np.ndarray:
     """Signed distances of K points, shape (K, 2) -> (K,)."""
     out = np.empty(points.shape[0], dtype=np.float64)
@@ -249,7 +249,7 @@ def zone_contains(zone: Zone, point: tuple[float, float]) -> bool:
     return bool(contains(zone_arrays(zone), np.asarray(point, dtype=np.float64)))
 
 
-@numba.njit(cache=True)
+@compiled
 def convex_hull(points: np.ndarray) -> np.ndarray:
     """Indices of the convex-hull vertices of points (n, 2), counter-clockwise from the lowest-x
     (then lowest-y) point; points on hull edges and duplicates are left out (Andrew 1979)."""
@@ -319,7 +319,7 @@ def convex_hull(points: np.ndarray) -> np.ndarray:
     return hull[:k].copy()
 
 
-@numba.njit(cache=True)
+@compiled
 def _circle_through_three(
     ax: float, ay: float, bx: float, by: float, cx: float, cy: float
 ) -> tuple[float, float, float]:
@@ -340,7 +340,7 @@ def _circle_through_three(
     return ax + ox, ay + oy, math.hypot(ox, oy)
 
 
-@numba.njit(cache=True)
+@compiled
 def _enclosing_circle_of(points: np.ndarray, idx: np.ndarray) -> tuple[float, float, float]:
     """Smallest circle enclosing points[idx]: the incremental form of Welzl (1991), expected
     linear time after a fixed pseudo-random shuffle, so repeated calls give identical results."""
@@ -382,7 +382,7 @@ def _enclosing_circle_of(points: np.ndarray, idx: np.ndarray) -> tuple[float, fl
     return cx + ox, cy + oy, r
 
 
-@numba.njit(cache=True)
+@compiled
 def enclosing_circle(points: np.ndarray) -> tuple[float, float, float]:
     """Exact smallest enclosing circle (cx, cy, r) of points (n, 2), computed on the hull vertices.
 

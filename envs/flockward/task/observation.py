@@ -15,10 +15,10 @@ from abc import ABC, abstractmethod
 from typing import Any
 
 import gymnasium as gym
-import numba
 import numpy as np
 
 from flockward.sim.geometry import _signed_distance_xy, nearest_boundary_point
+from flockward.sim.jit import compiled
 from flockward.task.context import Scales, StepContext, TaskSetting
 
 __all__ = [
@@ -93,7 +93,7 @@ def vector_bounds(rim_birds: int) -> tuple[np.ndarray, np.ndarray]:
     return np.array(low, dtype=np.float32), np.array(high, dtype=np.float32)
 
 
-@numba.njit(cache=True)
+@compiled
 def _rim_threat(pos, count, on_hull, protected_arr, goal_arr, k, out_idx):
     """Indices of the k rim birds threatening the protected zone most (-1 pads).
 
@@ -126,7 +126,7 @@ def _rim_threat(pos, count, on_hull, protected_arr, goal_arr, k, out_idx):
             out_idx[b, r] = -1
 
 
-@numba.njit(cache=True)
+@compiled
 def _vector_obs(
     pos,
     pvel,
