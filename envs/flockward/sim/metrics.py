@@ -333,7 +333,8 @@ def _step_kernel(
     link_radius: float,
     protected_arr: np.ndarray,
     goal_arr: np.ndarray,
-):
+) -> tuple[np.ndarray, ...]:
+    """Every StepMetrics field, in field order, for every world in one pass."""
     worlds, slots = pos.shape[0], pos.shape[1]
     centroid = np.full((worlds, 2), np.nan)
     mean_vel = np.full((worlds, 2), np.nan)
@@ -451,7 +452,8 @@ def inside_zone(zone_arr: np.ndarray, pos: np.ndarray, count: np.ndarray) -> np.
 
 def count_inside(zone_arr: np.ndarray, pos: np.ndarray, count: np.ndarray) -> np.ndarray:
     """Number of active birds strictly inside the zone, (B,) int64."""
-    return inside_zone(zone_arr, pos, count).sum(axis=1)
+    counts: np.ndarray = inside_zone(zone_arr, pos, count).sum(axis=1)
+    return counts
 
 
 def zone_distance(zone_arr: np.ndarray, points: np.ndarray) -> np.ndarray:
