@@ -11,6 +11,7 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
+import numpy.typing as npt
 from gymnasium.utils import seeding
 from gymnasium.vector import AutoresetMode, VectorEnv
 from gymnasium.vector.utils import batch_space
@@ -66,7 +67,13 @@ class DivertVectorEnv(VectorEnv):
             raise IndexError(f"world {index}: this vector env has worlds 0 to {self.num_envs - 1}")
         return self.task.view(index)
 
-    def reset(self, *, seed=None, options: dict[str, Any] | None = None):
+    def reset(
+        self,
+        *,
+        seed: int | list[int | None] | None = None,
+        options: dict[str, Any] | None = None,
+    ) -> tuple[Any, dict[str, Any]]:
+        """Reset every world, or those of ``options["reset_mask"]``; observations of all."""
         seeds = world_seeds(seed, self.num_envs)
         if seed is not None:
             self._np_random, self._np_random_seed = seeding.np_random(seeds[0])
@@ -77,7 +84,10 @@ class DivertVectorEnv(VectorEnv):
         self._needs_reset[indices] = False
         return obs, self._batched_info(self.task.metrics_info())
 
-    def step(self, actions):
+    def step(
+        self, actions: npt.ArrayLike
+    ) -> tuple[Any, np.ndarray, np.ndarray, np.ndarray, dict[str, Any]]:
+        """Step every world under ``actions`` (B, 2), resetting those that ended last step."""
         actions = check_actions(actions, self.num_envs)
         restarting = self._needs_reset.copy()
         if restarting.any():
