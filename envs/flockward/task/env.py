@@ -10,7 +10,7 @@ import numpy as np
 import numpy.typing as npt
 
 from flockward.task.batched import DivertTask, action_space, check_actions, scalar_info
-from flockward.task.env_config import RENDER_MODES, EnvConfig
+from flockward.task.env_config import RENDER_MODES, ConfigOrScenario, EnvConfig
 from flockward.task.state import WorldView
 
 if TYPE_CHECKING:
@@ -101,7 +101,7 @@ class DivertEnv(gym.Env):
 
     metadata = {"render_modes": list(RENDER_MODES), "render_fps": 20}
 
-    def __init__(self, config: EnvConfig | Any = None, **options: Any):
+    def __init__(self, config: ConfigOrScenario = None, **options: Any):
         self.config = EnvConfig.from_options(config, **options)
         self.task = DivertTask(self.config, 1)
         self.scenario = self.task.scenario

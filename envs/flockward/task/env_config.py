@@ -12,7 +12,7 @@ import importlib
 from collections.abc import Mapping
 from dataclasses import dataclass, fields
 from pathlib import Path
-from typing import Any, TypeVar, cast
+from typing import Any, TypeAlias, TypeVar, cast
 
 from flockward.config.scenarios import load_scenario
 from flockward.sim.types import Scenario
@@ -147,7 +147,7 @@ class EnvConfig:
         self.make_reward()
 
     @classmethod
-    def from_options(cls, first: Any = None, /, **options: Any) -> EnvConfig:
+    def from_options(cls, first: ConfigOrScenario = None, /, **options: Any) -> EnvConfig:
         """A config from keyword arguments; ``first`` is an EnvConfig or else the scenario."""
         if isinstance(first, EnvConfig):
             if options:
@@ -191,3 +191,5 @@ class EnvConfig:
 
 
 ENV_ARGUMENTS = tuple(f.name for f in fields(EnvConfig))
+# The first argument of every face: a whole config, or just the scenario (None: the default).
+ConfigOrScenario: TypeAlias = EnvConfig | str | Path | Scenario | None

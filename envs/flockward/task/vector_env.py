@@ -17,7 +17,7 @@ from gymnasium.vector import AutoresetMode, VectorEnv
 from gymnasium.vector.utils import batch_space
 
 from flockward.task.batched import DivertTask, action_space, check_actions
-from flockward.task.env_config import EnvConfig
+from flockward.task.env_config import ConfigOrScenario, EnvConfig
 from flockward.task.state import WorldView
 
 
@@ -46,7 +46,7 @@ class DivertVectorEnv(VectorEnv):
         "autoreset_mode": AutoresetMode.NEXT_STEP,
     }
 
-    def __init__(self, num_envs: int = 1, config: EnvConfig | Any = None, **options: Any):
+    def __init__(self, num_envs: int = 1, config: ConfigOrScenario = None, **options: Any):
         self.config = EnvConfig.from_options(config, **options)
         if self.config.render_mode is not None:
             raise ValueError("the vector env does not render; render a single DivertEnv instead")
