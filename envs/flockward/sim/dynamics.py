@@ -41,9 +41,9 @@ from __future__ import annotations
 
 import math
 
-import numba
 import numpy as np
 
+from flockward.sim.jit import compiled, compiled_fastmath
 from flockward.sim.types import K
 
 # Above this many birds the cell grid beats all pairs (measured by `flockward bench`).
@@ -54,7 +54,7 @@ _SEP_MIN_D2 = 1e-2  # m^2: separation distance floor, so very close birds push a
 _TINY = 1e-12
 # Exact IEEE semantics except fused multiply-add and fast transcendental approximations: the same
 # compiled code runs for single and vector envs, so results stay bit-identical between them.
-_FAST = {"contract", "afn"}
+_FAST: set[str] = {"contract", "afn"}
 
 _C_CRUISE = K["cruise_speed"]
 _C_VMIN = K["min_speed"]
@@ -94,16 +94,26 @@ def alignment_table(beta: float) -> np.ndarray:
     return table
 
 
-@numba.njit(cache=True)
-def _cell_keys(w, n, cell, keys):
+@compiled
+def _cell_keys(w: np.ndarray, n: int, cell: float, keys: np.ndarray) -> None:
+    """Each bird's grid-cell key into ``keys``: cell column in the high 32 bits, row in the low."""
     for i in range(n):
         cx = np.int64(math.floor(w[_X, i] / cell)) + 2**30
         cy = np.int64(math.floor(w[_Y, i] / cell)) + 2**30
         keys[i] = (cx << 32) | cy
 
 
-@numba.njit(cache=True, fastmath=_FAST)
-def _accumulate(w, acc, n, prm, table, use_grid, keys, order):
+@compiled_fastmath(_FAST)
+def _accumulate(
+    w: np.ndarray,  # (4, N) bird coordinates, struct of arrays
+    acc: np.ndarray,  # (7, N) pair sums, zeroed by the caller
+    n: int,
+    prm: np.ndarray,  # (len(KERNEL_FIELDS),) the world's bird parameters
+    table: np.ndarray,  # (ALIGN_TABLE_SIZE + 2,) alignment_table(beta)
+    use_grid: bool,
+    keys: np.ndarray,  # (N,) int64 work space
+    order: np.ndarray,  # (N,) int64 work space
+) -> None:
     """Sum every neighbour pair's separation, alignment and cohesion terms into ``acc``.
 
     Each unordered pair within the cut-off is visited once (j > i) and applied to both birds: all
@@ -192,8 +202,18 @@ def _accumulate(w, acc, n, prm, table, use_grid, keys, order):
         acc[_CN, i] += cni
 
 
-@numba.njit(cache=True)
-def _advance(x, y, vx, vy, ax, ay, vmin, vmax, dt):
+@compiled
+def _advance(
+    x: float,
+    y: float,
+    vx: float,
+    vy: float,
+    ax: float,
+    ay: float,
+    vmin: float,
+    vmax: float,
+    dt: float,
+) -> tuple[float, float, float, float]:
     """Exact zero-order-hold double-integrator step, then the airspeed clamp."""
     nvx = vx + ax * dt
     nvy = vy + ay * dt
@@ -217,27 +237,113 @@ def _advance(x, y, vx, vy, ax, ay, vmin, vmax, dt):
     return x + 0.5 * (vx + nvx) * dt, y + 0.5 * (vy + nvy) * dt, nvx, nvy
 
 
-@numba.njit(cache=True)
+@compiled
+def _fear(
+    x: float,
+    y: float,
+    ax: float,
+    ay: float,
+    drones: np.ndarray,  # (P, 2) m, drone positions at the start of the step
+    drone_vel: np.ndarray,  # (P, 2) m/s
+    r_alarm: float,
+    r_dodge: float,
+    k_flee: float,
+    k_dodge: float,
+) -> tuple[float, float]:
+    """The bird's acceleration (ax, ay) plus its flight from the nearest drone."""
+    # The nearest drone (first on a tie) is the one this bird fears.
+    near = 0
+    rx = x - drones[0, 0]
+    ry = y - drones[0, 1]
+    d2 = rx * rx + ry * ry
+    for q in range(1, drones.shape[0]):
+        qx = x - drones[q, 0]
+        qy = y - drones[q, 1]
+        q2 = qx * qx + qy * qy
+        if q2 < d2:
+            near, rx, ry, d2 = q, qx, qy, q2
+    d = math.sqrt(d2)
+    if d < r_alarm and d > _TINY:
+        f = k_flee * (1.0 - d / r_alarm) / d
+        ax += f * rx
+        ay += f * ry
+        if d < r_dodge:
+            # Line of approach: the drone's velocity if it moves, else the bird-drone line.
+            pvx = drone_vel[near, 0]
+            pvy = drone_vel[near, 1]
+            pspeed = math.sqrt(pvx * pvx + pvy * pvy)
+            if pspeed > _TINY:
+                ux = pvx / pspeed
+                uy = pvy / pspeed
+            else:
+                ux = -rx / d
+                uy = -ry / d
+            # Perpendicular to the approach line, on the side the bird already is.
+            nx = -uy
+            ny = ux
+            side = 1.0 if rx * nx + ry * ny >= 0.0 else -1.0
+            f = k_dodge * (1.0 - d / r_dodge) * side
+            ax += f * nx
+            ay += f * ny
+    return ax, ay
+
+
+@compiled
+def _move_drones(
+    drones: np.ndarray,  # (P, 2) m, updated in place
+    drone_vel: np.ndarray,  # (P, 2) m/s, updated in place
+    action: np.ndarray,  # (P, 2) normalised command per drone
+    limits: np.ndarray,  # (P, 2) per drone: max speed m/s, max acceleration m/s^2
+    dt: float,
+) -> None:
+    """Advance one world's drones under their commands, in place."""
+    # Each drone: its command is clipped to the unit box, then its norm capped at 1.
+    for q in range(drones.shape[0]):
+        ux = min(max(action[q, 0], -1.0), 1.0)
+        uy = min(max(action[q, 1], -1.0), 1.0)
+        u = math.sqrt(ux * ux + uy * uy)
+        if u > 1.0:
+            ux /= u
+            uy /= u
+        amax_p = limits[q, 1]
+        nx_, ny_, nvx, nvy = _advance(
+            drones[q, 0],
+            drones[q, 1],
+            drone_vel[q, 0],
+            drone_vel[q, 1],
+            ux * amax_p,
+            uy * amax_p,
+            0.0,
+            limits[q, 0],
+            dt,
+        )
+        drones[q, 0] = nx_
+        drones[q, 1] = ny_
+        drone_vel[q, 0] = nvx
+        drone_vel[q, 1] = nvy
+
+
+@compiled
 def step_worlds(
-    bird_pos,  # (B, N, 2) m, updated in place
-    bird_vel,  # (B, N, 2) m/s, updated in place
-    pursuer_pos,  # (B, P, 2) m, drone positions, updated in place
-    pursuer_vel,  # (B, P, 2) m/s, drone velocities, updated in place
-    count,  # (B,) active birds
-    destination,  # (B, 2) m
-    params,  # (B, len(KERNEL_FIELDS)) per-world bird parameters
-    align_tables,  # (B, ALIGN_TABLE_SIZE + 2) per-world alignment_table(beta)
-    pursuer_limits,  # (B, P, 2) per drone: max speed m/s, max acceleration m/s^2
-    action,  # (B, P, 2) normalised command per drone, already finite
-    noise,  # (B, T, N, 2) standard normals, or shape (B, 0, 0, 2) for none
-    noise_row,  # (B,) which of the T rows this step uses
-    dt,  # s
-    use_grid,  # bool: cell grid instead of all pairs
-    live,  # (B,) bool: worlds to advance; the others are left untouched
-    work,  # (4, N) float64 work space for coordinates
-    acc,  # (7, N) float64 work space for pair sums
-    index_work,  # (2, N) int64 work space: cell keys, visit order
-):
+    bird_pos: np.ndarray,  # (B, N, 2) m, updated in place
+    bird_vel: np.ndarray,  # (B, N, 2) m/s, updated in place
+    pursuer_pos: np.ndarray,  # (B, P, 2) m, drone positions, updated in place
+    pursuer_vel: np.ndarray,  # (B, P, 2) m/s, drone velocities, updated in place
+    count: np.ndarray,  # (B,) active birds
+    destination: np.ndarray,  # (B, 2) m
+    params: np.ndarray,  # (B, len(KERNEL_FIELDS)) per-world bird parameters
+    align_tables: np.ndarray,  # (B, ALIGN_TABLE_SIZE + 2) per-world alignment_table(beta)
+    pursuer_limits: np.ndarray,  # (B, P, 2) per drone: max speed m/s, max acceleration m/s^2
+    action: np.ndarray,  # (B, P, 2) normalised command per drone, already finite
+    noise: np.ndarray,  # (B, T, N, 2) standard normals, or shape (B, 0, 0, 2) for none
+    noise_row: np.ndarray,  # (B,) which of the T rows this step uses
+    dt: float,  # s
+    use_grid: bool,  # bool: cell grid instead of all pairs
+    live: np.ndarray,  # (B,) bool: worlds to advance; the others are left untouched
+    work: np.ndarray,  # (4, N) float64 work space for coordinates
+    acc: np.ndarray,  # (7, N) float64 work space for pair sums
+    index_work: np.ndarray,  # (2, N) int64 work space: cell keys, visit order
+) -> None:
     """Advance every world by one step, in place."""
     n_worlds = bird_pos.shape[0]
     has_noise = noise.shape[1] > 0
@@ -249,7 +355,7 @@ def step_worlds(
         pos = bird_pos[b]
         vel = bird_vel[b]
         drones = pursuer_pos[b]
-        n_drones = drones.shape[0]
+        drone_vel = pursuer_vel[b]
         for i in range(n):
             work[_X, i] = pos[i, 0]
             work[_Y, i] = pos[i, 1]
@@ -287,40 +393,7 @@ def step_worlds(
             if g > _TINY:
                 ax += k_dst * (cruise * gx / g - vx)
                 ay += k_dst * (cruise * gy / g - vy)
-            # The nearest drone (first on a tie) is the one this bird fears.
-            near = 0
-            rx = x - drones[0, 0]
-            ry = y - drones[0, 1]
-            d2 = rx * rx + ry * ry
-            for q in range(1, n_drones):
-                qx = x - drones[q, 0]
-                qy = y - drones[q, 1]
-                q2 = qx * qx + qy * qy
-                if q2 < d2:
-                    near, rx, ry, d2 = q, qx, qy, q2
-            d = math.sqrt(d2)
-            if d < r_alarm and d > _TINY:
-                f = k_flee * (1.0 - d / r_alarm) / d
-                ax += f * rx
-                ay += f * ry
-                if d < r_dodge:
-                    # Line of approach: the drone's velocity if it moves, else the bird-drone line.
-                    pvx = pursuer_vel[b, near, 0]
-                    pvy = pursuer_vel[b, near, 1]
-                    pspeed = math.sqrt(pvx * pvx + pvy * pvy)
-                    if pspeed > _TINY:
-                        ux = pvx / pspeed
-                        uy = pvy / pspeed
-                    else:
-                        ux = -rx / d
-                        uy = -ry / d
-                    # Perpendicular to the approach line, on the side the bird already is.
-                    nx = -uy
-                    ny = ux
-                    side = 1.0 if rx * nx + ry * ny >= 0.0 else -1.0
-                    f = k_dodge * (1.0 - d / r_dodge) * side
-                    ax += f * nx
-                    ay += f * ny
+            ax, ay = _fear(x, y, ax, ay, drones, drone_vel, r_alarm, r_dodge, k_flee, k_dodge)
             if has_noise and sigma > 0.0:
                 ax += sigma * noise[b, row, i, 0]
                 ay += sigma * noise[b, row, i, 1]
@@ -333,30 +406,7 @@ def step_worlds(
             pos[i, 1] = ny_
             vel[i, 0] = nvx
             vel[i, 1] = nvy
-        # Each drone: its command is clipped to the unit box, then its norm capped at 1.
-        for q in range(n_drones):
-            ux = min(max(action[b, q, 0], -1.0), 1.0)
-            uy = min(max(action[b, q, 1], -1.0), 1.0)
-            u = math.sqrt(ux * ux + uy * uy)
-            if u > 1.0:
-                ux /= u
-                uy /= u
-            amax_p = pursuer_limits[b, q, 1]
-            nx_, ny_, nvx, nvy = _advance(
-                drones[q, 0],
-                drones[q, 1],
-                pursuer_vel[b, q, 0],
-                pursuer_vel[b, q, 1],
-                ux * amax_p,
-                uy * amax_p,
-                0.0,
-                pursuer_limits[b, q, 0],
-                dt,
-            )
-            drones[q, 0] = nx_
-            drones[q, 1] = ny_
-            pursuer_vel[b, q, 0] = nvx
-            pursuer_vel[b, q, 1] = nvy
+        _move_drones(drones, drone_vel, action[b], pursuer_limits[b], dt)
 
 
 def choose_grid(max_birds: int, interaction_radius: float, neighbour_search: str = "auto") -> bool:
