@@ -15,16 +15,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from flockward.config.files import ConfigError
-from flockward.sim.limits import (
-    LIMITS,
-    MAX_VERTICES,
-    NAME_RE,
-    POINT,
-    RADIUS,
-    Spec,
-    polygon_problem,
-    value_text,
-)
+from flockward.sim.limits import LIMITS, polygon_problem, value_text
+from flockward.sim.spec import MAX_VERTICES, NAME_RE, POINT, RADIUS, Spec
 from flockward.sim.types import Circle, Polygon, Zone
 
 __all__ = ["FLOCK_FILE_KEY", "SCHEMA", "SECTIONS", "Origin", "Spec", "config_reference", "convert"]

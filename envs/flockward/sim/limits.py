@@ -250,7 +250,7 @@ def _site_text(site: SiteParams, key: str) -> str:
 def _check_site(site: SiteParams) -> None:
     """Relations between the zones and points of a site."""
     # (key, other key, relation broken, rule when key is named, rule when other is named)
-    relations = (
+    relations: tuple[tuple[str, str, Callable[[], bool], str, str], ...] = (
         (
             "goal",
             "protected",
