@@ -25,6 +25,7 @@ SCHEMA: dict[str, dict[str, Spec]] = LIMITS
 SECTIONS = tuple(s for s in SCHEMA if s)
 FLOCK_FILE_KEY = "file"  # [flock] file = "gulls": the only key not a FlockParams field
 _CIRCLE_KEYS = ("center", "radius")
+_MAX_SHOWN = 120  # characters of an offending value quoted in an error message
 _PLAIN_KINDS = ("bool", "str", "name", "choice")  # checked, then kept as they are
 # What Spec.number_ok accepts as a number; named again here so the type checker sees the type.
 _NUMBER_TYPES = (int, float, np.integer, np.floating)
@@ -70,7 +71,10 @@ class Origin:
 
     def error(self, value: object, allowed: str) -> ConfigError:
         """The one-line error for a bad value at this key: file, key, value and what is allowed."""
-        text = f"{self.file}: {self.word} '{self.key}' = {value_text(value)}: {allowed}"
+        shown = value_text(value)
+        if len(shown) > _MAX_SHOWN:  # one line, never an echo of a long input
+            shown = f"{shown[: _MAX_SHOWN - 20]}... ({len(shown)} characters)"
+        text = f"{self.file}: {self.word} '{self.key}' = {shown}: {allowed}"
         return ConfigError(" ".join(text.split("\n")))
 
     def unknown(self, sub: str, allowed: Iterable[object]) -> ConfigError:
