@@ -202,3 +202,17 @@ def test_malformed_suite_file(tmp_path: Path, text: str, expected: str) -> None:
         load_suite(_write(tmp_path / "bad.toml", text))
     assert expected in str(info.value)
     assert "\n" not in str(info.value)
+
+
+def test_a_long_bad_value_is_not_echoed_whole(tmp_path):
+    # Error messages stay one short line even when the offending value is kilobytes long.
+    suite = tmp_path / "long.toml"
+    suite.write_text(
+        'name = "long"\nversion = 1\ndescription = "' + "x" * 5000 + '"\n'
+        '[[entry]]\nscenario = "headon"\nseeds = [0, 1]\n'
+    )
+    with pytest.raises(ConfigError) as caught:
+        load_suite(suite)
+    message = str(caught.value)
+    assert "key 'description'" in message and "5002 characters" in message
+    assert len(message) < 400 and "\n" not in message

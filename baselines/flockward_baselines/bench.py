@@ -15,10 +15,14 @@ import sys
 import time
 from collections.abc import Callable
 from functools import partial
+from typing import TYPE_CHECKING, Any, TypedDict
 
 import numpy as np
 
 from flockward.task.registration import ENV_ID
+
+if TYPE_CHECKING:
+    from flockward.sim.world import World
 
 # Rough floating-point operations per interacting pair (distance, three terms, both birds'
 # accumulators) and per bird (steering sum, fear, clamps, integration): counted by hand from the
@@ -31,8 +35,25 @@ SCALING_SIZES = (250, 500, 1000, 2000)  # birds in one murmuration world
 SCALING_WARMUP = 5  # steps before timing, so the flock has left its initial formation
 NEIGHBOUR_SEARCHES = ("auto", "all-pairs", "grid")
 
+# What scaling_table returns. Its "table" holds one list per column: "N" (flock sizes), one per
+# neighbour search, "metrics", "components pairs", "components grid" (s per call) and "uses"
+# (the search "auto" picked), one entry per flock size.
+Scaling = TypedDict(
+    "Scaling",
+    {
+        "table": dict[str, list[Any]],
+        "exponent auto": float,
+        "exponent metrics": float,
+        "crossover": float | None,
+        "crossover components": float | None,
+        "grid_min_birds": int,
+        "metrics_grid_min_birds": int,
+    },
+)
+
 
 def _median_rate(run: Callable[[], int], repeats: int) -> float:
+    """Median units per second of ``run`` (which returns the units it did) after a warm-up."""
     run()  # warm-up: compilation, caches
     rates = []
     for _ in range(repeats):
@@ -42,7 +63,8 @@ def _median_rate(run: Callable[[], int], repeats: int) -> float:
     return statistics.median(rates)
 
 
-def _world(worlds: int, birds: int, neighbour_search: str = "auto"):
+def _world(worlds: int, birds: int, neighbour_search: str = "auto") -> World:
+    """``worlds`` headon worlds of ``birds`` birds, each reset from its own index as seed."""
     from flockward.config.scenarios import load_scenario
     from flockward.sim.world import World
 
@@ -53,7 +75,9 @@ def _world(worlds: int, birds: int, neighbour_search: str = "auto"):
     return world
 
 
-def simulator_rate(worlds: int, birds: int, steps: int, repeats: int = 5, search="auto") -> float:
+def simulator_rate(
+    worlds: int, birds: int, steps: int, repeats: int = 5, search: str = "auto"
+) -> float:
     """Bird-steps per second of the bare step kernel."""
     world = _world(worlds, birds, search)
     action = np.zeros((worlds, world.n_drones, 2))
@@ -96,6 +120,7 @@ def matmul_gflops(n: int = 1000, repeats: int = 5) -> float:
 
 
 def kernel_gflops(worlds: int, birds: int, bird_steps_per_s: float) -> float:
+    """Estimated GFLOP/s of the step kernel at a measured rate (hand-counted FLOPS_PER_*)."""
     pairs = birds * (birds - 1) / 2
     flops_per_world_step = pairs * FLOPS_PER_PAIR + birds * FLOPS_PER_BIRD
     return bird_steps_per_s / birds * flops_per_world_step / 1e9
@@ -172,12 +197,12 @@ def ppo_rates(worlds: int = 16, timesteps: int = 16 * 256, repeats: int = 3) -> 
         ENV_ID: make_vec_env(num_envs=worlds, seed=0, scenario="headon"),
         "CartPole-v1": sb3_make_vec_env("CartPole-v1", n_envs=worlds, seed=0),
     }
-    out = {}
+    out: dict[str, float] = {}
     for name, venv in envs.items():
         model = PPO("MlpPolicy", venv, n_steps=128, batch_size=256, n_epochs=4, seed=0)
         model.learn(total_timesteps=worlds * 128)  # warm-up
 
-        def run(model=model) -> int:
+        def run(model: PPO = model) -> int:
             model.learn(total_timesteps=timesteps, reset_num_timesteps=False)
             return timesteps
 
@@ -195,7 +220,7 @@ def runner_times(suite_name: str = "smoke") -> dict[int, float]:
     from flockward_baselines.controllers import BUILTIN, make_controller
 
     suite = load_suite(suite_name)
-    out = {}
+    out: dict[int, float] = {}
     for workers in (1, 2):
         with tempfile.TemporaryDirectory() as tmp:
             start = time.perf_counter()
@@ -222,7 +247,7 @@ def _crossover(sizes: list[int], pairs: list[float], grid: list[float]) -> float
     return None
 
 
-def _murmuration_world(birds: int, search: str):
+def _murmuration_world(birds: int, search: str) -> World:
     """One murmuration world of ``birds`` birds, reset from seed 0 and stepped SCALING_WARMUP."""
     from flockward.config.scenarios import load_scenario
     from flockward.sim.world import World
@@ -282,7 +307,7 @@ def _scaling_runs(birds: int) -> tuple[dict[str, Callable[[], object]], bool]:
 
 def scaling_table(
     sizes: tuple[int, ...] = SCALING_SIZES, repeats: int = 5, seconds: float = 0.2
-) -> dict[str, object]:
+) -> Scaling:
     """Seconds per step of one murmuration world, and of step_metrics on it, against flock size.
 
     For every N: the simulator step with the automatic neighbour search, with all pairs and with
@@ -293,7 +318,7 @@ def scaling_table(
     from flockward.sim import dynamics, metrics
 
     keys = ("N", *NEIGHBOUR_SEARCHES, "metrics", "components pairs", "components grid", "uses")
-    table: dict[str, list] = {key: [] for key in keys}
+    table: dict[str, list[Any]] = {key: [] for key in keys}
     for birds in sizes:
         runs, uses_grid = _scaling_runs(birds)
         for name, median in _timed_together(runs, repeats, seconds).items():
@@ -314,12 +339,14 @@ def scaling_table(
 
 
 def _where(crossover: float | None, pairs: list[float], grid: list[float]) -> str:
+    """Where the all-pairs and grid searches trade places, in words."""
     if crossover is not None:
         return f"all pairs and grid cross near N = {crossover:.0f}"
     return f"{'grid' if grid[0] < pairs[0] else 'all pairs'} faster at every measured N"
 
 
-def _emit_scaling(scaling: dict[str, object], emit: Callable[[str], None]) -> None:
+def _emit_scaling(scaling: Scaling, emit: Callable[[str], None]) -> None:
+    """Print the scaling table, its fitted exponents and whether the automatic choices pay."""
     t = scaling["table"]
     emit("  ms per step     simulator step                     step_metrics   components")
     emit("  N      auto (uses)         all-pairs     grid                    pairs     grid")
@@ -335,25 +362,25 @@ def _emit_scaling(scaling: dict[str, object], emit: Callable[[str], None]) -> No
         f"step_metrics k = {scaling['exponent metrics']:.2f}"
     )
     for label, pairs, grid, crossover, switch in (
-        ("simulator", t["all-pairs"], t["grid"], scaling["crossover"], "grid_min_birds"),
+        ("simulator", t["all-pairs"], t["grid"], scaling["crossover"], scaling["grid_min_birds"]),
         (
             "components",
             t["components pairs"],
             t["components grid"],
             scaling["crossover components"],
-            "metrics_grid_min_birds",
+            scaling["metrics_grid_min_birds"],
         ),
     ):
         # The automatic choice loses where the search it picks is >10 % slower than the other.
         lost = [
             birds
             for k, birds in enumerate(t["N"])
-            if (grid[k] > 1.1 * pairs[k] if birds >= scaling[switch] else pairs[k] > 1.1 * grid[k])
+            if (grid[k] > 1.1 * pairs[k] if birds >= switch else pairs[k] > 1.1 * grid[k])
         ]
         verdict = f"; that choice is the slower one at N = {lost}" if lost else ""
         emit(
             f"  {label}: {_where(crossover, pairs, grid)}; automatic grid from N = "
-            f"{scaling[switch]}{verdict}"
+            f"{switch}{verdict}"
         )
 
 
@@ -363,7 +390,7 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
     results: dict[str, object] = {}
     emit("flockward bench: medians over repeats after a warm-up; ratios from this run only")
     emit("\nSimulator kernel (one thread, float64):")
-    sim = {}
+    sim: dict[tuple[int, int], float] = {}
     for worlds, birds in SIM_SIZES:
         steps = max(5, int(200_000 / (worlds * birds))) if not quick else 5
         rate = simulator_rate(worlds, birds, steps, repeats)

@@ -8,13 +8,18 @@ from __future__ import annotations
 
 import argparse
 import sys
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from flockward.config.scenarios import ConfigError, config_kind, load_flock, load_scenario
-from flockward.sim.types import Randomisation
+from flockward.sim.types import Randomisation, Scenario
+
+if TYPE_CHECKING:
+    from flockward.bench.episode import EpisodeRecord
+    from flockward.bench.evaluation import Backend
+    from flockward.controller import Controller
 
 CAUTION = (
     "Caution: flockward is a simulation for research and teaching. Its controllers are not "
@@ -71,7 +76,10 @@ def _cmd_bench(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def _play(scenario_name: str, controller_name: str, seed: int, frames: bool):
+def _play(
+    scenario_name: str, controller_name: str, seed: int, frames: bool
+) -> tuple[Scenario, EpisodeRecord, list[dict[str, Any]]]:
+    """One episode of a built-in or imported controller: the scenario, its record and frames."""
     from flockward.bench.episode import play_episode
     from flockward_baselines.controllers import make_controller
 
@@ -163,7 +171,10 @@ def _run_summary(path: Path, total: int) -> str:
     data = read_results(path)
     rows = data["episodes"]
     n = len(rows)
-    rate = (lambda k: f"{k / n:.1%}") if n else (lambda k: "n/a")
+
+    def rate(k: int) -> str:
+        return f"{k / n:.1%}" if n else "n/a"
+
     success = sum(1 for r in rows if r["success"])
     clean = sum(1 for r in rows if r["outcome"] != "error" and r["breached_birds"] == 0)
     errors = sum(1 for r in rows if r["outcome"] == "error")
@@ -175,7 +186,7 @@ def _run_summary(path: Path, total: int) -> str:
 
 
 @contextmanager
-def _backend(args: argparse.Namespace) -> Iterator[tuple[int, Any]]:
+def _backend(args: argparse.Namespace) -> Iterator[tuple[int, Backend | None]]:
     """(workers, backend) for run_suite: local processes, or Ray tasks with --ray."""
     if args.ray is None:
         yield (1 if args.workers is None else args.workers), None
@@ -203,7 +214,8 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
     try:
         suite = load_suite(args.suite)
-        params = dict(_controller_param(item) for item in args.param)
+        params: dict[str, Any] = dict(_controller_param(item) for item in args.param)
+        factory: Callable[[], Controller]
         if (args.controller is None) == (args.model is None):
             raise ValueError("give exactly one of --controller NAME and --model FILE.zip")
         if args.model is not None:

@@ -10,20 +10,24 @@ from __future__ import annotations
 
 import hashlib
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from flockward.controller import Controller, StateView
 from flockward.sim.types import Scenario
 
+if TYPE_CHECKING:  # Stable-Baselines3 is optional: imported on the first reset
+    from stable_baselines3.common.base_class import BaseAlgorithm
+
 ALGORITHMS = ("ppo", "a2c", "sac", "td3", "ddpg")
 
 # Loaded models by (resolved path, algorithm): one load per process, shared by the episodes.
-_CACHE: dict[tuple[str, str], Any] = {}
+_CACHE: dict[tuple[str, str], BaseAlgorithm] = {}
 
 
 def _sha256(path: Path) -> str:
+    """Hex sha256 of a file, read in 1 MiB blocks."""
     digest = hashlib.sha256()
     with path.open("rb") as handle:
         for block in iter(lambda: handle.read(1 << 20), b""):
@@ -48,13 +52,14 @@ class PolicyController(Controller):
         self.algorithm = algorithm
         self.name = f"model-{path.stem}"
         self._digest = _sha256(self.path)  # read once: it identifies the model in result files
-        self._model: Any = None
+        self._model: BaseAlgorithm | None = None
 
     def parameters(self) -> dict[str, Any]:
         """The model by file name and content hash (not path: the same model may move)."""
         return {"model": self.path.name, "model_sha256": self._digest, "algorithm": self.algorithm}
 
-    def _load(self) -> Any:
+    def _load(self) -> BaseAlgorithm:
+        """The model from this process's cache, loaded on first use."""
         key = (str(self.path), self.algorithm)
         if key not in _CACHE:
             try:
@@ -74,6 +79,8 @@ class PolicyController(Controller):
 
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
         """The model's deterministic action for this observation."""
+        if self._model is None:
+            raise RuntimeError(f"{self.name}: call reset(scenario) before act(...)")
         expected = self._model.observation_space.shape
         if expected is not None and tuple(np.shape(observation)) != tuple(expected):
             shape = np.shape(observation)

@@ -9,15 +9,24 @@ path); that one also carries the episode's ``outcome`` and final flock metrics.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+from pathlib import Path
 from typing import Any
 
+import gymnasium as gym
 import numpy as np
 from gymnasium.utils import seeding
-from stable_baselines3.common.vec_env.base_vec_env import VecEnv
+from stable_baselines3.common.vec_env.base_vec_env import VecEnv, VecEnvIndices
 
+from flockward.sim.types import Scenario
 from flockward.task.batched import DivertTask, action_space, check_actions, scalar_info
 from flockward.task.env_config import EnvConfig
 from flockward.task.registration import ENV_ID
+
+# SB3's VecEnvObs and VecEnvStepReturn narrowed to what flockward produces: a (B, D) array or a
+# dict of batched arrays (never a tuple); the step is (observations, rewards, dones, infos).
+BatchObs = np.ndarray | dict[str, np.ndarray]
+BatchStep = tuple[BatchObs, np.ndarray, np.ndarray, list[dict[str, Any]]]
 
 
 class FlockwardVecEnv(VecEnv):
@@ -27,7 +36,12 @@ class FlockwardVecEnv(VecEnv):
     batched task, so every index sees the same object: get_attr returns one value per index.
     """
 
-    def __init__(self, num_envs: int = 16, config: EnvConfig | Any = None, **options: Any):
+    def __init__(
+        self,
+        num_envs: int = 16,
+        config: EnvConfig | str | Path | Scenario | None = None,
+        **options: Any,
+    ):
         self.config = EnvConfig.from_options(config, **options)
         if self.config.render_mode is not None:
             raise ValueError("the SB3 adapter does not render; render a single DivertEnv instead")
@@ -38,22 +52,25 @@ class FlockwardVecEnv(VecEnv):
         self._actions = np.zeros((self.num_envs, 1, 2))  # (worlds, drones, 2), as check_actions
         self._generators: list[np.random.Generator] | None = None
 
-    def reset(self):
+    def reset(self) -> BatchObs:
+        """Reset every world (from the seeds set by ``seed``, if any) and observe them."""
         if self._generators is None or any(s is not None for s in self._seeds):
             self._generators = [seeding.np_random(s)[0] for s in self._seeds]
-        obs = self.task.reset(np.arange(self.num_envs), self._generators)
+        obs: BatchObs = self.task.reset(np.arange(self.num_envs), self._generators)
         self._reset_seeds()
         self._reset_options()
         return obs
 
     def step_async(self, actions: np.ndarray) -> None:
+        """Check and keep the (B, 2) actions for the next ``step_wait``."""
         self._actions = check_actions(actions, self.num_envs)
 
-    def step_wait(self):
+    def step_wait(self) -> BatchStep:
+        """Step every world; a finished world is reset and its last observation kept in info."""
         batch = self.task.step(self._actions)
         dones = batch.terminated | batch.truncated
         infos: list[dict[str, Any]] = [{} for _ in range(self.num_envs)]
-        obs = batch.observation
+        obs: BatchObs = batch.observation
         finished = np.flatnonzero(dones)
         if finished.size:
             for i in finished:
@@ -66,22 +83,34 @@ class FlockwardVecEnv(VecEnv):
         return obs, batch.reward.astype(np.float32), dones, infos
 
     def close(self) -> None:
+        """Nothing to release: no subprocesses, no windows."""
         return None
 
-    def get_attr(self, attr_name: str, indices=None) -> list[Any]:
-        # The adapter's own attributes (render_mode, scenario) first, then the shared task's.
+    def get_attr(self, attr_name: str, indices: VecEnvIndices = None) -> list[Any]:
+        """The adapter's own attribute (render_mode, scenario) or else the shared task's."""
         owner = self if attr_name in vars(self) else self.task
         value = getattr(owner, attr_name)
         return [value for _ in self._get_indices(indices)]
 
-    def set_attr(self, attr_name: str, value: Any, indices=None) -> None:
+    def set_attr(self, attr_name: str, value: Any, indices: VecEnvIndices = None) -> None:
+        """Set an attribute of the shared task (so of every index)."""
         setattr(self.task, attr_name, value)
 
-    def env_method(self, method_name: str, *method_args, indices=None, **method_kwargs):
+    def env_method(
+        self,
+        method_name: str,
+        *method_args: Any,
+        indices: VecEnvIndices = None,
+        **method_kwargs: Any,
+    ) -> list[Any]:
+        """Call a method of the shared task once per index."""
         method = getattr(self.task, method_name)
         return [method(*method_args, **method_kwargs) for _ in self._get_indices(indices)]
 
-    def env_is_wrapped(self, wrapper_class, indices=None) -> list[bool]:
+    def env_is_wrapped(
+        self, wrapper_class: type[gym.Wrapper], indices: VecEnvIndices = None
+    ) -> list[bool]:
+        """False for every index: the worlds are not Gymnasium envs, so nothing wraps them."""
         return [False for _ in self._get_indices(indices)]
 
 
@@ -102,14 +131,17 @@ class MixedVecEnv(VecEnv):
         self._bounds = np.cumsum([0] + [p.num_envs for p in parts])
         super().__init__(int(self._bounds[-1]), first.observation_space, first.action_space)
 
-    def reset(self):
+    def reset(self) -> BatchObs:
+        """Reset every part; observations in part order."""
         return _concat([part.reset() for part in self.parts])
 
     def step_async(self, actions: np.ndarray) -> None:
+        """Hand each part its slice of the actions."""
         for part, lo, hi in zip(self.parts, self._bounds[:-1], self._bounds[1:], strict=True):
             part.step_async(actions[lo:hi])
 
-    def step_wait(self):
+    def step_wait(self) -> BatchStep:
+        """Step every part; results joined in part order."""
         results = [part.step_wait() for part in self.parts]
         obs = _concat([r[0] for r in results])
         rewards = np.concatenate([r[1] for r in results])
@@ -117,54 +149,82 @@ class MixedVecEnv(VecEnv):
         infos = [info for r in results for info in r[3]]
         return obs, rewards, dones, infos
 
-    def seed(self, seed: int | None = None):
-        out = []
+    def seed(self, seed: int | None = None) -> Sequence[int | None]:
+        """Seed world i of the mix with ``seed + i``, as a single adapter of that size would."""
+        out: list[int | None] = []
         for part, lo in zip(self.parts, self._bounds[:-1], strict=True):
             out += part.seed(None if seed is None else seed + int(lo))
         return out
 
     def close(self) -> None:
+        """Close every part."""
         for part in self.parts:
             part.close()
 
-    def get_attr(self, attr_name: str, indices=None) -> list[Any]:
+    def get_attr(self, attr_name: str, indices: VecEnvIndices = None) -> list[Any]:
+        """The mix's own attribute, or else that of the part holding each index."""
         if attr_name in vars(self):
             return [getattr(self, attr_name) for _ in self._get_indices(indices)]
         return [self._part(i).get_attr(attr_name, [0])[0] for i in self._get_indices(indices)]
 
-    def set_attr(self, attr_name: str, value: Any, indices=None) -> None:
+    def set_attr(self, attr_name: str, value: Any, indices: VecEnvIndices = None) -> None:
+        """Set an attribute of the task of the part holding each index."""
         for i in self._get_indices(indices):
             setattr(self._part(i).task, attr_name, value)
 
-    def env_method(self, method_name: str, *method_args, indices=None, **method_kwargs):
+    def env_method(
+        self,
+        method_name: str,
+        *method_args: Any,
+        indices: VecEnvIndices = None,
+        **method_kwargs: Any,
+    ) -> list[Any]:
+        """Call a method of the task of the part holding each index."""
         return [
             getattr(self._part(i).task, method_name)(*method_args, **method_kwargs)
             for i in self._get_indices(indices)
         ]
 
-    def env_is_wrapped(self, wrapper_class, indices=None) -> list[bool]:
+    def env_is_wrapped(
+        self, wrapper_class: type[gym.Wrapper], indices: VecEnvIndices = None
+    ) -> list[bool]:
+        """False for every index, as for a single adapter."""
         return [False for _ in self._get_indices(indices)]
 
     def _part(self, index: int) -> FlockwardVecEnv:
+        """The part that holds world ``index`` of the mix."""
         return self.parts[int(np.searchsorted(self._bounds, index, side="right")) - 1]
 
 
-def _concat(batches):
-    if isinstance(batches[0], dict):
-        return {key: np.concatenate([b[key] for b in batches]) for key in batches[0]}
-    return np.concatenate(batches)
+def _concat(batches: Sequence[BatchObs]) -> BatchObs:
+    """Batches of the parts joined along the world axis (a mix observes alike, checked)."""
+    first = batches[0]
+    if isinstance(first, dict):
+        return {key: np.concatenate([b[key] for b in batches]) for key in first}
+    return np.concatenate([np.asarray(b) for b in batches])
 
 
-def _row(obs, i: int):
+def _row(obs: BatchObs, i: int) -> BatchObs:
+    """World ``i``'s observation, copied out of the batch."""
     if isinstance(obs, dict):
         return {key: value[i].copy() for key, value in obs.items()}
-    return obs[i].copy()
+    row: np.ndarray = obs[i].copy()
+    return row
 
 
-def _merge(obs, fresh, rows: np.ndarray):
+def _merge(obs: BatchObs, fresh: BatchObs, rows: np.ndarray) -> BatchObs:
     """``obs`` with the given rows taken from ``fresh`` (both batched alike)."""
-    if isinstance(obs, dict):
-        return {key: _merge(obs[key], fresh[key], rows) for key in obs}
+    if isinstance(obs, dict) and isinstance(fresh, dict):
+        return {key: _merge_array(obs[key], fresh[key], rows) for key in obs}
+    if isinstance(obs, np.ndarray) and isinstance(fresh, np.ndarray):
+        return _merge_array(obs, fresh, rows)
+    raise TypeError(
+        f"observation batches of different forms: {type(obs).__name__}, {type(fresh).__name__}"
+    )
+
+
+def _merge_array(obs: np.ndarray, fresh: np.ndarray, rows: np.ndarray) -> np.ndarray:
+    """A copy of ``obs`` with the given rows taken from ``fresh``."""
     out = obs.copy()
     out[rows] = fresh[rows]
     return out

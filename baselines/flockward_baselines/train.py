@@ -16,7 +16,7 @@ import math
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -25,16 +25,26 @@ from flockward.config.files import ConfigError, list_scenarios, read_toml
 from flockward.config.files import label as file_label
 from flockward.config.scenarios import load_scenario
 from flockward.config.schema import Origin, Spec, convert
+from flockward.controller import Controller, StateView
+from flockward.sim.types import Scenario
 from flockward.task.env_config import EnvConfig
+
+if TYPE_CHECKING:  # Stable-Baselines3 is optional: imported where training needs it
+    from stable_baselines3 import PPO, SAC
+    from stable_baselines3.common.base_class import BaseAlgorithm
+    from stable_baselines3.common.callbacks import BaseCallback
+    from stable_baselines3.common.vec_env import VecEnv
 
 ALGORITHMS = ("ppo", "sac")
 
 
 def _int(lo: int, hi: int) -> Spec:
+    """An integer key allowed in [lo, hi]."""
     return Spec("int", lo, hi)
 
 
 def _float(lo: float, hi: float) -> Spec:
+    """A number key allowed in [lo, hi]."""
     return Spec("float", lo, hi)
 
 
@@ -119,28 +129,54 @@ _TOP_KEYS: dict[str, Spec] = {
 }
 
 
+# Top-level keys a config may hold: names, tables and the numeric _TOP_KEYS.
+_ALLOWED_KEYS = frozenset(
+    {"name", "algorithm", "scenarios", "overrides", "eval_suite", "net_arch", "pretrain"}
+    | {"observation", "reward"}
+    | set(_TOP_KEYS)
+    | set(ALGORITHMS)
+)
+
+
 def load_train_config(path: str | Path) -> TrainConfig:
     """Read and validate a training config; errors are one-line ConfigErrors."""
     path = Path(path)
     raw = read_toml(path)
     label = file_label(path)
     top = Origin(label, "")
-    allowed = {"name", "algorithm", "scenarios", "overrides", "eval_suite", "net_arch", "pretrain"}
-    allowed |= {"observation", "reward"}
-    allowed |= set(_TOP_KEYS) | set(ALGORITHMS)
     for key in raw:
-        if key not in allowed:
+        if key not in _ALLOWED_KEYS:
             raise ConfigError(
-                f"{label}: unknown key '{key}'; allowed: {', '.join(sorted(allowed))}"
+                f"{label}: unknown key '{key}'; allowed: {', '.join(sorted(_ALLOWED_KEYS))}"
             )
     algorithm = raw.get("algorithm")
-    if algorithm not in ALGORITHMS:
+    if not isinstance(algorithm, str) or algorithm not in ALGORITHMS:
         raise ConfigError(
             f"{label}: key 'algorithm' = {algorithm!r}: must be one of {', '.join(ALGORITHMS)}"
         )
     name = raw.get("name", path.stem)
     if not isinstance(name, str) or not name.replace("-", "").replace("_", "").isalnum():
         raise ConfigError(f"{label}: key 'name' = {name!r}: must be letters, digits, '-' or '_'")
+    scenarios, overrides = _scenarios(raw, label)
+    given = _optional_settings(raw, algorithm, top)
+    config = TrainConfig(
+        name=name,
+        algorithm=algorithm,
+        scenarios=tuple(scenarios),
+        overrides=dict(overrides),
+        source_file=label,
+        **given,
+    )
+    if config.num_envs < len(scenarios):
+        raise top.child("num_envs").error(
+            config.num_envs,
+            f"must be at least the number of scenarios ({len(scenarios)}), one world each at least",
+        )
+    return config
+
+
+def _scenarios(raw: dict[str, object], label: str) -> tuple[list[str], dict[str, Any]]:
+    """The training scenarios and the overrides applied to each, every one loaded as a check."""
     scenarios = raw.get("scenarios")
     if (
         not isinstance(scenarios, list)
@@ -159,37 +195,20 @@ def load_train_config(path: str | Path) -> TrainConfig:
             load_scenario(scenario, overrides)
         except ConfigError as error:
             raise ConfigError(f"{label}: key 'scenarios' entry {scenario!r}: {error}") from None
+    return scenarios, overrides
+
+
+def _optional_settings(raw: dict[str, object], algorithm: str, top: Origin) -> dict[str, Any]:
+    """The TrainConfig fields a config may set beyond name, algorithm and scenarios, checked."""
+    label = top.file
     given: dict[str, Any] = {
         key: convert(raw[key], spec, top.child(key))
         for key, spec in _TOP_KEYS.items()
         if key in raw
     }
     if "net_arch" in raw:
-        net_arch = raw["net_arch"]
-        if (
-            not isinstance(net_arch, list)
-            or not net_arch
-            or not all(
-                isinstance(u, int) and not isinstance(u, bool) and 1 <= u <= NET_ARCH_MAX
-                for u in net_arch
-            )
-        ):
-            raise ConfigError(
-                f"{label}: key 'net_arch' = {net_arch!r}: must be a list of layer widths in "
-                f"[1, {NET_ARCH_MAX}]"
-            )
-        given["net_arch"] = tuple(net_arch)
-    for algo in ALGORITHMS:
-        if algo in raw and algo != algorithm:
-            raise ConfigError(
-                f"{label}: key '{algo}' = table: does not apply to algorithm '{algorithm}'"
-            )
-    table = raw.get(algorithm, {})
-    if not isinstance(table, dict):
-        raise ConfigError(f"{label}: key '{algorithm}' = {table!r}: must be a table")
-    given["hyperparameters"] = _checked_table(
-        table, HYPERPARAMETERS[algorithm], top.child(algorithm)
-    )
+        given["net_arch"] = _net_arch(raw["net_arch"], label)
+    given["hyperparameters"] = _hyperparameters(raw, algorithm, top)
     if "pretrain" in raw:
         given["pretrain"] = _pretrain(raw["pretrain"], top.child("pretrain"))
     if "eval_suite" in raw:
@@ -198,35 +217,61 @@ def load_train_config(path: str | Path) -> TrainConfig:
                 f"{label}: key 'eval_suite' = {raw['eval_suite']!r}: must be a suite name"
             )
         given["eval_suite"] = raw["eval_suite"]
+    given |= _env_parts(raw, top)
+    return given
+
+
+def _net_arch(net_arch: object, label: str) -> tuple[int, ...]:
+    """Hidden layer widths, each in [1, NET_ARCH_MAX]."""
+    if (
+        not isinstance(net_arch, list)
+        or not net_arch
+        or not all(
+            isinstance(u, int) and not isinstance(u, bool) and 1 <= u <= NET_ARCH_MAX
+            for u in net_arch
+        )
+    ):
+        raise ConfigError(
+            f"{label}: key 'net_arch' = {net_arch!r}: must be a list of layer widths in "
+            f"[1, {NET_ARCH_MAX}]"
+        )
+    return tuple(net_arch)
+
+
+def _hyperparameters(raw: dict[str, object], algorithm: str, top: Origin) -> dict[str, Any]:
+    """The chosen algorithm's table; another algorithm's table is refused, not ignored."""
+    label = top.file
+    for algo in ALGORITHMS:
+        if algo in raw and algo != algorithm:
+            raise ConfigError(
+                f"{label}: key '{algo}' = table: does not apply to algorithm '{algorithm}'"
+            )
+    table = raw.get(algorithm, {})
+    if not isinstance(table, dict):
+        raise ConfigError(f"{label}: key '{algorithm}' = {table!r}: must be a table")
+    return _checked_table(table, HYPERPARAMETERS[algorithm], top.child(algorithm))
+
+
+def _env_parts(raw: dict[str, object], top: Origin) -> dict[str, str]:
+    """The observation and reward a config names, checked by building the environment config."""
+    parts: dict[str, str] = {}
     for key in ("observation", "reward"):
         if key not in raw:
             continue
-        if not isinstance(raw[key], str):
+        value = raw[key]
+        if not isinstance(value, str):
             raise top.child(key).error(
-                raw[key], "must be a name or an import path 'package.module:Name'"
+                value, "must be a name or an import path 'package.module:Name'"
             )
-        given[key] = raw[key]
+        parts[key] = value
     try:
-        EnvConfig.from_options(**{k: given[k] for k in ("observation", "reward") if k in given})
+        EnvConfig.from_options(**parts)
     except ValueError as error:
-        raise ConfigError(f"{label}: key {error}") from None
-    config = TrainConfig(
-        name=name,
-        algorithm=algorithm,
-        scenarios=tuple(scenarios),
-        overrides=dict(overrides),
-        source_file=label,
-        **given,
-    )
-    if config.num_envs < len(scenarios):
-        raise top.child("num_envs").error(
-            config.num_envs,
-            f"must be at least the number of scenarios ({len(scenarios)}), one world each at least",
-        )
-    return config
+        raise ConfigError(f"{top.file}: key {error}") from None
+    return parts
 
 
-def _checked_table(table: dict[str, Any], specs: dict[str, Spec], origin: Origin) -> dict:
+def _checked_table(table: dict[str, Any], specs: dict[str, Spec], origin: Origin) -> dict[str, Any]:
     """A table's keys checked against their specs; an unlisted key is an error."""
     for key in table:
         if key not in specs:
@@ -249,13 +294,13 @@ def _pretrain(table: object, origin: Origin) -> dict[str, Any]:
     return {"expert": table["expert"], **_checked_table(settings, PRETRAIN, origin)}
 
 
-def make_training_env(config: TrainConfig):
+def make_training_env(config: TrainConfig) -> VecEnv:
     """The SB3 VecEnv of the config: one adapter, or a mix of one adapter per scenario."""
-    from flockward_baselines.sb3 import MixedVecEnv, make_vec_env
+    from flockward_baselines.sb3 import FlockwardVecEnv, MixedVecEnv, make_vec_env
 
     k = len(config.scenarios)
     shares = [config.num_envs // k + (1 if i < config.num_envs % k else 0) for i in range(k)]
-    parts = []
+    parts: list[FlockwardVecEnv] = []
     first_seed = config.seed
     for scenario, worlds in zip(config.scenarios, shares, strict=True):
         parts.append(
@@ -271,15 +316,14 @@ def make_training_env(config: TrainConfig):
     return parts[0] if k == 1 else MixedVecEnv(parts)
 
 
-def _model_controller(model):
+def _model_controller(model: BaseAlgorithm) -> Controller:
     """A Controller playing an in-memory SB3 model deterministically (for validation)."""
-    from flockward.controller import Controller
 
     class _InMemory(Controller):
         name = "training-policy"
         information_level = "observation"
 
-        def act(self, observation, state):
+        def act(self, observation: Any, state: StateView | None) -> np.ndarray:
             action, _ = model.predict(observation, deterministic=True)
             return np.asarray(action, dtype=np.float64).reshape(-1)
 
@@ -294,25 +338,46 @@ def demonstrations(config: TrainConfig) -> tuple[np.ndarray, np.ndarray]:
     observations: list[np.ndarray] = []
     actions: list[np.ndarray] = []
 
-    def record(obs, action) -> None:
+    def record(obs: Any, action: np.ndarray) -> None:
         observations.append(np.asarray(obs, dtype=np.float32))
         actions.append(np.clip(action, -1.0, 1.0).astype(np.float32))
 
+    pretrain = _pretrain_settings(config)
     for k, name in enumerate(config.scenarios):
         scenario = load_scenario(name, config.overrides)
-        for episode in range(config.pretrain["episodes"]):
+        for episode in range(pretrain["episodes"]):
             seed = DEMO_SEED + 1000 * k + episode
-            play_episode(scenario, make_controller(config.pretrain["expert"]), seed,
+            play_episode(scenario, make_controller(pretrain["expert"]), seed,
                          env_kwargs=config.env_options, on_action=record)  # fmt: skip
     return np.stack(observations), np.stack(actions)
 
 
-def behaviour_clone(model, observations: np.ndarray, actions: np.ndarray, config: TrainConfig):
+def _pretrain_settings(config: TrainConfig) -> dict[str, Any]:
+    """The config's [pretrain] table; ValueError for a config without one."""
+    if config.pretrain is None:
+        raise ValueError(f"training config {config.name!r} has no [pretrain] table")
+    return config.pretrain
+
+
+def behaviour_clone(
+    model: BaseAlgorithm, observations: np.ndarray, actions: np.ndarray, config: TrainConfig
+) -> float:
     """Fit the policy to the demonstrations by maximum likelihood; return the final loss."""
     import torch
+    from stable_baselines3.common.policies import ActorCriticPolicy
 
-    settings = {"epochs": 20, "learning_rate": 1e-3, "batch_size": 256, **config.pretrain}
+    settings: dict[str, Any] = {
+        "epochs": 20,
+        "learning_rate": 1e-3,
+        "batch_size": 256,
+        **_pretrain_settings(config),
+    }
     policy = model.policy
+    if not isinstance(policy, ActorCriticPolicy):
+        raise ValueError(
+            "[pretrain] clones into an actor-critic policy (algorithm 'ppo'); "
+            f"{type(policy).__name__} has no action distribution to fit"
+        )
     optimiser = torch.optim.Adam(policy.parameters(), lr=settings["learning_rate"])
     x = torch.as_tensor(observations)
     y = torch.as_tensor(actions)
@@ -324,12 +389,14 @@ def behaviour_clone(model, observations: np.ndarray, actions: np.ndarray, config
             batch = perm[start : start + settings["batch_size"]]
             loss = -policy.get_distribution(x[batch]).log_prob(y[batch]).mean()
             optimiser.zero_grad()
-            loss.backward()
+            torch.autograd.backward(loss)  # loss.backward(), in its annotated spelling
             optimiser.step()
-    return loss.item()
+    return float(loss.item())
 
 
-def validate(model, suite_name: str, env_options: dict[str, Any] | None = None) -> float:
+def validate(
+    model: BaseAlgorithm, suite_name: str, env_options: dict[str, Any] | None = None
+) -> float:
     """Mean headline score of the deterministic policy over the validation suite."""
     from flockward.bench.episode import play_episode
     from flockward.bench.leaderboard import episode_score
@@ -337,8 +404,8 @@ def validate(model, suite_name: str, env_options: dict[str, Any] | None = None) 
 
     suite = load_suite(suite_name)
     controller = _model_controller(model)
-    scores = []
-    scenarios = {}
+    scores: list[float] = []
+    scenarios: dict[str, Scenario] = {}
     for spec in suite.episodes():
         if spec.family not in scenarios:
             scenarios[spec.family] = next(
@@ -352,6 +419,7 @@ def validate(model, suite_name: str, env_options: dict[str, Any] | None = None) 
 
 
 def _write_eval_log(path: Path, rows: list[tuple[int, float, float]]) -> None:
+    """eval.csv: one row per validation run (timesteps, score, wall seconds)."""
     with atomic_path(path) as tmp, tmp.open("w", newline="") as handle:
         writer = csv.writer(handle)
         writer.writerow(["timesteps", "validation_score", "wall_seconds"])
@@ -359,6 +427,7 @@ def _write_eval_log(path: Path, rows: list[tuple[int, float, float]]) -> None:
 
 
 def _read_eval_log(path: Path) -> list[tuple[int, float, float]]:
+    """The rows of eval.csv, none if there is no file yet."""
     if not path.is_file():
         return []
     with path.open() as handle:
@@ -369,12 +438,14 @@ def _read_eval_log(path: Path) -> list[tuple[int, float, float]]:
         ]
 
 
-def _save_atomic(model, path: Path) -> None:
+def _save_atomic(model: BaseAlgorithm, path: Path) -> None:
+    """Save the model so that ``path`` holds the old zip or the new one, never half of one."""
     with atomic_path(path, suffix=".partial.zip") as tmp:  # SB3 appends .zip to other names
         model.save(str(tmp))
 
 
 def _latest_checkpoint(run_dir: Path) -> Path | None:
+    """The checkpoint of the most timesteps, None if there is none."""
     found = sorted(
         (run_dir / "checkpoints").glob("step_*.zip"), key=lambda p: int(p.stem.split("_")[1])
     )
@@ -414,51 +485,108 @@ def plot_curve(run_dir: Path) -> Path:
     return out
 
 
-def train(config: TrainConfig, run_dir: str | Path, resume: bool = False, progress: bool = True):
+def train(
+    config: TrainConfig, run_dir: str | Path, resume: bool = False, progress: bool = True
+) -> Path:
     """Train (or resume) and return the path of the final model zip."""
     import torch
-    from stable_baselines3 import PPO, SAC
-    from stable_baselines3.common.callbacks import BaseCallback
     from stable_baselines3.common.logger import configure
     from stable_baselines3.common.vec_env import VecMonitor
-    from tqdm import tqdm
 
     torch.set_num_threads(config.torch_threads)
     run_dir = Path(run_dir)
     (run_dir / "checkpoints").mkdir(parents=True, exist_ok=True)
     env = VecMonitor(make_training_env(config))
-    algo = {"ppo": PPO, "sac": SAC}[config.algorithm]
     checkpoint = _latest_checkpoint(run_dir) if resume else None
     if resume and checkpoint is None:
         raise ValueError(f"--resume: no checkpoint under {run_dir / 'checkpoints'}")
     if checkpoint is not None:
-        model = algo.load(str(checkpoint), env=env, device="cpu")
+        model = _algorithm_class(config.algorithm).load(str(checkpoint), env=env, device="cpu")
     else:
-        if (run_dir / "model.zip").exists() or _latest_checkpoint(run_dir):
-            raise ValueError(
-                f"{run_dir} already holds a training run; pass --resume to continue it or choose "
-                "another --out directory"
-            )
-        model = algo(
-            "MlpPolicy",
-            env,
-            seed=config.seed,
-            device="cpu",
-            policy_kwargs={"net_arch": list(config.net_arch)},
-            **config.hyperparameters,
-        )
-        if config.pretrain is not None:
-            obs, acts = demonstrations(config)
-            loss = behaviour_clone(model, obs, acts, config)
-            if progress:
-                print(f"behaviour cloning of {config.pretrain['expert']}: {len(obs)} steps, "
-                      f"final negative log-likelihood {loss:.3f}")  # fmt: skip
+        model = _new_model(config, env, run_dir, progress)
     model.set_logger(configure(str(run_dir), ["csv", "tensorboard"]))
     evals = _read_eval_log(run_dir / "eval.csv") if resume else []
-    start_wall = time.perf_counter() - (evals[-1][2] if evals else 0.0)
+    log = _ValidationLog(
+        config, run_dir, evals, time.perf_counter() - (evals[-1][2] if evals else 0.0)
+    )
+    if not log.rows and checkpoint is None:
+        log.evaluate(model, 0)  # the starting point: untrained, or freshly cloned
+
+    remaining = config.total_timesteps - model.num_timesteps
+    if remaining > 0:
+        model.learn(
+            total_timesteps=remaining,
+            callback=_periodic_callback(model, config, run_dir, log, progress),
+            reset_num_timesteps=checkpoint is None,
+        )
+    final = run_dir / "model.zip"
+    _save_atomic(model, final)
+    if not log.rows or log.rows[-1][0] != model.num_timesteps:
+        log.evaluate(model, model.num_timesteps)
+    plot_curve(run_dir)
+    env.close()
+    return final
+
+
+def _algorithm_class(algorithm: str) -> type[PPO] | type[SAC]:
+    """The SB3 class of a config's algorithm name."""
+    from stable_baselines3 import PPO, SAC
+
+    classes: dict[str, type[PPO] | type[SAC]] = {"ppo": PPO, "sac": SAC}
+    return classes[algorithm]
+
+
+def _new_model(config: TrainConfig, env: VecEnv, run_dir: Path, progress: bool) -> PPO | SAC:
+    """A fresh model for an empty run directory, cloned from the expert if the config says so."""
+    if (run_dir / "model.zip").exists() or _latest_checkpoint(run_dir):
+        raise ValueError(
+            f"{run_dir} already holds a training run; pass --resume to continue it or choose "
+            "another --out directory"
+        )
+    model = _algorithm_class(config.algorithm)(
+        "MlpPolicy",
+        env,
+        seed=config.seed,
+        device="cpu",
+        policy_kwargs={"net_arch": list(config.net_arch)},
+        **config.hyperparameters,
+    )
+    if config.pretrain is not None:
+        obs, acts = demonstrations(config)
+        loss = behaviour_clone(model, obs, acts, config)
+        if progress:
+            print(f"behaviour cloning of {config.pretrain['expert']}: {len(obs)} steps, "
+                  f"final negative log-likelihood {loss:.3f}")  # fmt: skip
+    return model
+
+
+@dataclass
+class _ValidationLog:
+    """A run's validation scores so far (kept in eval.csv) and its best model (best_model.zip)."""
+
+    config: TrainConfig
+    run_dir: Path
+    rows: list[tuple[int, float, float]]  # (timesteps, validation score, wall seconds)
+    start_wall: float  # s, the perf_counter reading the run's wall seconds count from
+
+    def evaluate(self, model: BaseAlgorithm, steps: int) -> None:
+        """Validate, log, and keep the best-scoring policy as best_model.zip."""
+        score = validate(model, self.config.eval_suite, self.config.env_options)
+        if not self.rows or score > max(e[1] for e in self.rows):
+            _save_atomic(model, self.run_dir / "best_model.zip")
+        self.rows.append((steps, score, time.perf_counter() - self.start_wall))
+        _write_eval_log(self.run_dir / "eval.csv", self.rows)
+
+
+def _periodic_callback(
+    model: BaseAlgorithm, config: TrainConfig, run_dir: Path, log: _ValidationLog, progress: bool
+) -> BaseCallback:
+    """The callback that, during learning, draws progress, checkpoints and validates."""
+    from stable_baselines3.common.callbacks import BaseCallback
+    from tqdm import tqdm
 
     class _Periodic(BaseCallback):
-        def __init__(self):
+        def __init__(self) -> None:
             super().__init__()
             self.next_eval = (
                 (model.num_timesteps // config.eval_every + 1) * config.eval_every
@@ -485,43 +613,18 @@ def train(config: TrainConfig, run_dir: str | Path, resume: bool = False, progre
                 self.bar.update(now - self.last)
                 self.bar.set_postfix(
                     steps_per_s=f"{rate:,.0f}",
-                    validation=f"{evals[-1][1]:.3f}" if evals else "-",
+                    validation=f"{log.rows[-1][1]:.3f}" if log.rows else "-",
                 )
                 self.last, self.tick = now, time.perf_counter()
             if now >= self.next_ckpt:
                 _save_atomic(self.model, run_dir / "checkpoints" / f"step_{now}.zip")
                 self.next_ckpt += config.checkpoint_every
             if now >= self.next_eval:
-                _evaluate(self.model, now)
+                log.evaluate(self.model, now)
                 self.next_eval += config.eval_every
             return True
 
         def _on_training_end(self) -> None:
             self.bar.close()
 
-    def _wall() -> float:
-        return time.perf_counter() - start_wall
-
-    def _evaluate(current, steps: int) -> None:
-        """Validate, log, and keep the best-scoring policy as best_model.zip."""
-        score = validate(current, config.eval_suite, config.env_options)
-        if not evals or score > max(e[1] for e in evals):
-            _save_atomic(current, run_dir / "best_model.zip")
-        evals.append((steps, score, _wall()))
-        _write_eval_log(run_dir / "eval.csv", evals)
-
-    if not evals and checkpoint is None:
-        _evaluate(model, 0)  # the starting point: untrained, or freshly cloned
-
-    remaining = config.total_timesteps - model.num_timesteps
-    if remaining > 0:
-        model.learn(
-            total_timesteps=remaining, callback=_Periodic(), reset_num_timesteps=checkpoint is None
-        )
-    final = run_dir / "model.zip"
-    _save_atomic(model, final)
-    if not evals or evals[-1][0] != model.num_timesteps:
-        _evaluate(model, model.num_timesteps)
-    plot_curve(run_dir)
-    env.close()
-    return final
+    return _Periodic()

@@ -70,7 +70,8 @@ def load_controller_class(spec: str) -> type:
             f"controller {spec!r}: cannot import module {module_name!r} ({error})"
         ) from None
     try:
-        cls = getattr(module, attr)
+        # A class by contract; checked below by its information_level and act method.
+        cls: type = getattr(module, attr)
     except AttributeError:
         raise ValueError(f"controller {spec!r}: module {module_name!r} has no {attr!r}") from None
     level = getattr(cls, "information_level", None)

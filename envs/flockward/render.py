@@ -13,6 +13,7 @@ from __future__ import annotations
 import os
 from collections.abc import Mapping, Sequence
 from pathlib import Path
+from types import ModuleType
 from typing import Any
 
 import numpy as np
@@ -191,6 +192,7 @@ class FrameRenderer:
         self.interactive = interactive
         self.pause = 1.0 / fps
         figsize = (width / dpi, height / dpi)
+        self._plt: ModuleType | None  # matplotlib.pyplot, only while a window is open
         if interactive:
             import matplotlib.pyplot as plt
 
@@ -251,16 +253,23 @@ class FrameRenderer:
         pos = np.asarray(state.bird_pos[index, :n], dtype=np.float64)
         vel = np.asarray(state.bird_vel[index, :n], dtype=np.float64)
         self.birds.set_offsets(pos)
-        self.ticks.set_segments(velocity_ticks(pos, vel))
+        self.ticks.set_segments(list(velocity_ticks(pos, vel)))
         segments, colours = track_segments(track, CRIMSON, max_alpha=0.9)
-        self.track.set_segments(segments)
-        self.track.set_color(colours)
+        self.track.set_segments(list(segments))
+        # matplotlib's stubs leave out the (S, 4) RGBA array that set_color documents and accepts
+        self.track.set_color(colours)  # type: ignore[arg-type]
         drones = np.asarray(state.pursuer_pos[index], dtype=np.float64)  # (P, 2)
         self.pursuer.set_data(drones[:, 0], drones[:, 1])
         self.text.set_text(status_line(self.scenario, info))
         canvas = self.fig.canvas
         canvas.draw()
-        frame = np.asarray(canvas.buffer_rgba())[..., :3].copy()
+        if not isinstance(canvas, FigureCanvasAgg):
+            raise TypeError(
+                f"matplotlib canvas {type(canvas).__name__} cannot return pixels; use an "
+                "Agg-based backend (Agg, TkAgg, QtAgg, MacOSX)"
+            )
+        # matplotlib's Agg backend module carries no annotations
+        frame = np.asarray(canvas.buffer_rgba())[..., :3].copy()  # type: ignore[no-untyped-call]
         if self._plt is not None:
             self._plt.pause(self.pause)
         return frame
@@ -290,6 +299,7 @@ def _stack_drones(frames: Sequence[Mapping[str, Any]]) -> np.ndarray:
 
 
 def _check_frames(frames: Sequence[Mapping[str, Any]]) -> None:
+    """Refuse an empty episode: every picture needs at least the reset state."""
     if len(frames) == 0:
         raise ValueError("frames is empty; record at least the reset state of the episode")
 
@@ -336,18 +346,18 @@ def episode_still(
         pairs = np.stack([trail[:-1], trail[1:]], axis=2)  # (T'-1, n, 2, 2)
         colours = np.repeat(fading_colours(SMOKE, len(keep) - 1, 0.55), trail.shape[1], axis=0)
         ax.add_collection(
-            LineCollection(pairs.reshape(-1, 2, 2), colors=colours, linewidths=0.5, zorder=2)
+            LineCollection(list(pairs.reshape(-1, 2, 2)), colors=colours, linewidths=0.5, zorder=2)
         )
     drone_segments, drone_colours = track_segments(drones, CRIMSON, 0.95)
     ax.add_collection(
-        LineCollection(drone_segments, colors=drone_colours, linewidths=1.3, zorder=3)
+        LineCollection(list(drone_segments), colors=drone_colours, linewidths=1.3, zorder=3)
     )
     last = frames[-1]
     final_pos = birds[-1]
     final_vel = np.asarray(last["bird_vel"], dtype=np.float64).reshape(-1, 2)
     ax.add_collection(
         LineCollection(
-            velocity_ticks(final_pos, final_vel), colors=CHARCOAL, linewidths=0.8, zorder=4
+            list(velocity_ticks(final_pos, final_vel)), colors=CHARCOAL, linewidths=0.8, zorder=4
         )
     )
     ax.scatter(final_pos[:, 0], final_pos[:, 1], s=10.0, color=CHARCOAL, linewidths=0, zorder=5)

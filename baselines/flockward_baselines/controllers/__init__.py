@@ -40,6 +40,7 @@ def make_controller(name_or_import_path: str, **params: Any) -> Controller:
             f"{', '.join(BUILTIN)}, or an import path 'package.module:Name'"
         )
     try:
-        return cls(**params)
+        controller: Controller = cls(**params)  # an imported class follows Controller by its API
     except TypeError as error:
         raise ValueError(f"controller {name_or_import_path!r}: bad parameters ({error})") from None
+    return controller

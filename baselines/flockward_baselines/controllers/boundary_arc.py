@@ -101,6 +101,7 @@ class BoundaryArc(Controller):
         self._prepared: Scenario | None = None
 
     def parameters(self) -> dict[str, Any]:
+        """Every setting of the arc, the push and the drift correction."""
         return {
             "push_fraction": self.push_fraction,
             "push_distance": self.push_distance,
@@ -132,6 +133,7 @@ class BoundaryArc(Controller):
         return self.push_distance
 
     def reset(self, scenario: Scenario, seed: int | None = None) -> None:
+        """Prepare for the scenario and start with the approach to the standoff point."""
         self._prepare(scenario)
         self._mode = "approach"
         self._phase = 0.0  # rad, sweep offset from the arc centre
@@ -174,6 +176,7 @@ class BoundaryArc(Controller):
         return _unit(toward_goal - into * away + closeness * away)
 
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
+        """Back off from a bird too close, else approach the arc behind the rim and sweep it."""
         if state is None or len(state.bird_pos) == 0:
             return np.zeros(2)
         if self._prepared is not state.scenario:

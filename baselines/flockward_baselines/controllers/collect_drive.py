@@ -33,7 +33,7 @@ PAPER_R_A = 2.0  # agent lengths: Strömbom et al. 2014 parameter table (from me
 
 def cohesion_threshold(r_a: float, n: int) -> float:
     """f(N) = r_a N^(2/3): the largest distance from the GCM a 'collected' flock may have."""
-    return r_a * n ** (2.0 / 3.0)
+    return float(r_a * n ** (2.0 / 3.0))
 
 
 def driving_offset(r_a: float, n: int) -> float:
@@ -93,14 +93,17 @@ class CollectDrive(Controller):
         self.mode = "drive"
 
     def parameters(self) -> dict[str, Any]:
+        """The repulsion distance (None: the flock's), standoff margin and speed fraction."""
         return {"r_a": self.r_a, "standoff_margin": self.standoff_margin, "speed": self.speed}
 
     def reset(self, scenario: Scenario, seed: int | None = None) -> None:
+        """Take the goal from the scenario and start in drive mode."""
         self._scenario = scenario
         self._goal = np.array(zone_center(scenario.site.goal))
         self.mode = "drive"
 
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
+        """Fly round the flock to the collect or drive point, matching the flock's velocity."""
         if state is None or len(state.bird_pos) == 0:
             return np.zeros(2)
         if getattr(self, "_scenario", None) is not state.scenario:

@@ -31,6 +31,7 @@ class DirectPursuit(Controller):
         self.target = target
 
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
+        """Full speed at the target point; no command without the state or without birds."""
         if state is None or len(state.bird_pos) == 0:
             return np.zeros(2)
         pos, vel = state.pursuer_pos[0], state.pursuer_vel[0]  # the drone this controller flies
@@ -42,4 +43,5 @@ class DirectPursuit(Controller):
         return head_for(pos, vel, aim, state.scenario.pursuer)
 
     def parameters(self) -> dict[str, Any]:
+        """Which point is chased."""
         return {"target": self.target}

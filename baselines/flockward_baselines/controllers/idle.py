@@ -25,9 +25,11 @@ class Idle(Controller):
         self._home: np.ndarray | None = None
 
     def reset(self, scenario: Scenario, seed: int | None = None) -> None:
+        """Forget the home position; the first step of the episode sets it."""
         self._home = None
 
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
+        """Fly back to the drone's position at the first step; no command without the state."""
         if state is None:
             return np.zeros(2)
         pos, vel = state.pursuer_pos[0], state.pursuer_vel[0]  # the drone this controller flies
@@ -36,4 +38,5 @@ class Idle(Controller):
         return fly_to(pos, vel, self._home, state.scenario.pursuer)
 
     def parameters(self) -> dict[str, Any]:
+        """Idle has no settings."""
         return {}

@@ -61,7 +61,9 @@ def brake(vel: np.ndarray, pursuer: PursuerParams) -> np.ndarray:
     return _unit_command(-np.asarray(vel, dtype=np.float64) / 0.1, pursuer.max_accel)
 
 
-def head_for(pos: np.ndarray, vel: np.ndarray, target: np.ndarray, pursuer: PursuerParams):
+def head_for(
+    pos: np.ndarray, vel: np.ndarray, target: np.ndarray, pursuer: PursuerParams
+) -> np.ndarray:
     """Command that flies straight at ``target`` at top speed with no braking (a pure chase)."""
     offset = np.asarray(target, dtype=np.float64) - pos
     distance = float(np.hypot(offset[0], offset[1]))

@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 
 from flockward.controller import Controller, InformationLevel, StateView
-from flockward.sim.types import Scenario
+from flockward.sim.types import Scenario, WorldState
 from flockward.task.env import DivertEnv
 from flockward.task.outcome import Outcome
 
@@ -38,6 +38,7 @@ class EpisodeRecord:
     error: str | None = None  # why the controller failed the episode, if it did
 
     def as_dict(self) -> dict[str, Any]:
+        """The record as a flat dict, the form a result file stores."""
         return asdict(self)
 
 
@@ -64,7 +65,8 @@ def _track_length(before: np.ndarray, after: np.ndarray) -> float:
     return sum(float(np.hypot(*(a - b))) for a, b in zip(after, before, strict=True))
 
 
-def _checked_action(raw: Any) -> np.ndarray:
+def _checked_action(raw: object) -> np.ndarray:
+    """A controller's return value as a (2,) float64 action; ControllerFault if it is not one."""
     action = np.asarray(raw, dtype=np.float64)
     if action.shape != (2,):
         raise ControllerFault(f"action has shape {action.shape}, expected (2,)")
@@ -89,8 +91,8 @@ def play_episode(
     obs, info = env.reset(seed=seed)
     try:
         controller.reset(scenario, seed)
-    except Exception as error:  # a user's controller may raise anything
-        return _failed(scenario, seed, env, f"reset raised {type(error).__name__}: {error}"), []
+    except Exception as fault:  # a user's controller may raise anything
+        return _failed(scenario, seed, env, f"reset raised {type(fault).__name__}: {fault}"), []
     task = env.task
     state = task.state
     wants_state = controller.information_level == InformationLevel.STATE
@@ -108,8 +110,8 @@ def play_episode(
     total = 0.0
     step = 0
     outcome = Outcome.TIMEOUT
-    error = None
-    success_time = None
+    error: str | None = None
+    success_time: float | None = None
     breached = int(task.ever_inside[0].sum())
     if record_frames:
         frames.append(_frame(state, 0, info))
@@ -177,7 +179,7 @@ def play_episode(
     return record, frames
 
 
-def _frame(state, step: int, info: dict[str, Any]) -> dict[str, Any]:
+def _frame(state: WorldState, step: int, info: dict[str, Any]) -> dict[str, Any]:
     """One recorded step of world 0: active birds (n, 2), drones ``pursuer_pos`` (P, 2), metrics."""
     n = int(state.count[0])
     return {
@@ -193,6 +195,7 @@ def _frame(state, step: int, info: dict[str, Any]) -> dict[str, Any]:
 
 
 def _failed(scenario: Scenario, seed: int, env: DivertEnv, error: str) -> EpisodeRecord:
+    """The record of an episode the controller failed before its first step."""
     return EpisodeRecord(
         scenario=scenario.name,
         seed=int(seed),

@@ -28,7 +28,7 @@ from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wai
 from dataclasses import fields
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import Any
+from typing import Any, Protocol
 
 import gymnasium
 import numpy as np
@@ -95,7 +95,7 @@ def read_results(path: str | Path) -> dict[str, Any]:
             f"{path}: cannot read the existing result file ({error}); move or delete it, or "
             "write elsewhere with --results DIR"
         ) from None
-    if format_problem(data) is not None:
+    if not isinstance(data, dict) or format_problem(data) is not None:
         found = data.get("format") if isinstance(data, dict) else type(data).__name__
         raise ResultsConflict(
             f"{path}: not a {RESULTS_FORMAT} file (format {found!r}); move or delete it, or "
@@ -122,6 +122,7 @@ def _git_commit() -> str | None:
 
 
 def _provenance(suite: Suite) -> dict[str, Any]:
+    """Where and with what a result file was made: versions, commit, scenario hashes, time."""
     return {
         "flockward_version": flockward.__version__,
         "git_commit": _git_commit(),
@@ -133,7 +134,7 @@ def _provenance(suite: Suite) -> dict[str, Any]:
     }
 
 
-def _finite(value: Any) -> Any:
+def _finite(value: object) -> object:
     """JSON-safe copy: non-finite floats become None (strict JSON has no Infinity)."""
     if isinstance(value, float) and not math.isfinite(value):
         return None
@@ -165,7 +166,7 @@ def _play(
         "index": spec.index,
         **record.as_dict(),
     }
-    return _finite(row)
+    return {key: _finite(value) for key, value in row.items()}
 
 
 def _environment(env_options: dict[str, Any] | None) -> dict[str, Any] | None:
@@ -181,15 +182,17 @@ def _environment(env_options: dict[str, Any] | None) -> dict[str, Any] | None:
         )
     EnvConfig.from_options(**env_options)
     try:
-        return json.loads(json.dumps(env_options, allow_nan=False))
+        environment: dict[str, Any] = json.loads(json.dumps(env_options, allow_nan=False))
     except (TypeError, ValueError):
         raise ValueError(
             f"environment arguments {env_options!r}: give observation and reward by name or "
             "import path 'package.module:Name', so the result file can record them"
         ) from None
+    return environment
 
 
 def _header(suite: Suite, controller_name: str, controller: Controller) -> dict[str, Any]:
+    """The identity of a run: suite, its hash, controller, information level and parameters."""
     level = getattr(controller, "information_level", None)
     if level not in INFORMATION_LEVELS:
         raise ValueError(
@@ -248,7 +251,7 @@ def _resume(path: Path, header: dict[str, Any], specs: list[EpisodeSpec]) -> dic
             raise ResultsConflict(
                 f"{path}: episode entry {row!r:.80} does not match the suite; {advice}"
             )
-        seen.add(index)
+        seen.add(spec.index)
     return data
 
 
@@ -322,8 +325,9 @@ def run_suite(
         bar.close()
         if unsaved or not path.exists():
             save()
-        if callable(getattr(rows, "close", None)):
-            rows.close()  # stop the workers now, not whenever the generator is collected
+        close = getattr(rows, "close", None)
+        if callable(close):
+            close()  # stop the workers now, not whenever the generator is collected
     return path
 
 
@@ -349,7 +353,19 @@ def _rows(calls: list[tuple[Any, ...]], workers: int) -> Iterable[dict[str, Any]
         pool.shutdown(wait=True, cancel_futures=True)
 
 
+class _ProgressBar(Protocol):
+    """What the runner needs of a progress bar (tqdm's, or the silent stand-in)."""
+
+    def update(self, n: int) -> object:
+        """Count ``n`` more finished episodes."""
+
+    def close(self) -> None:
+        """Stop drawing."""
+
+
 class _NoBar:
+    """The progress bar when none is shown."""
+
     def update(self, n: int) -> None:
         """Nothing to draw."""
 
@@ -357,10 +373,13 @@ class _NoBar:
         """Nothing to close."""
 
 
-def _progress_bar(total: int, initial: int, label: str, enabled: bool) -> Any:
+def _progress_bar(total: int, initial: int, label: str, enabled: bool) -> _ProgressBar:
     """A tqdm bar on stderr when it is a terminal and progress is wanted, else a silent stand-in."""
     if not (enabled and sys.stderr.isatty()):
         return _NoBar()
     from tqdm import tqdm
 
-    return tqdm(total=total, initial=initial, desc=label, unit="ep", dynamic_ncols=True)
+    bar: _ProgressBar = tqdm(
+        total=total, initial=initial, desc=label, unit="ep", dynamic_ncols=True
+    )
+    return bar

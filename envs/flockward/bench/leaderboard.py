@@ -150,14 +150,16 @@ def _is_int(v: Any) -> bool:
     return isinstance(v, int) and not isinstance(v, bool)
 
 
-def load_results(results_dir: str | os.PathLike[str], suite: str, expected_hash: str) -> list[dict]:
+def load_results(
+    results_dir: str | os.PathLike[str], suite: str, expected_hash: str
+) -> list[dict[str, Any]]:
     """Every acceptable result file under ``<results_dir>/<suite>/``, in file-name order.
 
     A file that is not valid JSON, has another format, another suite hash, malformed episodes or a
     controller name already seen is skipped with a one-line warning on stderr.
     """
     folder = Path(results_dir) / suite
-    accepted: list[dict] = []
+    accepted: list[dict[str, Any]] = []
     seen: dict[str, Path] = {}
     for path in sorted(folder.glob("*.json")):
         if path.stem == OUTPUT_STEM:
@@ -210,7 +212,9 @@ def _row(result: Mapping[str, Any], reps: int, seed: int) -> dict[str, Any]:
     }
 
 
-def build_rows(results: Sequence[Mapping[str, Any]], reps: int = 2000, seed: int = 0) -> list[dict]:
+def build_rows(
+    results: Sequence[Mapping[str, Any]], reps: int = 2000, seed: int = 0
+) -> list[dict[str, Any]]:
     """One row per controller (keys ``ROW_KEYS``), best ``score_iqm`` first.
 
     Rates are shares of all episodes: success, no bird breached, at least one collision step.
@@ -322,7 +326,7 @@ class Leaderboard:
 
     suite: str
     version: int
-    rows: list[dict]
+    rows: list[dict[str, Any]]
 
     def render(self, fmt: str) -> str:
         """The table in ``fmt``: one of ``FORMATS``."""

@@ -94,7 +94,7 @@ def _drop(ray: ModuleType, refs: list[Any]) -> None:
 def _result(ray: ModuleType, ref: Any) -> dict[str, Any]:
     """The task's row, or its own exception raised in the driver."""
     try:
-        return ray.get(ref)
+        row: dict[str, Any] = ray.get(ref)
     except ray.exceptions.RayTaskError as error:
         cause = error.cause
         if isinstance(cause, Exception) and not isinstance(cause, ray.exceptions.RayError):
@@ -102,6 +102,7 @@ def _result(ray: ModuleType, ref: Any) -> dict[str, Any]:
         raise RuntimeError(f"a Ray task failed: {_first_line(cause)}") from None
     except ray.exceptions.RayError as error:  # worker or node lost, retries used up
         raise RuntimeError(f"a Ray task was lost: {_first_line(error)}") from None
+    return row
 
 
 def _first_line(error: BaseException) -> str:

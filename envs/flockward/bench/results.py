@@ -14,7 +14,7 @@ import json
 import math
 import os
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeGuard
 
 from flockward.config.atomic import write_atomic
 from flockward.controller import INFORMATION_LEVELS
@@ -61,11 +61,13 @@ def format_problem(data: Any) -> str | None:
     return None
 
 
-def _is_int(v: Any) -> bool:
+def _is_int(v: object) -> TypeGuard[int]:
+    """An int that is not a bool (JSON true/false are not counts)."""
     return isinstance(v, int) and not isinstance(v, bool)
 
 
-def _is_num(v: Any) -> bool:
+def _is_num(v: object) -> TypeGuard[int | float]:
+    """A finite int or float, not a bool."""
     return (_is_int(v) or isinstance(v, float)) and math.isfinite(v)
 
 

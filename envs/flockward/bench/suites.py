@@ -23,7 +23,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import re
 from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -39,7 +38,8 @@ from flockward.config.files import (
 from flockward.config.files import label as _label
 from flockward.config.hashing import scenario_hash
 from flockward.config.scenarios import load_scenario
-from flockward.config.schema import SECTIONS
+from flockward.config.schema import SECTIONS, Origin, convert
+from flockward.sim.spec import Spec
 from flockward.sim.types import Scenario
 
 __all__ = [
@@ -61,10 +61,15 @@ KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
     ("validation", 1): "7481de101df4641372c0b913f5b910d7dcc97e12ea655799409a11b68288b19a",
 }
 
-_NAME_RE = re.compile(r"[a-z0-9][a-z0-9_-]{0,39}")
-_NAME_RULE = "must be a lower-case name of at most 40 characters: a-z, 0-9, '_', '-'"
 _MAX_SEED = 2**31 - 1
 _MAX_VERSION = 1_000_000
+_NAME = Spec("name")
+# The suite file's top-level values, checked like scenario keys (one-line errors, same wording).
+_TOP_SPECS = {
+    "name": _NAME,
+    "version": Spec("int", 1, _MAX_VERSION),
+    "description": Spec("str", max_len=2000),
+}
 _TOP_KEYS = ("name", "version", "description", "entry")
 _ENTRY_KEYS = ("scenario", "overrides", "seeds", "family")
 
@@ -147,28 +152,33 @@ def _flat_overrides(table: Mapping[str, object]) -> dict[str, object]:
     return flat
 
 
-def _fmt(value: object) -> str:
-    return json.dumps(value, default=str)
+class _EntryErrors:
+    """One-line errors about entry number ``n`` (1-based) of the suite file ``label``."""
+
+    def __init__(self, label: str, n: int):
+        self.prefix = f"{label}: entry {n}"
+        self.origin = Origin(self.prefix, "")
+
+    def __call__(self, key: str, value: object, allowed: str) -> ConfigError:
+        return self.origin.child(key).error(value, allowed)
+
+    def plain(self, message: str) -> ConfigError:
+        """An error about the entry as a whole rather than one key's value."""
+        return ConfigError(f"{self.prefix}: {message}")
 
 
-def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
-    """Validate entry number ``n`` (1-based) of the file ``label``."""
-
-    def fail(key: str, value: object, allowed: str) -> ConfigError:
-        return ConfigError(f"{label}: entry {n}: key '{key}' = {_fmt(value)}: {allowed}")
-
-    if not isinstance(raw, Mapping):
-        raise ConfigError(f"{label}: entry {n}: must be a table ([[entry]])")
+def _check_entry_keys(raw: Mapping[str, object], fail: _EntryErrors) -> None:
+    """Only known keys, and the required ones present."""
     for key in raw:
         if key not in _ENTRY_KEYS:
-            raise ConfigError(
-                f"{label}: entry {n}: unknown key '{key}'; allowed: {', '.join(_ENTRY_KEYS)}"
-            )
+            raise fail.plain(f"unknown key '{key}'; allowed: {', '.join(_ENTRY_KEYS)}")
     for key in ("scenario", "seeds"):
         if key not in raw:
-            raise ConfigError(f"{label}: entry {n}: missing key '{key}'")
+            raise fail.plain(f"missing key '{key}'")
 
-    ref = raw["scenario"]
+
+def _scenario_ref(ref: object, base: Path, fail: _EntryErrors) -> tuple[str, bool]:
+    """The entry's scenario reference and whether it is a path (relative to ``base``)."""
     if not isinstance(ref, str) or not ref:
         raise fail("scenario", ref, "must be a shipped scenario name or a path to a TOML file")
     is_path = looks_like_path(ref)
@@ -181,21 +191,34 @@ def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
         )
     if is_path and not (base / ref).is_file():
         raise fail("scenario", ref, f"no such file {_label(base / ref)}")
+    return ref, is_path
 
-    seeds = raw["seeds"]
-    ok = (
-        isinstance(seeds, list)
-        and len(seeds) == 2
-        and all(isinstance(s, int) and not isinstance(s, bool) for s in seeds)
-    )
-    if not ok or not 0 <= seeds[0] <= seeds[1] <= _MAX_SEED:
+
+def _seed_range(seeds: object, fail: _EntryErrors) -> tuple[int, int]:
+    """The entry's inclusive ``[first, last]`` seeds."""
+    if (
+        not isinstance(seeds, list)
+        or len(seeds) != 2
+        or not all(isinstance(s, int) and not isinstance(s, bool) for s in seeds)
+        or not 0 <= seeds[0] <= seeds[1] <= _MAX_SEED
+    ):
         raise fail(
             "seeds",
             seeds,
             f"must be [first, last], integers with 0 <= first <= last <= {_MAX_SEED} "
             "(inclusive; an empty or reversed range plays nothing)",
         )
+    return int(seeds[0]), int(seeds[1])
 
+
+def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
+    """Validate entry number ``n`` (1-based) of the file ``label``."""
+    fail = _EntryErrors(label, n)
+    if not isinstance(raw, Mapping):
+        raise fail.plain("must be a table ([[entry]])")
+    _check_entry_keys(raw, fail)
+    ref, is_path = _scenario_ref(raw["scenario"], base, fail)
+    seeds = _seed_range(raw["seeds"], fail)
     overrides_raw = raw.get("overrides", {})
     if not isinstance(overrides_raw, Mapping):
         raise fail(
@@ -205,16 +228,14 @@ def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
     try:
         scenario = load_scenario(base / ref if is_path else ref, overrides)
     except ConfigError as error:
-        raise ConfigError(f"{label}: entry {n}: {error}") from None
+        raise fail.plain(str(error)) from None
 
-    family = raw.get("family", scenario.name)
-    if not isinstance(family, str) or not _NAME_RE.fullmatch(family):
-        raise fail("family", family, _NAME_RULE)
+    family = convert(raw.get("family", scenario.name), _NAME, fail.origin.child("family"))
     return SuiteEntry(
-        family=family,
+        family=str(family),
         scenario=scenario,
         overrides=tuple(sorted(overrides.items())),
-        seeds=(int(seeds[0]), int(seeds[1])),
+        seeds=seeds,
     )
 
 
@@ -233,23 +254,11 @@ def load_suite(name_or_path: str | Path) -> Suite:
     for key in ("name", "version", "entry"):
         if key not in data:
             raise ConfigError(f"{label}: missing key '{key}'")
-    name = data["name"]
-    if not isinstance(name, str) or not _NAME_RE.fullmatch(name):
-        raise ConfigError(f"{label}: key 'name' = {_fmt(name)}: {_NAME_RULE}")
-    version = data["version"]
-    if (
-        isinstance(version, bool)
-        or not isinstance(version, int)
-        or not 1 <= version <= _MAX_VERSION
-    ):
-        raise ConfigError(
-            f"{label}: key 'version' = {_fmt(version)}: must be an integer in [1, {_MAX_VERSION}]"
-        )
-    description = data.get("description", "")
-    if not isinstance(description, str) or len(description) > 2000:
-        raise ConfigError(
-            f"{label}: key 'description': must be a string of at most 2000 characters"
-        )
+    top = Origin(label, "")
+    name, version, description = (
+        convert(data.get(key, ""), spec, top.child(key)) for key, spec in _TOP_SPECS.items()
+    )
+    assert isinstance(version, int)  # convert returned an int for an "int" spec
     raw_entries = data["entry"]
     if not isinstance(raw_entries, list) or not raw_entries:
         raise ConfigError(f"{label}: key 'entry': must be one or more [[entry]] tables")
@@ -258,7 +267,7 @@ def load_suite(name_or_path: str | Path) -> Suite:
         _entry(raw, n, label, file.parent) for n, raw in enumerate(raw_entries, start=1)
     )
     _check_distinct(entries, label)
-    return Suite(name, version, description, entries, str(file))
+    return Suite(str(name), version, str(description), entries, str(file))
 
 
 def _check_distinct(entries: tuple[SuiteEntry, ...], label: str) -> None:

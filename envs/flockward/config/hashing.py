@@ -21,7 +21,8 @@ _NOT_PLAYED = {"source_file", "description"}
 _MISSING = dataclasses.MISSING
 
 
-def _default(field: dataclasses.Field) -> object:
+def _default(field: dataclasses.Field[object]) -> object:
+    """A field's default value, or MISSING if the field has none."""
     if field.default is not _MISSING:
         return field.default
     if field.default_factory is not _MISSING:

@@ -9,20 +9,14 @@ and training configs check their own keys with the same :class:`Spec` and :class
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Mapping
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 
+import numpy as np
+
 from flockward.config.files import ConfigError
-from flockward.sim.limits import (
-    LIMITS,
-    MAX_VERTICES,
-    NAME_RE,
-    POINT,
-    RADIUS,
-    Spec,
-    polygon_problem,
-    value_text,
-)
+from flockward.sim.limits import LIMITS, polygon_problem, value_text
+from flockward.sim.spec import MAX_VERTICES, NAME_RE, POINT, RADIUS, Spec
 from flockward.sim.types import Circle, Polygon, Zone
 
 __all__ = ["FLOCK_FILE_KEY", "SCHEMA", "SECTIONS", "Origin", "Spec", "config_reference", "convert"]
@@ -31,6 +25,10 @@ SCHEMA: dict[str, dict[str, Spec]] = LIMITS
 SECTIONS = tuple(s for s in SCHEMA if s)
 FLOCK_FILE_KEY = "file"  # [flock] file = "gulls": the only key not a FlockParams field
 _CIRCLE_KEYS = ("center", "radius")
+_MAX_SHOWN = 120  # characters of an offending value quoted in an error message
+_PLAIN_KINDS = ("bool", "str", "name", "choice")  # checked, then kept as they are
+# What Spec.number_ok accepts as a number; named again here so the type checker sees the type.
+_NUMBER_TYPES = (int, float, np.integer, np.floating)
 
 
 def config_reference() -> str:
@@ -63,17 +61,24 @@ class Origin:
 
     @property
     def word(self) -> str:
+        """How messages name the key: "override" for an override of the scenario, else "key"."""
         return "override" if self.override else "key"
 
     def child(self, sub: str) -> Origin:
+        """The origin of a key nested one level below this one."""
         key = f"{self.key}.{sub}" if self.key else sub
         return dataclasses.replace(self, key=key)
 
     def error(self, value: object, allowed: str) -> ConfigError:
-        text = f"{self.file}: {self.word} '{self.key}' = {value_text(value)}: {allowed}"
+        """The one-line error for a bad value at this key: file, key, value and what is allowed."""
+        shown = value_text(value)
+        if len(shown) > _MAX_SHOWN:  # one line, never an echo of a long input
+            shown = f"{shown[: _MAX_SHOWN - 20]}... ({len(shown)} characters)"
+        text = f"{self.file}: {self.word} '{self.key}' = {shown}: {allowed}"
         return ConfigError(" ".join(text.split("\n")))
 
-    def unknown(self, sub: str, allowed: object) -> ConfigError:
+    def unknown(self, sub: str, allowed: Iterable[object]) -> ConfigError:
+        """The one-line error for a key nobody reads below this one, listing the allowed keys."""
         dotted = self.child(sub).key
         names = ", ".join(str(a) for a in allowed)
         return ConfigError(f"{self.file}: unknown {self.word} '{dotted}'; allowed: {names}")
@@ -85,9 +90,9 @@ class Origin:
 
 def _number(value: object, spec: Spec, origin: Origin, integer: bool) -> float | int:
     """A bounded number; bool is rejected (TOML true is not 1), as are nan and inf."""
-    if not spec.number_ok(value, integer):
+    if not (spec.number_ok(value, integer) and isinstance(value, _NUMBER_TYPES)):
         raise origin.error(value, spec.allowed())
-    return int(value) if integer else float(value)  # type: ignore[arg-type]
+    return int(value) if integer else float(value)
 
 
 def _point(value: object, spec: Spec, origin: Origin) -> tuple[float, float]:
@@ -130,6 +135,32 @@ def _zone(value: object, spec: Spec, origin: Origin) -> Zone:
     raise origin.unknown(str(shape), ("circle", "polygon"))
 
 
+def _plain_ok(value: object, spec: Spec) -> bool:
+    """Whether a bool, str, name or choice value is allowed as it stands (no conversion)."""
+    kind = spec.kind
+    if kind == "bool":
+        return isinstance(value, bool)
+    if kind == "str":
+        return isinstance(value, str) and len(value) <= spec.max_len
+    if kind == "name":
+        return isinstance(value, str) and NAME_RE.fullmatch(value) is not None
+    return value in spec.choices and isinstance(value, str)
+
+
+def _range(value: object, spec: Spec, origin: Origin) -> tuple[float | int, float | int]:
+    """A [lo, hi] pair of numbers of the spec's item kind, lo <= hi."""
+    if not (isinstance(value, list | tuple) and len(value) == 2):
+        raise origin.error(value, spec.allowed())
+    item = Spec(spec.item, spec.lo, spec.hi, spec.unit, lo_open=spec.lo_open)
+    try:
+        lo, hi = (_number(v, item, origin, integer=spec.item == "int") for v in value)
+    except ConfigError:
+        raise origin.error(value, spec.allowed()) from None
+    if lo > hi:
+        raise origin.error(value, spec.allowed())
+    return (lo, hi)
+
+
 def convert(value: object, spec: Spec, origin: Origin) -> object:
     """Check one raw value against its Spec and return it in the type the records hold."""
     if value is None and spec.optional:
@@ -137,20 +168,8 @@ def convert(value: object, spec: Spec, origin: Origin) -> object:
     kind = spec.kind
     if kind in ("int", "float"):
         return _number(value, spec, origin, integer=kind == "int")
-    if kind == "bool":
-        if not isinstance(value, bool):
-            raise origin.error(value, spec.allowed())
-        return value
-    if kind == "str":
-        if not isinstance(value, str) or len(value) > spec.max_len:
-            raise origin.error(value, spec.allowed())
-        return value
-    if kind == "name":
-        if not (isinstance(value, str) and NAME_RE.fullmatch(value)):
-            raise origin.error(value, spec.allowed())
-        return value
-    if kind == "choice":
-        if value not in spec.choices or not isinstance(value, str):
+    if kind in _PLAIN_KINDS:
+        if not _plain_ok(value, spec):
             raise origin.error(value, spec.allowed())
         return value
     if kind == "point":
@@ -158,14 +177,5 @@ def convert(value: object, spec: Spec, origin: Origin) -> object:
     if kind == "zone":
         return _zone(value, spec, origin)
     if kind == "range":
-        if not (isinstance(value, list | tuple) and len(value) == 2):
-            raise origin.error(value, spec.allowed())
-        item = Spec(spec.item, spec.lo, spec.hi, spec.unit, lo_open=spec.lo_open)
-        try:
-            lo, hi = (_number(v, item, origin, integer=spec.item == "int") for v in value)
-        except ConfigError:
-            raise origin.error(value, spec.allowed()) from None
-        if lo > hi:
-            raise origin.error(value, spec.allowed())
-        return (lo, hi)
+        return _range(value, spec, origin)
     raise AssertionError(kind)

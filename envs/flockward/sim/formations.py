@@ -36,7 +36,8 @@ def formation_offsets(
         return np.zeros((0, 2))
     builders = {"disc": _disc, "hex": _hex, "line": _line, "cluster": _cluster}
     points = builders[kind](count, spacing, rng)
-    return points - points.mean(axis=0)
+    centred: np.ndarray = points - points.mean(axis=0)
+    return centred
 
 
 def _disc(count: int, spacing: float, rng: np.random.Generator) -> np.ndarray:
@@ -61,8 +62,8 @@ def _hex(count: int, spacing: float, rng: np.random.Generator) -> np.ndarray:
     """
     del rng
     m = math.ceil(math.sqrt(count)) + 2  # enough shells: 2.7 m^2 points lie within m rows
-    i, j = np.meshgrid(np.arange(-m, m + 1), np.arange(-m, m + 1), indexing="ij")
-    i, j = i.ravel().astype(np.float64), j.ravel().astype(np.float64)
+    rows, cols = np.meshgrid(np.arange(-m, m + 1), np.arange(-m, m + 1), indexing="ij")
+    i, j = rows.ravel().astype(np.float64), cols.ravel().astype(np.float64)
     points = np.column_stack((spacing * (i + 0.5 * j), spacing * (math.sqrt(3.0) / 2.0) * j))
     dist = np.hypot(points[:, 0], points[:, 1])
     # Ties on a shell are broken by angle so the subset does not depend on sort stability.

@@ -16,9 +16,9 @@ from __future__ import annotations
 
 import math
 
-import numba
 import numpy as np
 
+from flockward.sim.jit import compiled
 from flockward.sim.types import Circle, Polygon, Zone
 
 CIRCLE = 0  # zone kind code in row 0 of a zone array
@@ -49,7 +49,7 @@ def zone_arrays(zone: Zone) -> np.ndarray:
     return out
 
 
-@numba.njit(cache=True)
+@compiled
 def _closest_on_segment(
     ax: float, ay: float, bx: float, by: float, x: float, y: float
 ) -> tuple[float, float, float]:
@@ -66,11 +66,11 @@ def _closest_on_segment(
     return px, py, (x - px) ** 2 + (y - py) ** 2
 
 
-@numba.njit(cache=True)
+@compiled
 def _signed_distance_xy(zone_arr: np.ndarray, x: float, y: float) -> float:
     """Signed distance (m) from (x, y) to the zone boundary: negative inside, positive outside."""
     if zone_arr[0, 0] == CIRCLE:
-        return math.hypot(x - zone_arr[1, 0], y - zone_arr[1, 1]) - zone_arr[0, 1]
+        return math.hypot(x - zone_arr[1, 0], y - zone_arr[1, 1]) - float(zone_arr[0, 1])
     if math.isnan(x) or math.isnan(y):
         return math.nan  # as for a circle; min() below would otherwise hide it
     n = int(zone_arr[0, 1])
@@ -91,7 +91,7 @@ def _signed_distance_xy(zone_arr: np.ndarray, x: float, y: float) -> float:
     return -distance if inside and distance > 0.0 else distance
 
 
-@numba.njit(cache=True)
+@compiled
 def nearest_boundary_point(zone_arr: np.ndarray, x: float, y: float) -> tuple[float, float]:
     """The point of the zone boundary closest to (x, y); for a circle's centre, the +x point."""
     if zone_arr[0, 0] == CIRCLE:
@@ -115,7 +115,7 @@ def nearest_boundary_point(zone_arr: np.ndarray, x: float, y: float) -> tuple[fl
     return best_x, best_y
 
 
-@numba.njit(cache=True)
+@compiled
 def _signed_distance_many(zone_arr: np.ndarray, points: np.ndarray) -> np.ndarray:
     """Signed distances of K points, shape (K, 2) -> (K,)."""
     out = np.empty(points.shape[0], dtype=np.float64)
@@ -230,10 +230,10 @@ def zones_overlap(a: Zone, b: Zone) -> bool:
     a goal beside a protected zone)."""
     if isinstance(a, Circle) and isinstance(b, Circle):
         return math.dist(a.center, b.center) < a.radius + b.radius
-    if isinstance(a, Polygon) and isinstance(b, Circle):
-        a, b = b, a
     if isinstance(a, Circle):
-        return float(signed_distance(zone_arrays(b), np.asarray(a.center))) < a.radius
+        return _circle_overlaps(a, b)
+    if isinstance(b, Circle):
+        return _circle_overlaps(b, a)
     va = np.asarray(a.vertices, dtype=np.float64)
     vb = np.asarray(b.vertices, dtype=np.float64)
     for i in range(len(va)):
@@ -244,20 +244,25 @@ def zones_overlap(a: Zone, b: Zone) -> bool:
     return bool(contains(zone_arrays(b), va[0]) or contains(zone_arrays(a), vb[0]))
 
 
+def _circle_overlaps(circle: Circle, zone: Zone) -> bool:
+    """Whether a circle shares interior points with a zone: its centre is nearer the zone than
+    its radius."""
+    return float(signed_distance(zone_arrays(zone), np.asarray(circle.center))) < circle.radius
+
+
 def zone_contains(zone: Zone, point: tuple[float, float]) -> bool:
     """Whether one point lies strictly inside a zone record."""
     return bool(contains(zone_arrays(zone), np.asarray(point, dtype=np.float64)))
 
 
-@numba.njit(cache=True)
-def convex_hull(points: np.ndarray) -> np.ndarray:
-    """Indices of the convex-hull vertices of points (n, 2), counter-clockwise from the lowest-x
-    (then lowest-y) point; points on hull edges and duplicates are left out (Andrew 1979)."""
+@compiled
+def _outside_extreme_quad(points: np.ndarray) -> np.ndarray:
+    """Indices of the points not strictly inside the quadrilateral of the four extreme points.
+
+    The Akl-Toussaint filter: points inside that quadrilateral cannot be hull vertices, so only the
+    others need sorting (most of a compact flock is inside).
+    """
     n = points.shape[0]
-    if n <= 1:
-        return np.arange(n)
-    # Akl-Toussaint filter: points strictly inside the quadrilateral of the four extreme points
-    # cannot be hull vertices, so only the others are sorted (most of a compact flock is inside).
     ext = np.empty(4, dtype=np.int64)  # leftmost, lowest, rightmost, highest: counter-clockwise
     ext[:] = 0
     for i in range(1, n):
@@ -283,8 +288,14 @@ def convex_hull(points: np.ndarray) -> np.ndarray:
         if not inside:
             keep[m] = i
             m += 1
-    order = keep[:m][np.argsort(points[keep[:m], 0])]
-    n = m
+    return keep[:m]
+
+
+@compiled
+def _lexicographic_order(points: np.ndarray, candidates: np.ndarray) -> np.ndarray:
+    """The candidate indices sorted by x, ties in x by y."""
+    order = candidates[np.argsort(points[candidates, 0])]
+    n = order.shape[0]
     for s in range(1, n):  # insertion pass: order ties in x by y, giving lexicographic (x, y)
         i = order[s]
         t = s
@@ -296,6 +307,13 @@ def convex_hull(points: np.ndarray) -> np.ndarray:
             order[t] = order[t - 1]
             t -= 1
         order[t] = i
+    return order
+
+
+@compiled
+def _monotone_chains(points: np.ndarray, order: np.ndarray) -> np.ndarray:
+    """Hull vertex indices from lexicographically ordered candidates (Andrew's monotone chain)."""
+    n = order.shape[0]
     hull = np.empty(2 * n, dtype=np.int64)
     k = 0
     for sweep in range(2):  # lower chain left to right, then upper chain right to left
@@ -319,7 +337,18 @@ def convex_hull(points: np.ndarray) -> np.ndarray:
     return hull[:k].copy()
 
 
-@numba.njit(cache=True)
+@compiled
+def convex_hull(points: np.ndarray) -> np.ndarray:
+    """Indices of the convex-hull vertices of points (n, 2), counter-clockwise from the lowest-x
+    (then lowest-y) point; points on hull edges and duplicates are left out (Andrew 1979)."""
+    n = points.shape[0]
+    if n <= 1:
+        return np.arange(n)
+    order = _lexicographic_order(points, _outside_extreme_quad(points))
+    return _monotone_chains(points, order)
+
+
+@compiled
 def _circle_through_three(
     ax: float, ay: float, bx: float, by: float, cx: float, cy: float
 ) -> tuple[float, float, float]:
@@ -340,7 +369,7 @@ def _circle_through_three(
     return ax + ox, ay + oy, math.hypot(ox, oy)
 
 
-@numba.njit(cache=True)
+@compiled
 def _enclosing_circle_of(points: np.ndarray, idx: np.ndarray) -> tuple[float, float, float]:
     """Smallest circle enclosing points[idx]: the incremental form of Welzl (1991), expected
     linear time after a fixed pseudo-random shuffle, so repeated calls give identical results."""
@@ -382,7 +411,7 @@ def _enclosing_circle_of(points: np.ndarray, idx: np.ndarray) -> tuple[float, fl
     return cx + ox, cy + oy, r
 
 
-@numba.njit(cache=True)
+@compiled
 def enclosing_circle(points: np.ndarray) -> tuple[float, float, float]:
     """Exact smallest enclosing circle (cx, cy, r) of points (n, 2), computed on the hull vertices.
 

@@ -14,7 +14,7 @@ import json
 import math
 from collections.abc import Callable, Mapping
 from dataclasses import fields
-from typing import TypeVar
+from typing import TYPE_CHECKING, TypeVar
 
 import numpy as np
 
@@ -41,6 +41,9 @@ from flockward.sim.types import (
     SiteParams,
     Zone,
 )
+
+if TYPE_CHECKING:
+    from _typeshed import DataclassInstance
 
 __all__ = [
     "LIMITS",
@@ -259,7 +262,7 @@ def _site_text(site: SiteParams, key: str) -> str:
 def _check_site(site: SiteParams) -> None:
     """Relations between the zones and points of a site."""
     # (key, other key, relation broken, rule when key is named, rule when other is named)
-    relations = (
+    relations: tuple[tuple[str, str, Callable[[], bool], str, str], ...] = (
         (
             "goal",
             "protected",
@@ -312,19 +315,22 @@ def _check_scenario(scenario: Scenario) -> None:
         )
 
 
-_RELATIONS: dict[type, Callable[[object], None]] = {
-    FlockParams: _check_flock,  # type: ignore[dict-item]
-    SiteParams: _check_site,  # type: ignore[dict-item]
-    Scenario: _check_scenario,  # type: ignore[dict-item]
-}
+def _check_relations(record: DataclassInstance) -> None:
+    """The relations between fields of the records that have any."""
+    if isinstance(record, FlockParams):
+        _check_flock(record)
+    elif isinstance(record, SiteParams):
+        _check_site(record)
+    elif isinstance(record, Scenario):
+        _check_scenario(record)
 
 
-def check_record(record: object) -> None:
+def check_record(record: DataclassInstance) -> None:
     """Check every field of a parameter record against LIMITS, then its relations."""
     cls = type(record)
     base = next(c for c in cls.__mro__ if c in RECORD_SECTIONS)
     specs = LIMITS[RECORD_SECTIONS[base]]
-    for f in fields(record):  # type: ignore[arg-type]
+    for f in fields(record):
         spec = specs.get(f.name)
         # A scenario's name may come from its file's stem, so only a config's own key is checked
         # as a lower-case name (by the loader).
@@ -333,12 +339,10 @@ def check_record(record: object) -> None:
         value = getattr(record, f.name)
         if not spec.accepts(value):
             _broken(record, (f.name,), spec.allowed())
-    relations = _RELATIONS.get(base)
-    if relations is not None:
-        relations(record)
+    _check_relations(record)
 
 
-R = TypeVar("R")
+R = TypeVar("R", bound="DataclassInstance")
 
 
 def derived(record: R, **changes: object) -> R:
@@ -347,7 +351,7 @@ def derived(record: R, **changes: object) -> R:
     For values a reset draws from a checked scenario: gains scaled by ``gain_scale`` and headings
     turned by a random offset may leave the ranges a config may write, and must still play.
     """
-    names = {f.name for f in fields(record)}  # type: ignore[arg-type]
+    names = {f.name for f in fields(record)}
     unknown = set(changes) - names
     if unknown:
         raise TypeError(f"{type(record).__name__} has no field {', '.join(sorted(unknown))}")

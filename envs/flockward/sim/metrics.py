@@ -15,7 +15,6 @@ from __future__ import annotations
 import math
 from typing import Literal, NamedTuple
 
-import numba
 import numpy as np
 
 from flockward.sim.geometry import (
@@ -24,6 +23,7 @@ from flockward.sim.geometry import (
     convex_hull,
     signed_distance,
 )
+from flockward.sim.jit import compiled
 
 GRID_MIN_BIRDS = 2500  # the search over unreached birds beats the grid below this (flockward bench)
 _AUTO, _PAIRS, _GRID = 0, 1, 2  # neighbour-search method codes for the kernels
@@ -84,7 +84,7 @@ def _check_point_sets(points: np.ndarray, worlds: int) -> np.ndarray:
 # ---------------------------------------------------------------- per-world compiled helpers
 
 
-@numba.njit(cache=True)
+@compiled
 def _search_components_grid(p: np.ndarray, n: int, radius: float, labels: np.ndarray) -> int:
     """Breadth-first search like _search_components, but each bird only looks at the unreached
     birds of the 3 x 3 square cells (a little wider than radius) around it: O(N) for a flock of
@@ -141,7 +141,7 @@ def _search_components_grid(p: np.ndarray, n: int, radius: float, labels: np.nda
     return k
 
 
-@numba.njit(cache=True)
+@compiled
 def _search_components(p: np.ndarray, n: int, radius: float, labels: np.ndarray) -> int:
     """Label components by breadth-first search over the birds not yet reached.
 
@@ -181,7 +181,7 @@ def _search_components(p: np.ndarray, n: int, radius: float, labels: np.ndarray)
     return k
 
 
-@numba.njit(cache=True)
+@compiled
 def _world_components(
     p: np.ndarray, n: int, radius: float, method: int, labels: np.ndarray
 ) -> tuple[int, float]:
@@ -209,7 +209,7 @@ def _world_components(
     return k, size[:k].max() / n
 
 
-@numba.njit(cache=True)
+@compiled
 def _world_hull(p: np.ndarray, n: int, mask: np.ndarray) -> float:
     """Mark the hull vertices among the first n birds in mask[:n]; return the flock diameter."""
     hull = convex_hull(p[:n])
@@ -221,7 +221,7 @@ def _world_hull(p: np.ndarray, n: int, mask: np.ndarray) -> float:
 # ---------------------------------------------------------------- batched compiled kernels
 
 
-@numba.njit(cache=True)
+@compiled
 def _mean_kernel(x: np.ndarray, count: np.ndarray) -> np.ndarray:
     out = np.full((x.shape[0], 2), np.nan)
     for b in range(x.shape[0]):
@@ -237,7 +237,7 @@ def _mean_kernel(x: np.ndarray, count: np.ndarray) -> np.ndarray:
     return out
 
 
-@numba.njit(cache=True)
+@compiled
 def _gyration_kernel(pos: np.ndarray, count: np.ndarray) -> np.ndarray:
     out = np.zeros(pos.shape[0])
     centre = _mean_kernel(pos, count)
@@ -250,7 +250,7 @@ def _gyration_kernel(pos: np.ndarray, count: np.ndarray) -> np.ndarray:
     return out
 
 
-@numba.njit(cache=True)
+@compiled
 def _polarisation_world(v: np.ndarray, n: int) -> float:
     sx, sy = 0.0, 0.0
     for i in range(n):
@@ -261,7 +261,7 @@ def _polarisation_world(v: np.ndarray, n: int) -> float:
     return math.hypot(sx, sy) / n if n > 0 else 0.0
 
 
-@numba.njit(cache=True)
+@compiled
 def _polarisation_kernel(vel: np.ndarray, count: np.ndarray) -> np.ndarray:
     out = np.zeros(vel.shape[0])
     for b in range(vel.shape[0]):
@@ -269,7 +269,7 @@ def _polarisation_kernel(vel: np.ndarray, count: np.ndarray) -> np.ndarray:
     return out
 
 
-@numba.njit(cache=True)
+@compiled
 def _nearest_world(p: np.ndarray, n: int, x: float, y: float) -> float:
     best2 = np.inf
     for i in range(n):
@@ -277,7 +277,7 @@ def _nearest_world(p: np.ndarray, n: int, x: float, y: float) -> float:
     return math.sqrt(best2)
 
 
-@numba.njit(cache=True)
+@compiled
 def _nearest_to_points(p: np.ndarray, n: int, points: np.ndarray) -> float:
     """Shortest distance between any of ``points`` (P, 2) and the first n birds of ``p``."""
     best = _nearest_world(p, n, points[0, 0], points[0, 1])
@@ -286,7 +286,7 @@ def _nearest_to_points(p: np.ndarray, n: int, points: np.ndarray) -> float:
     return best
 
 
-@numba.njit(cache=True)
+@compiled
 def _nearest_kernel(pos: np.ndarray, count: np.ndarray, points: np.ndarray) -> np.ndarray:
     out = np.empty(pos.shape[0])
     for b in range(pos.shape[0]):
@@ -294,7 +294,7 @@ def _nearest_kernel(pos: np.ndarray, count: np.ndarray, points: np.ndarray) -> n
     return out
 
 
-@numba.njit(cache=True)
+@compiled
 def _inside_kernel(zone_arr: np.ndarray, pos: np.ndarray, count: np.ndarray) -> np.ndarray:
     out = np.zeros(pos.shape[:2], dtype=np.bool_)
     for b in range(pos.shape[0]):
@@ -303,7 +303,7 @@ def _inside_kernel(zone_arr: np.ndarray, pos: np.ndarray, count: np.ndarray) -> 
     return out
 
 
-@numba.njit(cache=True)
+@compiled
 def _hull_kernel(pos: np.ndarray, count: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     mask = np.zeros(pos.shape[:2], dtype=np.bool_)
     diam = np.zeros(pos.shape[0])
@@ -312,7 +312,7 @@ def _hull_kernel(pos: np.ndarray, count: np.ndarray) -> tuple[np.ndarray, np.nda
     return mask, diam
 
 
-@numba.njit(cache=True)
+@compiled
 def _components_kernel(
     pos: np.ndarray, count: np.ndarray, radius: float, method: int
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -324,7 +324,7 @@ def _components_kernel(
     return labels, n_comp, largest
 
 
-@numba.njit(cache=True)
+@compiled
 def _step_kernel(
     pos: np.ndarray,
     vel: np.ndarray,
@@ -333,7 +333,8 @@ def _step_kernel(
     link_radius: float,
     protected_arr: np.ndarray,
     goal_arr: np.ndarray,
-):
+) -> tuple[np.ndarray, ...]:
+    """Every StepMetrics field, in field order, for every world in one pass."""
     worlds, slots = pos.shape[0], pos.shape[1]
     centroid = np.full((worlds, 2), np.nan)
     mean_vel = np.full((worlds, 2), np.nan)
@@ -451,7 +452,8 @@ def inside_zone(zone_arr: np.ndarray, pos: np.ndarray, count: np.ndarray) -> np.
 
 def count_inside(zone_arr: np.ndarray, pos: np.ndarray, count: np.ndarray) -> np.ndarray:
     """Number of active birds strictly inside the zone, (B,) int64."""
-    return inside_zone(zone_arr, pos, count).sum(axis=1)
+    counts: np.ndarray = inside_zone(zone_arr, pos, count).sum(axis=1)
+    return counts
 
 
 def zone_distance(zone_arr: np.ndarray, points: np.ndarray) -> np.ndarray:

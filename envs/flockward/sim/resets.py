@@ -73,7 +73,7 @@ def sample_reset(scenario: Scenario, rng: np.random.Generator) -> ResetSample:
         heading_deg=math.degrees(heading),
         cruise_speed=uniform("cruise_speed", flock.cruise_speed),
         noise_std=uniform("noise_std", flock.noise_std),
-        **changes,  # type: ignore[arg-type]
+        **changes,
     )
 
     offsets = formation_offsets(flock.formation, count, flock.spacing, rng)

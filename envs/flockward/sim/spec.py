@@ -109,7 +109,9 @@ class Spec:
             return f"must be [lo, hi] with lo <= hi, {what} in {self.bounds()}"
         raise AssertionError(self.kind)
 
-    def number_ok(self, value: object, integer: bool) -> bool:
+    def number_ok(
+        self, value: object, integer: bool
+    ) -> TypeGuard[int | float | np.integer | np.floating]:
         """A bounded number; bool is not a number here (TOML true is not 1), nor are nan, inf."""
         if integer:
             return _is_integer(value) and self.within(int(value))
@@ -141,11 +143,10 @@ class Spec:
         if kind == "range":
             item = Spec(self.item, self.lo, self.hi, lo_open=self.lo_open)
             integer = self.item == "int"
-            return (
-                _pair(value)
-                and all(item.number_ok(v, integer) for v in value)
-                and float(value[0]) <= float(value[1])  # type: ignore[arg-type]  # numbers, checked above
-            )
+            if not _pair(value):
+                return False
+            lo, hi = value
+            return item.number_ok(lo, integer) and item.number_ok(hi, integer) and bool(lo <= hi)
         raise AssertionError(kind)
 
 

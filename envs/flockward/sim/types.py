@@ -10,6 +10,7 @@ raising a one-line ``ValueError``; derived values are properties computed in one
 from __future__ import annotations
 
 from dataclasses import dataclass, field, fields
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -23,6 +24,9 @@ from flockward.sim.spec import (
     span,
 )
 
+if TYPE_CHECKING:
+    from _typeshed import DataclassInstance
+
 FORMATIONS = ("disc", "hex", "line", "cluster")
 ALIGNMENT_MODELS = ("motsch-tadmor", "cucker-smale")
 DODGE_FRAMES = ("relative", "ground")
@@ -31,7 +35,7 @@ NOISE_MODELS = ("heading", "vector")
 MAX_HEADING_NOISE = 3.0
 
 
-def _check(record: object) -> None:
+def _check(record: DataclassInstance) -> None:
     """Validate a parameter record on construction (rules and messages in flockward.sim.limits)."""
     # Imported here: limits reads geometry, which reads the zone records of this module.
     from flockward.sim.limits import check_record

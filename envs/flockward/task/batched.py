@@ -6,14 +6,17 @@ faces over this one class; none of them holds physics or task logic of its own.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import gymnasium as gym
 import numpy as np
+import numpy.typing as npt
 
 from flockward.sim.geometry import zone_arrays, zone_center
 from flockward.sim.metrics import StepMetrics, step_metrics
+from flockward.sim.types import WorldState
 from flockward.sim.world import World
 from flockward.task.context import Scales, StepContext, TaskSetting
 from flockward.task.env_config import EnvConfig
@@ -77,14 +80,15 @@ class DivertTask:
         self._none = np.zeros(worlds, dtype=np.bool_)
 
     @property
-    def state(self):
+    def state(self) -> WorldState:
+        """The batched world state (live arrays: read, never write)."""
         return self.world.state
 
     def view(self, index: int) -> WorldView:
         """A read-only copy of world ``index``'s bird and drone state."""
         return WorldView.of(self.world.state, index)
 
-    def observation_space(self) -> gym.spaces.Space:
+    def observation_space(self) -> gym.spaces.Space[Any]:
         """The observation space of one world."""
         return self.observation.space()
 
@@ -101,7 +105,9 @@ class DivertTask:
             self.setting.goal_arr,
         )
 
-    def reset(self, indices, rngs=None):
+    def reset(
+        self, indices: npt.ArrayLike, rngs: Sequence[np.random.Generator] | None = None
+    ) -> Any:
         """Reset the given worlds (each from its rng, or its own generator) and observe all."""
         indices = np.atleast_1d(np.asarray(indices, dtype=np.int64))
         for k, index in enumerate(indices):
@@ -132,6 +138,8 @@ class DivertTask:
     def metrics_info(self) -> dict[str, np.ndarray]:
         """The latest flock metrics that a reset reports in its info."""
         m = self.metrics
+        if m is None:
+            raise RuntimeError("the task has no metrics before its first reset")
         return {
             "n_components": m.n_components,
             "largest_fraction": m.largest_fraction,
@@ -204,7 +212,7 @@ class DivertTask:
         return StepBatch(observation, reward, terminated, truncated, info)
 
 
-def check_actions(action, worlds: int) -> np.ndarray:
+def check_actions(action: npt.ArrayLike, worlds: int) -> np.ndarray:
     """Actions as a (worlds, 1, 2) float64 array (one drone per world); NaN, inf or a wrong shape
     raise ValueError.
 

@@ -27,6 +27,7 @@ class Scales:
 
     @classmethod
     def of(cls, scenario: Scenario) -> Scales:
+        """The scales of one scenario; the site scale is at least 1 m so it can divide."""
         start = np.asarray(scenario.site.flock_start)
         goal = np.asarray(zone_center(scenario.site.goal))
         return cls(
@@ -52,6 +53,7 @@ class TaskSetting:
 
     @property
     def weights(self) -> RewardWeights:
+        """The scenario's reward weights."""
         return self.scenario.reward
 
 
@@ -77,14 +79,17 @@ class StepContext:
 
     @property
     def scales(self) -> Scales:
+        """The task's scales (``setting.scales``)."""
         return self.setting.scales
 
     @property
     def weights(self) -> RewardWeights:
+        """The scenario's reward weights (``setting.weights``)."""
         return self.setting.weights
 
     @property
     def worlds(self) -> int:
+        """B, the number of worlds."""
         return self.setting.worlds
 
     # The pursuer's arrays are read only through these two properties.
@@ -101,4 +106,5 @@ class StepContext:
     @property
     def drone_flock_gap(self) -> np.ndarray:
         """(B,) m, pursuer to flock centroid after the step."""
-        return np.hypot(*(self.metrics.centroid - self.drone_pos).T)
+        gap: np.ndarray = np.hypot(*(self.metrics.centroid - self.drone_pos).T)
+        return gap

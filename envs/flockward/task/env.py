@@ -3,14 +3,18 @@
 from __future__ import annotations
 
 from collections import deque
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import gymnasium as gym
 import numpy as np
+import numpy.typing as npt
 
 from flockward.task.batched import DivertTask, action_space, check_actions, scalar_info
-from flockward.task.env_config import RENDER_MODES, EnvConfig
+from flockward.task.env_config import RENDER_MODES, ConfigOrScenario, EnvConfig
 from flockward.task.state import WorldView
+
+if TYPE_CHECKING:
+    from flockward.render import FrameRenderer
 
 TRACK_LENGTH = 200  # steps of pursuer track kept for rendering
 
@@ -97,7 +101,7 @@ class DivertEnv(gym.Env):
 
     metadata = {"render_modes": list(RENDER_MODES), "render_fps": 20}
 
-    def __init__(self, config: EnvConfig | Any = None, **options: Any):
+    def __init__(self, config: ConfigOrScenario = None, **options: Any):
         self.config = EnvConfig.from_options(config, **options)
         self.task = DivertTask(self.config, 1)
         self.scenario = self.task.scenario
@@ -106,14 +110,17 @@ class DivertEnv(gym.Env):
         self.observation_space = self.task.observation_space()
         self._track: deque[np.ndarray] = deque(maxlen=TRACK_LENGTH)
         self._last_info: dict[str, Any] = {}
-        self._renderer = None
+        self._renderer: FrameRenderer | None = None
 
     @property
     def state(self) -> WorldView:
         """A read-only snapshot of the world (see the class docstring's State section)."""
         return self.task.view(0)
 
-    def reset(self, *, seed: int | None = None, options: dict[str, Any] | None = None):
+    def reset(
+        self, *, seed: int | None = None, options: dict[str, Any] | None = None
+    ) -> tuple[Any, dict[str, Any]]:
+        """Start an episode: the first observation and the flock metrics as info."""
         super().reset(seed=seed)
         obs = self.task.reset([0], [self.np_random])
         self._track.clear()
@@ -121,7 +128,8 @@ class DivertEnv(gym.Env):
         self._last_info = scalar_info(self.task.metrics_info(), 0)
         return self._one(obs), dict(self._last_info)
 
-    def step(self, action):
+    def step(self, action: npt.ArrayLike) -> tuple[Any, float, bool, bool, dict[str, Any]]:
+        """Advance one step under ``action`` (2,): observation, reward, ended, cut off, info."""
         batch = self.task.step(check_actions(action, 1))
         self._track.append(self.task.state.pursuer_pos[0].copy())
         info = scalar_info(batch.info, 0)
@@ -136,7 +144,8 @@ class DivertEnv(gym.Env):
             info,
         )
 
-    def render(self):
+    def render(self) -> np.ndarray | None:
+        """The current frame as an (H, W, 3) uint8 array ("rgb_array"), else None."""
         if self.render_mode is None:
             gym.logger.warn("render() called without a render_mode; pass render_mode='rgb_array'")
             return None
@@ -147,13 +156,15 @@ class DivertEnv(gym.Env):
         frame = self._renderer.draw(self.task.state, 0, np.asarray(self._track), self._last_info)
         return frame if self.render_mode == "rgb_array" else None
 
-    def close(self):
+    def close(self) -> None:
+        """Release the renderer's figure, if one was drawn."""
         if self._renderer is not None:
             self._renderer.close()
             self._renderer = None
 
     @staticmethod
-    def _one(obs):
+    def _one(obs: Any) -> Any:
+        """World 0's entry of a batched observation (an array or a dict of arrays)."""
         if isinstance(obs, dict):
             return {key: value[0] for key, value in obs.items()}
         return obs[0]

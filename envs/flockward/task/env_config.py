@@ -12,7 +12,7 @@ import importlib
 from collections.abc import Mapping
 from dataclasses import dataclass, fields
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeAlias, TypeVar, cast
 
 from flockward.config.scenarios import load_scenario
 from flockward.sim.types import Scenario
@@ -23,9 +23,12 @@ NEIGHBOUR_SEARCH = ("auto", "all-pairs", "grid")
 RENDER_MODES = ("human", "rgb_array")
 REWARDS: dict[str, type[Reward]] = {"herding": HerdingReward}  # shipped rewards by name
 RIM_BIRDS_RANGE = (1, 64)
+PartT = TypeVar("PartT", Observation, Reward)
 
 
-def resolve_scenario(scenario: str | Path | Scenario, overrides=None) -> Scenario:
+def resolve_scenario(
+    scenario: str | Path | Scenario, overrides: Mapping[str, Any] | None = None
+) -> Scenario:
     """A Scenario from a shipped name, a TOML path or an existing record (with overrides)."""
     if isinstance(scenario, Scenario):
         if overrides:
@@ -34,7 +37,7 @@ def resolve_scenario(scenario: str | Path | Scenario, overrides=None) -> Scenari
     return load_scenario(scenario, overrides)
 
 
-def load_object(spec: str, argument: str) -> Any:
+def load_object(spec: str, argument: str) -> object:
     """A new instance of the class named by an import path ``package.module:Name``."""
     module_name, _, attr = spec.partition(":")
     if not module_name or not attr:
@@ -56,8 +59,14 @@ def load_object(spec: str, argument: str) -> Any:
         ) from None
 
 
-def _part(value: Any, argument: str, shipped: Mapping[str, type], required: tuple[str, ...]):
+def _part(
+    value: object,
+    argument: str,
+    shipped: Mapping[str, type[PartT]],
+    required: tuple[str, ...],
+) -> PartT:
     """The observation or reward object an argument names (a fresh one for a string)."""
+    obj: object
     if isinstance(value, str):
         if value in shipped:
             obj = shipped[value]()
@@ -76,13 +85,18 @@ def _part(value: Any, argument: str, shipped: Mapping[str, type], required: tupl
             f"{argument} = {value!r}: needs an instance with method(s) {', '.join(required)} "
             f"(see flockward.task.{argument}.{argument.capitalize()})"
         )
-    return obj
+    # Duck typing: any object with the required methods serves, subclass of the ABC or not.
+    return cast(PartT, obj)
 
 
-def _positive_int(name: str, value: Any, low: int, high: int | None = None) -> None:
-    ok = isinstance(value, int) and not isinstance(value, bool) and value >= low
-    if high is not None:
-        ok = ok and value <= high
+def _positive_int(name: str, value: object, low: int, high: int | None = None) -> None:
+    """A ValueError naming the argument unless ``value`` is an integer in [low, high]."""
+    ok = (
+        isinstance(value, int)
+        and not isinstance(value, bool)
+        and value >= low
+        and (high is None or value <= high)
+    )
     if not ok:
         allowed = f"an integer in [{low}, {high}]" if high is not None else f"an integer >= {low}"
         raise ValueError(f"{name} = {value!r}: must be {allowed}")
@@ -107,7 +121,7 @@ class EnvConfig:
     max_episode_steps: int | None = None  # step limit (None: the scenario's)
     render_mode: str | None = None  # None, "human" or "rgb_array" (single env only)
 
-    def __post_init__(self):
+    def __post_init__(self) -> None:
         if not isinstance(self.scenario, str | Path | Scenario):
             raise ValueError(
                 f"scenario = {self.scenario!r}: must be a shipped name, a TOML path or a Scenario"
@@ -133,7 +147,7 @@ class EnvConfig:
         self.make_reward()
 
     @classmethod
-    def from_options(cls, first: Any = None, /, **options: Any) -> EnvConfig:
+    def from_options(cls, first: ConfigOrScenario = None, /, **options: Any) -> EnvConfig:
         """A config from keyword arguments; ``first`` is an EnvConfig or else the scenario."""
         if isinstance(first, EnvConfig):
             if options:
@@ -177,3 +191,5 @@ class EnvConfig:
 
 
 ENV_ARGUMENTS = tuple(f.name for f in fields(EnvConfig))
+# The first argument of every face: a whole config, or just the scenario (None: the default).
+ConfigOrScenario: TypeAlias = EnvConfig | str | Path | Scenario | None

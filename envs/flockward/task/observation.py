@@ -15,10 +15,10 @@ from abc import ABC, abstractmethod
 from typing import Any
 
 import gymnasium as gym
-import numba
 import numpy as np
 
 from flockward.sim.geometry import _signed_distance_xy, nearest_boundary_point
+from flockward.sim.jit import compiled
 from flockward.task.context import Scales, StepContext, TaskSetting
 
 __all__ = [
@@ -56,8 +56,10 @@ RIM_LAYOUT = (("rim_offset", 2, -INF, INF), ("rim_present", 1, 0.0, 1.0))
 RIM_FIELDS = sum(field[1] for field in RIM_LAYOUT)
 
 
-def _offsets(layout) -> dict[str, int]:
-    out, start = {}, 0
+def _offsets(layout: tuple[tuple[str, int, float, float], ...]) -> dict[str, int]:
+    """The first index of each field of a (name, width, low, high) layout."""
+    out: dict[str, int] = {}
+    start = 0
     for name, width, _, _ in layout:
         out[name] = start
         start += width
@@ -93,8 +95,16 @@ def vector_bounds(rim_birds: int) -> tuple[np.ndarray, np.ndarray]:
     return np.array(low, dtype=np.float32), np.array(high, dtype=np.float32)
 
 
-@numba.njit(cache=True)
-def _rim_threat(pos, count, on_hull, protected_arr, goal_arr, k, out_idx):
+@compiled
+def _rim_threat(
+    pos: np.ndarray,  # (B, N, 2) m
+    count: np.ndarray,  # (B,) active birds
+    on_hull: np.ndarray,  # (B, N) bool, convex-hull vertices
+    protected_arr: np.ndarray,  # compiled protected zone
+    goal_arr: np.ndarray,  # compiled goal zone
+    k: int,
+    out_idx: np.ndarray,  # (B, >= max(N, k)) int64, filled in place
+) -> None:
     """Indices of the k rim birds threatening the protected zone most (-1 pads).
 
     Threat = distance to the goal region minus distance to the protected zone (metres): birds near
@@ -126,26 +136,26 @@ def _rim_threat(pos, count, on_hull, protected_arr, goal_arr, k, out_idx):
             out_idx[b, r] = -1
 
 
-@numba.njit(cache=True)
+@compiled
 def _vector_obs(
-    pos,
-    pvel,
-    ppos,
-    centroid,
-    mean_vel,
-    diameter,
-    largest,
-    rim_idx,
-    protected_arr,
-    goal_arr,
-    goal_cx,
-    goal_cy,
-    site,
-    near,
-    vp,
-    vc,
-    out,
-):
+    pos: np.ndarray,  # (B, N, 2) m, birds
+    pvel: np.ndarray,  # (B, 2) m/s, drone
+    ppos: np.ndarray,  # (B, 2) m, drone
+    centroid: np.ndarray,  # (B, 2) m
+    mean_vel: np.ndarray,  # (B, 2) m/s
+    diameter: np.ndarray,  # (B,) m
+    largest: np.ndarray,  # (B,) fraction
+    rim_idx: np.ndarray,  # (B, k) int64, -1 pads
+    protected_arr: np.ndarray,
+    goal_arr: np.ndarray,
+    goal_cx: float,  # m
+    goal_cy: float,  # m
+    site: float,  # m, site scale
+    near: float,  # m, alarm radius
+    vp: float,  # m/s, pursuer top speed
+    vc: float,  # m/s, cruise speed
+    out: np.ndarray,  # (B, D) float64, filled in place
+) -> None:
     """Fill ``out`` (B, GLOBAL_SIZE + RIM_FIELDS * k) at the indices of the field table."""
     worlds = pos.shape[0]
     k = rim_idx.shape[1]
@@ -200,7 +210,7 @@ class Observation(ABC):
         return None
 
     @abstractmethod
-    def space(self) -> gym.spaces.Space:
+    def space(self) -> gym.spaces.Space[Any]:
         """The observation space of one world."""
 
     def reset(self, context: StepContext, indices: np.ndarray) -> None:
@@ -222,23 +232,25 @@ class VectorObservation(Observation):
         self.rim_birds = rim_birds
 
     def setup(self, setting: TaskSetting) -> None:
-        if self.rim_birds is None:
-            self.rim_birds = setting.rim_birds
-        if not 1 <= self.rim_birds <= 64:
-            raise ValueError(f"rim_birds = {self.rim_birds}: must be an integer in [1, 64]")
+        """Take k from the environment if not given; size the work arrays for B worlds."""
+        k = setting.rim_birds if self.rim_birds is None else self.rim_birds
+        self.rim_birds = k
+        if not 1 <= k <= 64:
+            raise ValueError(f"rim_birds = {k}: must be an integer in [1, 64]")
         scenario = setting.scenario
         self.setting = setting
-        self.vector_size = GLOBAL_SIZE + RIM_FIELDS * self.rim_birds
+        self._k = k  # rim_birds as resolved, typed int for the methods below
+        self.vector_size = GLOBAL_SIZE + RIM_FIELDS * k
         self._vector = np.zeros((setting.worlds, self.vector_size), dtype=np.float64)
-        self._rim = np.full(
-            (setting.worlds, max(scenario.max_birds, self.rim_birds)), -1, dtype=np.int64
-        )
+        self._rim = np.full((setting.worlds, max(scenario.max_birds, k)), -1, dtype=np.int64)
 
     def vector_space(self) -> gym.spaces.Box:
-        low, high = vector_bounds(self.rim_birds)
+        """The Box of one world's vector, bounded where GLOBAL_FIELDS bounds it."""
+        low, high = vector_bounds(self._k)
         return gym.spaces.Box(low, high, (self.vector_size,), np.float32)
 
-    def space(self) -> gym.spaces.Space:
+    def space(self) -> gym.spaces.Space[Any]:
+        """One world's space: the vector's Box."""
         return self.vector_space()
 
     def rim_indices(self, context: StepContext) -> np.ndarray:
@@ -250,10 +262,10 @@ class VectorObservation(Observation):
             context.metrics.on_hull,
             setting.protected_arr,
             setting.goal_arr,
-            self.rim_birds,
+            self._k,
             self._rim,
         )
-        return self._rim[:, : self.rim_birds]
+        return self._rim[:, : self._k]
 
     def vector(self, context: StepContext) -> np.ndarray:
         """The (B, D) float32 vectors of all worlds."""
@@ -282,6 +294,7 @@ class VectorObservation(Observation):
         return self._vector.astype(np.float32)
 
     def build(self, context: StepContext) -> Any:
+        """The (B, D) float32 vectors."""
         return self.vector(context)
 
 
@@ -294,7 +307,8 @@ class DictObservation(VectorObservation):
     flock).
     """
 
-    def space(self) -> gym.spaces.Space:
+    def space(self) -> gym.spaces.Space[Any]:
+        """One world's Dict space: context, birds and mask."""
         slots = self.setting.max_birds
         return gym.spaces.Dict(
             {
@@ -305,6 +319,7 @@ class DictObservation(VectorObservation):
         )
 
     def build(self, context: StepContext) -> Any:
+        """The batched dict: context (B, D), birds (B, max_birds, 4), mask (B, max_birds)."""
         vector = self.vector(context)
         state = context.state
         s = self.setting.scales

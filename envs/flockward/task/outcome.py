@@ -10,6 +10,8 @@ from enum import StrEnum
 
 
 class Outcome(StrEnum):
+    """How an episode stands after a step; every value but RUNNING ends it."""
+
     RUNNING = "running"  # the episode goes on
     SUCCESS = "success"  # the goal region holds the required share of the flock
     BREACH = "breach"  # more birds entered the protected zone than the scenario tolerates

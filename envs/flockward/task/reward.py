@@ -53,24 +53,35 @@ class Reward(ABC):
 
 def potential(goal_distance: np.ndarray, site_scale: float) -> np.ndarray:
     """Shaping potential of each world: minus the centroid's distance to the goal region, scaled."""
-    return -np.maximum(goal_distance, 0.0) / site_scale
+    phi: np.ndarray = -np.maximum(goal_distance, 0.0) / site_scale
+    return phi
 
 
 def approach_potential(
     drone_distance: np.ndarray, alarm_radius: float, site_scale: float
 ) -> np.ndarray:
     """Shaping potential of closing in: minus the drone's distance beyond the alarm radius."""
-    return -np.maximum(drone_distance - alarm_radius, 0.0) / site_scale
+    phi: np.ndarray = -np.maximum(drone_distance - alarm_radius, 0.0) / site_scale
+    return phi
 
 
-def _shaping(weight, discount, before, after, terminated):
-    return weight * (discount * np.where(terminated, 0.0, after) - before)
+def _shaping(
+    weight: float,
+    discount: float,
+    before: np.ndarray,
+    after: np.ndarray,
+    terminated: np.ndarray,
+) -> np.ndarray:
+    """Weighted potential-based shaping, with phi = 0 after a terminal step."""
+    shaped: np.ndarray = weight * (discount * np.where(terminated, 0.0, after) - before)
+    return shaped
 
 
 class HerdingReward(Reward):
     """The default reward: the seven terms of REWARD_TERMS, in that order (module docstring)."""
 
     def setup(self, setting: TaskSetting) -> None:
+        """Room for each world's last potentials."""
         self._progress = np.zeros(setting.worlds)  # phi of the last state, per world
         self._approach = np.zeros(setting.worlds)
 
@@ -81,11 +92,13 @@ class HerdingReward(Reward):
         return progress, approach_potential(context.drone_flock_gap, alarm, site)
 
     def reset(self, context: StepContext, indices: np.ndarray) -> None:
+        """Start the reset worlds' shaping from the potentials of their new state."""
         progress, approach = self._potentials(context)
         self._progress[indices] = progress[indices]
         self._approach[indices] = approach[indices]
 
     def terms(self, context: StepContext) -> dict[str, np.ndarray]:
+        """The seven weighted terms; live worlds' potentials are kept for the next step."""
         w = context.weights
         g = w.discount
         progress, approach = self._potentials(context)

@@ -32,6 +32,7 @@ class WorldView:
 
     @classmethod
     def of(cls, state: WorldState, index: int) -> WorldView:
+        """World ``index`` of a batched state, as read-only copies of its active slots."""
         n = int(state.count[index])
         return cls(
             bird_pos=_read_only(state.bird_pos[index, :n]),

@@ -11,12 +11,13 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
+import numpy.typing as npt
 from gymnasium.utils import seeding
 from gymnasium.vector import AutoresetMode, VectorEnv
 from gymnasium.vector.utils import batch_space
 
 from flockward.task.batched import DivertTask, action_space, check_actions
-from flockward.task.env_config import EnvConfig
+from flockward.task.env_config import ConfigOrScenario, EnvConfig
 from flockward.task.state import WorldView
 
 
@@ -45,7 +46,7 @@ class DivertVectorEnv(VectorEnv):
         "autoreset_mode": AutoresetMode.NEXT_STEP,
     }
 
-    def __init__(self, num_envs: int = 1, config: EnvConfig | Any = None, **options: Any):
+    def __init__(self, num_envs: int = 1, config: ConfigOrScenario = None, **options: Any):
         self.config = EnvConfig.from_options(config, **options)
         if self.config.render_mode is not None:
             raise ValueError("the vector env does not render; render a single DivertEnv instead")
@@ -66,7 +67,13 @@ class DivertVectorEnv(VectorEnv):
             raise IndexError(f"world {index}: this vector env has worlds 0 to {self.num_envs - 1}")
         return self.task.view(index)
 
-    def reset(self, *, seed=None, options: dict[str, Any] | None = None):
+    def reset(
+        self,
+        *,
+        seed: int | list[int | None] | None = None,
+        options: dict[str, Any] | None = None,
+    ) -> tuple[Any, dict[str, Any]]:
+        """Reset every world, or those of ``options["reset_mask"]``; observations of all."""
         seeds = world_seeds(seed, self.num_envs)
         if seed is not None:
             self._np_random, self._np_random_seed = seeding.np_random(seeds[0])
@@ -77,7 +84,10 @@ class DivertVectorEnv(VectorEnv):
         self._needs_reset[indices] = False
         return obs, self._batched_info(self.task.metrics_info())
 
-    def step(self, actions):
+    def step(
+        self, actions: npt.ArrayLike
+    ) -> tuple[Any, np.ndarray, np.ndarray, np.ndarray, dict[str, Any]]:
+        """Step every world under ``actions`` (B, 2), resetting those that ended last step."""
         actions = check_actions(actions, self.num_envs)
         restarting = self._needs_reset.copy()
         if restarting.any():

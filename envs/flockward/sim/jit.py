@@ -1,0 +1,31 @@
+"""The one place the core compiles functions with numba, typed so the type checker sees through it.
+
+``compiled`` keeps a function's signature for the type checker: numba's dispatcher is a callable
+whose type numba's own stubs give only in recent releases. Every compiled function of the core
+uses the same options: nopython mode and an on-disk cache (in ``__pycache__``), so a fresh process
+loads the machine code instead of compiling it again.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import ParamSpec, TypeVar, cast
+
+import numba
+
+P = ParamSpec("P")
+R = TypeVar("R")
+
+
+def compiled(fn: Callable[P, R]) -> Callable[P, R]:
+    """``fn`` compiled in nopython mode with an on-disk cache; exact IEEE arithmetic."""
+    return cast("Callable[P, R]", numba.njit(cache=True)(fn))
+
+
+def compiled_fastmath(flags: set[str]) -> Callable[[Callable[P, R]], Callable[P, R]]:
+    """Like ``compiled``, with the named LLVM fast-math ``flags`` (e.g. ``{"contract"}``)."""
+
+    def decorate(fn: Callable[P, R]) -> Callable[P, R]:
+        return cast("Callable[P, R]", numba.njit(cache=True, fastmath=flags)(fn))
+
+    return decorate
