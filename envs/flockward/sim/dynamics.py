@@ -25,6 +25,8 @@ Euler, at the cost of one force evaluation per step. After the speed clamp the p
 advances by the mean of the old and the clamped new velocity. Each drone uses the same scheme, with
 its own command and limits.
 
+No drone (P = 0): nothing to fear, the flock flies unherded.
+
 Several drones: a bird fears only the nearest one (the lowest index on a tie), not the sum of all.
 A bird reacts to the most pressing threat, and the fear law's gains describe one threat: summing
 would make two drones at the same spot twice as frightening as one. With one drone this is the
@@ -287,18 +289,22 @@ def step_worlds(
             if g > _TINY:
                 ax += k_dst * (cruise * gx / g - vx)
                 ay += k_dst * (cruise * gy / g - vy)
-            # The nearest drone (first on a tie) is the one this bird fears.
+            # The nearest drone (first on a tie) is the one this bird fears; with no drone
+            # (P = 0) it is infinitely far and no fear term acts.
             near = 0
-            rx = x - drones[0, 0]
-            ry = y - drones[0, 1]
-            d2 = rx * rx + ry * ry
-            for q in range(1, n_drones):
-                qx = x - drones[q, 0]
-                qy = y - drones[q, 1]
-                q2 = qx * qx + qy * qy
-                if q2 < d2:
-                    near, rx, ry, d2 = q, qx, qy, q2
-            d = math.sqrt(d2)
+            rx = ry = 0.0
+            d = math.inf
+            if n_drones > 0:
+                rx = x - drones[0, 0]
+                ry = y - drones[0, 1]
+                d2 = rx * rx + ry * ry
+                for q in range(1, n_drones):
+                    qx = x - drones[q, 0]
+                    qy = y - drones[q, 1]
+                    q2 = qx * qx + qy * qy
+                    if q2 < d2:
+                        near, rx, ry, d2 = q, qx, qy, q2
+                d = math.sqrt(d2)
             if d < r_alarm and d > _TINY:
                 f = k_flee * (1.0 - d / r_alarm) / d
                 ax += f * rx
