@@ -112,13 +112,13 @@ def step_refinements(levels: int) -> list[dict[str, object]]:
     A model with a substep count (an integer episode field named ``*substep*``) refines by
     doubling it at a fixed control step; otherwise the episode step ``dt`` is halved.
     """
-    by_name = {f.name: f for f in fields(EpisodeParams)}
-    substeps = [name for name in by_name if "substep" in name]
+    defaults = EpisodeParams()
+    substeps = [f.name for f in fields(defaults) if "substep" in f.name]
     if substeps:
         name = substeps[0]
-        base = int(by_name[name].default)
+        base = int(getattr(defaults, name))
         return [{f"episode.{name}": base * 2**k} for k in range(levels)]
-    base_dt = float(by_name["dt"].default)
+    base_dt = float(defaults.dt)
     return [{"episode.dt": base_dt / 2**k} for k in range(levels)]
 
 
@@ -203,7 +203,7 @@ def smooth_endpoint(refinement: Mapping[str, object]) -> np.ndarray:
     world.state.bird_pos[0, 0] = scenario.site.flock_start
     world.state.bird_vel[0, 0] = (0.0, cruise)
     advance(world, round(SMOOTH_TIME / scenario.episode.dt))
-    return world.state.bird_pos[0, 0].copy()
+    return np.array(world.state.bird_pos[0, 0], dtype=np.float64)
 
 
 def observed_orders(endpoints: Sequence[np.ndarray]) -> tuple[list[float], list[float]]:
@@ -218,7 +218,7 @@ def nearest_neighbour_distances(pos: np.ndarray) -> np.ndarray:
     """Each bird's distance to its nearest flockmate, (n,) m (scipy's k-d tree)."""
     if len(pos) < 2:
         return np.full(len(pos), math.inf)
-    return cKDTree(pos).query(pos, k=2)[0][:, 1]
+    return np.asarray(cKDTree(pos).query(pos, k=2)[0][:, 1], dtype=np.float64)
 
 
 @lru_cache(maxsize=64)
