@@ -25,6 +25,8 @@ Euler, at the cost of one force evaluation per step. After the speed clamp the p
 advances by the mean of the old and the clamped new velocity. Each drone uses the same scheme, with
 its own command and limits.
 
+No drone (P = 0): nothing to fear, the flock flies unherded.
+
 Several drones: a bird fears only the nearest one (the lowest index on a tie), not the sum of all.
 A bird reacts to the most pressing threat, and the fear law's gains describe one threat: summing
 would make two drones at the same spot twice as frightening as one. With one drone this is the
@@ -251,6 +253,8 @@ def _fear(
     k_dodge: float,
 ) -> tuple[float, float]:
     """The bird's acceleration (ax, ay) plus its flight from the nearest drone."""
+    if drones.shape[0] == 0:
+        return ax, ay  # no drone in the world (the unherded control): nothing to fear
     # The nearest drone (first on a tie) is the one this bird fears.
     near = 0
     rx = x - drones[0, 0]

@@ -21,7 +21,8 @@ class World:
     """The batched simulation: reset any subset of worlds, step all of them in one call.
 
     Every world flies ``drones`` drones (P), all with the scenario's pursuer limits and start.
-    Scenarios describe one drone, which is the default; the environments build one-drone worlds.
+    Scenarios describe one drone, which is the default. With no drone (P = 0) nothing frightens
+    the birds: the unherded control, whose actions are (B, 0, 2).
     """
 
     def __init__(
@@ -33,8 +34,8 @@ class World:
     ):
         if worlds < 1:
             raise ValueError(f"worlds = {worlds}: must be at least 1")
-        if drones < 1:
-            raise ValueError(f"drones = {drones}: must be at least 1")
+        if drones < 0:
+            raise ValueError(f"drones = {drones}: must be at least 0")
         self.scenario = scenario
         self.n_worlds = worlds
         self.n_drones = drones
