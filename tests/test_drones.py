@@ -103,8 +103,8 @@ def test_a_drone_parked_far_away_changes_nothing():
 
 def test_world_refuses_bad_drone_counts_and_action_shapes():
     scenario = load_scenario("headon")
-    with pytest.raises(ValueError, match="drones = 0"):
-        World(scenario, 1, drones=0)
+    with pytest.raises(ValueError, match="drones = -1: must be at least 0"):
+        World(scenario, 1, drones=-1)
     world = reset_world(scenario, [0, 1], drones=2)
     with pytest.raises(ValueError, match=r"expected \(worlds, drones, 2\) \(2, 2, 2\)"):
         world.step(np.zeros((2, 2)))

@@ -334,7 +334,7 @@ def test_inputs_are_validated() -> None:
         centroid(pos[0], np.array([1]))
     with pytest.raises(ValueError, match="method"):
         components(pos, np.array([1, 1]), 1.0, "kdtree")  # type: ignore[arg-type]
-    with pytest.raises(ValueError, match="P >= 1"):
-        nearest_distance(pos, np.array([1, 1]), np.zeros((2, 0, 2)))  # no drones
-    with pytest.raises(ValueError, match="P >= 1"):
+    with pytest.raises(ValueError, match="P >= 0"):
+        nearest_distance(pos, np.array([1, 1]), np.zeros((2, 1, 3)))  # not (x, y) points
+    with pytest.raises(ValueError, match="P >= 0"):
         nearest_distance(pos, np.array([1, 1]), np.zeros((3, 1, 2)))  # a world too many

@@ -273,6 +273,37 @@ def _cmd_train(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+EXIT_CHECK_FAILED = 1  # flockward verify: at least one check failed
+
+
+def _cmd_verify(args: argparse.Namespace) -> int:
+    """Run the model's published checks; print one row per check; write the Markdown report."""
+    from flockward.bench.verify import VerifySettings, all_hold, registry, run_checks, table_rows
+    from flockward.bench.verify_report import HEADER, summary, text_row, write_report
+    from flockward_baselines.controllers import make_controller
+
+    checks = registry()
+    unknown = [name for name in args.check if name not in checks]
+    if unknown:
+        print(f"--check {', '.join(unknown)}: unknown; allowed: {', '.join(checks)}",
+              file=sys.stderr)  # fmt: skip
+        return EXIT_INVALID
+    settings = VerifySettings(quick=args.quick, make_controller=make_controller)
+    # Column widths fixed up front (check names, short values), so each row prints when its
+    # check finishes.
+    widths = [max(len(HEADER[0]), *map(len, checks)), 10, 48, 6]
+    print(text_row(HEADER, widths), flush=True)
+    results = run_checks(
+        settings,
+        args.check or None,
+        checks,
+        on_result=lambda result: print(text_row(table_rows([result])[0], widths), flush=True),
+    )
+    path = write_report(results, args.out, args.quick)
+    print(f"{summary(results)}; report written to {path}")
+    return EXIT_OK if all_hold(results) else EXIT_CHECK_FAILED
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every subcommand registered."""
     parser = argparse.ArgumentParser(
@@ -401,6 +432,28 @@ def build_parser() -> argparse.ArgumentParser:
     train.add_argument("--resume", action="store_true", help="continue from the last checkpoint")
     train.add_argument("--quiet", action="store_true", help="no progress bar")
     train.set_defaults(handler=_cmd_train)
+    verify = sub.add_parser(
+        "verify",
+        help="check the simulator against published results and the field's claims",
+        description="Run the published checks (order parameter, alignment invariants, integrator "
+        "order, step convergence, overlap, the field's herding claims), print one row per check "
+        "with the measured value, its bound and the bound's source, and write a Markdown report "
+        "with figures. Exit status 0 only when no check fails, 1 otherwise.",
+    )
+    verify.add_argument(
+        "--quick", action="store_true", help="fewer seeds and shorter runs (CI, a few minutes)"
+    )
+    verify.add_argument(
+        "--out", default="results/verify", help="report directory (default results/verify)"
+    )
+    verify.add_argument(
+        "--check",
+        action="append",
+        default=[],
+        metavar="NAME",
+        help="run only this check (repeatable)",
+    )
+    verify.set_defaults(handler=_cmd_verify)
     return parser
 
 

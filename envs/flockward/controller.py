@@ -45,6 +45,9 @@ class Controller:
 
     name: str = "unnamed"
     information_level: str = InformationLevel.OBSERVATION
+    # Drones in the world the controller is scored in: 1, or 0 for a control run without any
+    # pursuer (its actions are then ignored). The episode player builds the env with it.
+    drones: int = 1
 
     def reset(self, scenario: Scenario, seed: int | None = None) -> None:
         """Called before each episode with the scenario and the episode's seed."""

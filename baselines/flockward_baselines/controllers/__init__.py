@@ -14,15 +14,25 @@ from flockward_baselines.controllers.boundary_arc import BoundaryArc
 from flockward_baselines.controllers.collect_drive import CollectDrive
 from flockward_baselines.controllers.direct_pursuit import DirectPursuit
 from flockward_baselines.controllers.idle import Idle
+from flockward_baselines.controllers.no_drone import NoDrone
 
 BUILTIN: dict[str, type[Controller]] = {
     "boundary-arc": BoundaryArc,
     "direct-pursuit": DirectPursuit,
     "collect-drive": CollectDrive,
     "idle": Idle,
+    "no-drone": NoDrone,
 }
 
-__all__ = ["BUILTIN", "BoundaryArc", "CollectDrive", "DirectPursuit", "Idle", "make_controller"]
+__all__ = [
+    "BUILTIN",
+    "BoundaryArc",
+    "CollectDrive",
+    "DirectPursuit",
+    "Idle",
+    "NoDrone",
+    "make_controller",
+]
 
 
 def make_controller(name_or_import_path: str, **params: Any) -> Controller:

@@ -1,7 +1,8 @@
-"""Idle: the drone holds station where the episode starts it.
+"""Idle: the drone holds station where the episode starts it, a static deterrent.
 
-The control experiment of the benchmark: it shows what the flock does unherded (on the shipped
-scenarios it flies on toward its destination, across the protected zone).
+Not an unherded control: the drone hovers near the flock's flight path, and every bird that comes
+within its alarm radius flees it, so an idle drone often scares the flock off its course without
+doing anything. The true unherded control, with no pursuer in the world at all, is ``no-drone``.
 """
 
 from __future__ import annotations

@@ -53,7 +53,9 @@ def _command_energy(action: np.ndarray, max_accel: np.ndarray, dt: float) -> flo
     the kernel applies it: clipped to the unit box, then its norm capped at 1.
     """
     total = 0.0
-    for command, amax in zip(np.reshape(action, (-1, 2)), max_accel, strict=True):
+    # Only flown drones spend energy: without drones the (2,) action is ignored.
+    commands = np.reshape(action, (-1, 2))[: len(max_accel)]
+    for command, amax in zip(commands, max_accel, strict=True):
         u = np.clip(command, -1.0, 1.0)
         u = u / max(1.0, float(np.hypot(*u)))
         total += float((u * amax) @ (u * amax)) * dt
@@ -75,6 +77,25 @@ def _checked_action(raw: object) -> np.ndarray:
     return action
 
 
+def controller_env_kwargs(
+    controller: Controller, env_kwargs: dict[str, Any] | None = None
+) -> dict[str, Any]:
+    """Environment arguments with the number of drones the controller declares added.
+
+    A ``drones`` argument that contradicts the controller's declaration is a ValueError.
+    """
+    kwargs = dict(env_kwargs or {})
+    drones = getattr(controller, "drones", 1)
+    if kwargs.get("drones", drones) != drones:
+        raise ValueError(
+            f"drones = {kwargs['drones']}: controller {getattr(controller, 'name', '?')!r} "
+            f"declares drones = {drones}"
+        )
+    if drones != 1:
+        kwargs["drones"] = drones
+    return kwargs
+
+
 def play_episode(
     scenario: Scenario,
     controller: Controller,
@@ -86,8 +107,9 @@ def play_episode(
     """Run ``controller`` for one episode from ``seed``; return its record and optional frames.
 
     ``on_action(observation, action)`` is called before each step (e.g. to record demonstrations).
+    The env flies the controller's ``drones`` (default 1; 0 for the unherded control).
     """
-    env = DivertEnv(scenario, **(env_kwargs or {}))
+    env = DivertEnv(scenario, **controller_env_kwargs(controller, env_kwargs))
     obs, info = env.reset(seed=seed)
     try:
         controller.reset(scenario, seed)

@@ -5,8 +5,8 @@ The result file ``RESULTS_DIR/<suite>/<controller-slug>.json`` (layout in
 file in the same directory, fsync, rename) every few episodes and at the end, so an interrupted
 run keeps what it finished and a rerun plays only the missing episodes. Strict JSON: a non-finite
 number (the closest approach of an episode whose controller failed before the first step) is
-written as null. A run that sets environment arguments (observation, reward) records
-them under ``"environment"``; the defaults are not written.
+written as null. A run that sets environment arguments (observation, reward, or the drone count
+a controller declares) records them under ``"environment"``; the defaults are not written.
 
 Each episode gets a fresh controller from ``controller_factory`` reset with the episode's seed,
 so a result depends only on (scenario, seed, controller settings): never on the order, the
@@ -34,7 +34,7 @@ import gymnasium
 import numpy as np
 
 import flockward
-from flockward.bench.episode import play_episode
+from flockward.bench.episode import controller_env_kwargs, play_episode
 from flockward.bench.results import (
     RESULTS_FORMAT,
     UnreadableResults,
@@ -287,8 +287,9 @@ def run_suite(
         raise ValueError(f"workers = {workers} with a backend: the backend sets the parallelism")
     if limit is not None and limit < 0:
         raise ValueError(f"limit = {limit}: must be an integer >= 0")
-    header = _header(suite, controller_name, controller_factory())
-    environment = _environment(env_options)
+    probe = controller_factory()
+    header = _header(suite, controller_name, probe)
+    environment = _environment(controller_env_kwargs(probe, env_options))
     if environment is not None:
         header["environment"] = environment
     path = result_path(results_dir, suite.name, slug or controller_slug(controller_name))

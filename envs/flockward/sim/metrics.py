@@ -5,7 +5,8 @@ active birds per world. Birds at index >= count[b] are padding; nothing here rea
 
 Empty worlds (count 0): centroid and mean velocity are NaN (there is no flock to locate), sizes
 (diameter, radius of gyration) and polarisation are 0, there are 0 components with
-largest_fraction 1 (nothing is split off), and the nearest bird is at infinity.
+largest_fraction 1 (nothing is split off), and the nearest bird is at infinity. So is the nearest
+bird of a world without drones (P = 0).
 
 ``step_metrics`` computes what the environment needs each step in one compiled call.
 """
@@ -69,13 +70,13 @@ def _check_points(points: np.ndarray, worlds: int) -> np.ndarray:
 
 
 def _check_point_sets(points: np.ndarray, worlds: int) -> np.ndarray:
-    """Contiguous float64 (B, P, 2) points, P >= 1 per world; (B, 2) counts as P = 1."""
+    """Contiguous float64 (B, P, 2) points, P >= 0 per world; (B, 2) counts as P = 1."""
     points = np.ascontiguousarray(points, dtype=np.float64)
     if points.ndim == 2:
         points = points[:, None, :]
-    if points.ndim != 3 or points.shape[0] != worlds or points.shape[1] < 1 or points.shape[2] != 2:
+    if points.ndim != 3 or points.shape[0] != worlds or points.shape[2] != 2:
         raise ValueError(
-            f"expected (x, y) points per world, shape ({worlds}, 2) or ({worlds}, P, 2), P >= 1;"
+            f"expected (x, y) points per world, shape ({worlds}, 2) or ({worlds}, P, 2), P >= 0;"
             f" got {points.shape}"
         )
     return points
@@ -279,9 +280,10 @@ def _nearest_world(p: np.ndarray, n: int, x: float, y: float) -> float:
 
 @compiled
 def _nearest_to_points(p: np.ndarray, n: int, points: np.ndarray) -> float:
-    """Shortest distance between any of ``points`` (P, 2) and the first n birds of ``p``."""
-    best = _nearest_world(p, n, points[0, 0], points[0, 1])
-    for q in range(1, points.shape[0]):
+    """Shortest distance between any of ``points`` (P, 2) and the first n birds of ``p``; inf
+    when there are no points (a world without drones) or no birds."""
+    best = np.inf
+    for q in range(points.shape[0]):
         best = min(best, _nearest_world(p, n, points[q, 0], points[q, 1]))
     return best
 
@@ -436,7 +438,8 @@ def polarisation(vel: np.ndarray, count: np.ndarray) -> np.ndarray:
 
 
 def nearest_distance(pos: np.ndarray, count: np.ndarray, points: np.ndarray) -> np.ndarray:
-    """Shortest distance between each world's points and its active birds, (B,) m (inf if none).
+    """Shortest distance between each world's points and its active birds, (B,) m (inf if there
+    are no birds or no points).
 
     ``points`` is (B, P, 2), e.g. the drones, or (B, 2) for one point per world.
     """
@@ -474,7 +477,8 @@ def step_metrics(
 ) -> StepMetrics:
     """All per-step flock metrics in one compiled pass per world (see StepMetrics).
 
-    ``pursuer_pos`` holds the drone positions, (B, P, 2) m ((B, 2) counts as one drone).
+    ``pursuer_pos`` holds the drone positions, (B, P, 2) m ((B, 2) counts as one drone; P = 0,
+    no drone, gives a nearest distance of inf).
     """
     pos, count = _check_batch(pos, count)
     vel = np.ascontiguousarray(vel, dtype=np.float64)

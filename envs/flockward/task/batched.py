@@ -54,7 +54,7 @@ class DivertTask:
         config.check_scenario(scenario)
         self.scenario = scenario
         self.n_worlds = worlds
-        self.world = World(scenario, worlds, config.neighbour_search)
+        self.world = World(scenario, worlds, config.neighbour_search, drones=config.drones)
         self.setting = TaskSetting(
             scenario=scenario,
             worlds=worlds,
@@ -154,7 +154,11 @@ class DivertTask:
         and the flock metrics ``n_components``, ``largest_fraction``, ``diameter``,
         ``polarisation``, ``nearest_distance``, ``birds_inside``, ``breached_birds``,
         ``birds_in_goal``, ``goal_distance``, ``collision``, ``steps``.
+
+        In worlds without a drone the (B, 1, 2) action of the one-drone faces is ignored.
         """
+        if self.world.n_drones == 0:
+            action = np.zeros((self.n_worlds, 0, 2))
         self.world.step(action, live)
         before = self.metrics
         m = self.measure()

@@ -92,15 +92,23 @@ class StepContext:
         """B, the number of worlds."""
         return self.setting.worlds
 
-    # The pursuer's arrays are read only through these two properties.
+    # The pursuer's arrays are read only through these two properties. A world without a drone
+    # (the unherded control) is observed from a still reference point at the flock centroid, so
+    # every drone-relative value stays finite: centroid offset and drone velocity are zero, rim
+    # offsets are taken from the centroid and the approach potential is flat.
     @property
     def drone_pos(self) -> np.ndarray:
-        """(B, 2) m, drone 0's position after the step (the one-drone task's drone)."""
+        """(B, 2) m, drone 0's position after the step (the one-drone task's drone); the flock
+        centroid in a world without drones."""
+        if self.state.drones == 0:
+            return self.metrics.centroid
         return self.state.pursuer_pos[:, 0]
 
     @property
     def drone_vel(self) -> np.ndarray:
-        """(B, 2) m/s, drone 0's velocity after the step."""
+        """(B, 2) m/s, drone 0's velocity after the step; zero in a world without drones."""
+        if self.state.drones == 0:
+            return np.zeros((self.worlds, 2))
         return self.state.pursuer_vel[:, 0]
 
     @property

@@ -85,7 +85,9 @@ class DivertEnv(gym.Env):
     The fields of ``flockward.task.env_config.EnvConfig``, as keywords or as one EnvConfig:
     ``scenario`` (shipped name, TOML path or Scenario), ``overrides`` (dotted config keys, checked
     like the file's), ``observation``, ``reward``, ``rim_birds``, ``max_birds``,
-    ``neighbour_search`` ("auto", "all-pairs", "grid"), ``max_episode_steps``, ``render_mode``.
+    ``neighbour_search`` ("auto", "all-pairs", "grid"), ``max_episode_steps``, ``render_mode``,
+    ``drones`` (1, or 0 for the unherded control: no pursuer in the world, actions ignored,
+    observations taken from a still point at the flock centroid).
 
     ## Version history
     v0: first release. Later changes that leave every observation value, reward and episode as

@@ -24,6 +24,7 @@ RENDER_MODES = ("human", "rgb_array")
 REWARDS: dict[str, type[Reward]] = {"herding": HerdingReward}  # shipped rewards by name
 RIM_BIRDS_RANGE = (1, 64)
 PartT = TypeVar("PartT", Observation, Reward)
+DRONE_COUNTS = (0, 1)  # 0: the unherded control, no pursuer in the world
 
 
 def resolve_scenario(
@@ -120,6 +121,9 @@ class EnvConfig:
     neighbour_search: str = "auto"  # "auto", "all-pairs" or "grid"
     max_episode_steps: int | None = None  # step limit (None: the scenario's)
     render_mode: str | None = None  # None, "human" or "rgb_array" (single env only)
+    # drones per world: 1, or 0 for the unherded control (actions accepted and ignored; see
+    # StepContext.drone_pos for what observations use in place of the drone)
+    drones: int = 1
 
     def __post_init__(self) -> None:
         if not isinstance(self.scenario, str | Path | Scenario):
@@ -129,6 +133,7 @@ class EnvConfig:
         if self.overrides is not None and not isinstance(self.overrides, Mapping):
             raise ValueError(f"overrides = {self.overrides!r}: must be a dict of dotted keys")
         _positive_int("rim_birds", self.rim_birds, *RIM_BIRDS_RANGE)
+        _positive_int("drones", self.drones, *DRONE_COUNTS)
         if self.max_birds is not None:
             _positive_int("max_birds", self.max_birds, 1)
         if self.max_episode_steps is not None:
