@@ -21,14 +21,9 @@ class World:
     """The batched simulation: reset any subset of worlds, step all of them in one call.
 
     Every world flies ``drones`` drones (P), all with the scenario's pursuer limits and start.
-<<<<<<< HEAD
     Scenarios describe one drone, which is the default; the environments build one-drone worlds.
     With ``drones = 0`` the world has no drone and the birds know no fear (the unherded control).
     ``clamps`` counts, per world since its reset, how often the airspeed safety net acted.
-=======
-    Scenarios describe one drone, which is the default. With no drone (P = 0) nothing frightens
-    the birds: the unherded control, whose actions are (B, 0, 2).
->>>>>>> main
     """
 
     def __init__(
