@@ -140,17 +140,15 @@ def test_undamped_oscillator_energy_stays_bounded():
     assert drift[50:].max() <= drift[:50].max() * 1.01 + 1e-12  # no growth
 
 
-@pytest.mark.xfail(
-    strict=False,
-    reason="measured: max state errors 0.104 / 0.088 / 0.093 at h 0.05 / 0.025 / 0.0125 s "
-    "(ratios 1.18, 0.94): the kernel and the solve_ivp right-hand side disagree by a fixed "
-    "amount, not yet traced",
-)
 def test_full_flock_is_second_order_against_solve_ivp():
     # The real kernel (step_worlds, every smooth term on, noise off) against DOP853 on the same
     # right-hand side: 20 gulls, a drone crossing the flock at constant velocity, so separation,
     # dodge, flight and the budget all act. Hairer, Lubich & Wanner: order 2 -> ratio ~4.
-    flock = derived(FlockParams(), noise_std=0.0, informed_fraction=1.0)
+    # The airspeed safety net is moved out of reach: it is a projection outside the smooth model
+    # (in this close pass birds are pushed past 1.3 x burst speed, where it would act).
+    flock = derived(
+        FlockParams(), noise_std=0.0, informed_fraction=1.0, min_speed=0.0, max_speed=80.0
+    )
     rng = np.random.default_rng(1)
     x0 = rng.uniform(-8.0, 8.0, (20, 2))
     v0 = np.array([12.5, 0.0]) + rng.normal(0.0, 0.5, (20, 2))
@@ -167,7 +165,7 @@ def test_full_flock_is_second_order_against_solve_ivp():
     ref = solve_ivp(rhs, (0, t_end), np.concatenate([x0.ravel(), v0.ravel()]), method="DOP853",
                     rtol=1e-12, atol=1e-12).y[:, -1]  # fmt: skip
     errors = []
-    for substeps in (2, 4, 8):
+    for substeps in (4, 8, 16):  # h = 0.025 (the default), 0.0125, 0.00625 s
         x, v, p, _ = run(flock, x0, v0, 40, drones=p0, drone_vel=u, substeps=substeps,
                          destination=dest)  # fmt: skip
         np.testing.assert_allclose(p[0], p0 + u * t_end, atol=1e-9)
