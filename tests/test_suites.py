@@ -70,7 +70,8 @@ def test_standard_suite_covers_the_benchmark() -> None:
     assert max(counts + [hi for _, hi in ranged]) >= 300
     assert {e.scenario.flock.formation for e in suite.entries} >= {"disc", "hex", "line", "cluster"}
     assert any(e.scenario.flock.noise_std == 0 for e in suite.entries)
-    assert any(e.scenario.flock.noise_std >= 1.0 for e in suite.entries)
+    # A noisy family: heading noise that frays the flock (polarisation falls well below 1).
+    assert any(e.scenario.flock.noise_std >= 0.5 for e in suite.entries)
     per_family: dict[str, int] = {}
     for entry in suite.entries:
         per_family[entry.family] = per_family.get(entry.family, 0) + entry.count

@@ -45,8 +45,8 @@ One force evaluation per substep: the acceleration at the end of a substep is re
 start of the next (first same as last); each control step starts from a fresh evaluation, so a
 state written between steps is honoured exactly.
 
-Drones: the same velocity Verlet with the commanded acceleration held over the control step,
-then the autopilot's speed limit. A bird fears only the nearest drone (the lowest index on a
+Drones: the commanded acceleration held over the control step, integrated exactly (velocity
+Verlet) and kept within the autopilot's speed limit. A bird fears only the nearest drone (the lowest index on a
 tie); a world with no drone has no fear at all.
 
 Neighbour search: all pairs for small flocks; for large flocks a cell grid with cell size equal
@@ -343,7 +343,12 @@ def integrate(x, v, h, steps, force, ctx):
 
 @numba.njit(cache=True)
 def _drone_substep(drones, drone_vel, action, limits, h):
-    """Every drone: velocity Verlet under its held command, then its speed limit."""
+    """Every drone: its held command over one substep, within its speed limit.
+
+    The autopilot never flies past its speed limit: the new velocity v' = v + h a is scaled back
+    onto the limit when it would exceed it, and the position advances by h (v + v') / 2, which
+    is exact for a constant command (velocity Verlet) and for flight at the limit.
+    """
     for q in range(drones.shape[0]):
         ux = min(max(action[q, 0], -1.0), 1.0)
         uy = min(max(action[q, 1], -1.0), 1.0)
@@ -353,15 +358,16 @@ def _drone_substep(drones, drone_vel, action, limits, h):
             uy /= u
         amax = limits[q, 1]
         vmax = limits[q, 0]
-        for c in range(2):
-            cmd = (ux if c == 0 else uy) * amax
-            v_half = drone_vel[q, c] + 0.5 * h * cmd
-            drones[q, c] += h * v_half
-            drone_vel[q, c] = v_half + 0.5 * h * cmd
-        speed = math.sqrt(drone_vel[q, 0] ** 2 + drone_vel[q, 1] ** 2)
+        nvx = drone_vel[q, 0] + h * ux * amax
+        nvy = drone_vel[q, 1] + h * uy * amax
+        speed = math.sqrt(nvx * nvx + nvy * nvy)
         if speed > vmax:
-            drone_vel[q, 0] *= vmax / speed
-            drone_vel[q, 1] *= vmax / speed
+            nvx *= vmax / speed
+            nvy *= vmax / speed
+        drones[q, 0] += 0.5 * h * (drone_vel[q, 0] + nvx)
+        drones[q, 1] += 0.5 * h * (drone_vel[q, 1] + nvy)
+        drone_vel[q, 0] = nvx
+        drone_vel[q, 1] = nvy
 
 
 @numba.njit(cache=True)
