@@ -51,7 +51,8 @@ MIN_ORDER = 1.8  # observed order of a second-order scheme, allowing for roundin
 DT_TOLERANCE = 0.05  # relative change of a flock statistic when the step is halved
 OVERLAP_FRACTION = 0.3  # smallest nearest-neighbour distance / separation radius
 SAMPLE_EVERY = 0.5  # s between samples of the flock statistics
-NOISE_LEVELS = (0.0, 1.0, 2.0, 4.0, 8.0)  # m/s^2 (or the model's noise unit), noise_std swept
+# noise_std swept over the schema's range of heading noise (rad/s^0.5, flockward.sim.types)
+NOISE_LEVELS = (0.0, 0.25, 0.5, 1.0, 2.0, 3.0)
 NOISE_FRAYED = 0.5  # polarisation the noisiest flock must fall below
 NOISE_SLACK = 0.02  # polarisation may rise this much between noise levels (sampling error)
 
@@ -197,6 +198,8 @@ def smooth_endpoint(refinement: Mapping[str, object]) -> np.ndarray:
     """
     overrides = isolating_overrides(["destination_gain"])
     assert overrides is not None
+    if "informed_fraction" in flock_fields():
+        overrides["flock.informed_fraction"] = 1.0  # the lone bird knows its roost
     scenario = load_scenario(BASE_SCENARIO, {**overrides, **refinement, "flock.count": 1})
     world = unherded_world(scenario, [0])
     cruise = scenario.flock.cruise_speed
