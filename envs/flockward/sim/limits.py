@@ -29,9 +29,9 @@ from flockward.sim.spec import (
     spec_of,
 )
 from flockward.sim.types import (
+    MAX_HEADING_NOISE,
     Circle,
     EpisodeParams,
-    MAX_HEADING_NOISE,
     FlockParams,
     Polygon,
     PursuerParams,

@@ -74,7 +74,7 @@ class FlockParams:
     max_speed: float = param(23.4, positive(80.0, "m/s"))
     # steering budget shared by every steering request; the range reaches far beyond any bird so
     # that checks can take the budget out of play and compare with the published laws
-    max_accel: float = param(8.0, positive(10_000.0, "m/s^2"))
+    max_accel: float = param(12.0, positive(10_000.0, "m/s^2"))
     # speed regulation k_v (v_pref - s), outside the steering budget
     speed_gain: float = param(0.8, number(0.0, 100.0, "1/s"))
     separation_radius: float = param(2.0, positive(100.0, "m"))
@@ -90,7 +90,7 @@ class FlockParams:
     alignment_beta: float = param(0.25, number(0.0, 5.0))
     cohesion_radius: float = param(25.0, positive(500.0, "m"))
     # pull toward the locally weighted centroid of neighbours
-    cohesion_gain: float = param(0.4, number(0.0, 100.0, "1/s^2"))
+    cohesion_gain: float = param(0.3, number(0.0, 100.0, "1/s^2"))
     # turning rate toward the roost per unit of cruise speed (informed birds only)
     destination_gain: float = param(0.3, number(0.0, 100.0, "1/s"))
     # share of the flock that knows the roost (spread evenly over the birds)
@@ -100,9 +100,9 @@ class FlockParams:
     # flight acceleration inside dodge_radius, falling smoothly to 0 at alarm_radius
     flee_accel: float = param(4.0, number(0.0, 1000.0, "m/s^2"))
     # inside it a bird also dodges sideways off the drone's line of approach
-    dodge_radius: float = param(30.0, positive(1000.0, "m"))
+    dodge_radius: float = param(40.0, positive(1000.0, "m"))
     # dodge acceleration close to the drone, falling smoothly to 0 at dodge_radius
-    dodge_accel: float = param(8.0, number(0.0, 1000.0, "m/s^2"))
+    dodge_accel: float = param(12.0, number(0.0, 1000.0, "m/s^2"))
     # line of approach: the drone's velocity relative to the bird, or over the ground
     dodge_frame: str = param("relative", Spec("choice", choices=DODGE_FRAMES))
     # heading: rotational diffusion (rad/s^0.5); vector: white-noise acceleration (m/s^1.5)
