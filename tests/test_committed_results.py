@@ -13,10 +13,6 @@ from typing import Any
 
 import pytest
 
-pytestmark = pytest.mark.skip(
-    reason="committed results are from flock model v0; regenerated under v1"
-)
-
 from flockward.bench.evaluation import _play
 from flockward.bench.suites import load_suite
 from flockward_baselines.controllers import make_controller

@@ -10,6 +10,7 @@ noise. Checks against our own earlier numbers are called regression tests.
 
 from __future__ import annotations
 
+import itertools
 import math
 
 import numba
@@ -57,7 +58,10 @@ def only(**terms) -> FlockParams:
     return derived(OFF, **terms)
 
 
-def accel(flock, x, v, drones=np.zeros((0, 2)), drone_vel=None, destination=FAR, grid=False):
+NO_DRONE = np.zeros((0, 2))
+
+
+def accel(flock, x, v, drones=NO_DRONE, drone_vel=None, destination=FAR, grid=False):
     """``flock_acceleration`` of one world, (N, 2)."""
     x = np.ascontiguousarray(x, np.float64)
     v = np.ascontiguousarray(v, np.float64)
@@ -68,7 +72,7 @@ def accel(flock, x, v, drones=np.zeros((0, 2)), drone_vel=None, destination=FAR,
     return out
 
 
-def run(flock, x, v, steps, *, drones=np.zeros((0, 2)), drone_vel=None, action=None,
+def run(flock, x, v, steps, *, drones=NO_DRONE, drone_vel=None, action=None,
         dt=0.1, substeps=4, grid=False, destination=FAR, limits=(22.0, 10.0)):  # fmt: skip
     """``steps`` control steps of one world through ``step_worlds``; returns x, v, drones."""
     x = np.array(x, np.float64)[None]
@@ -177,8 +181,10 @@ def test_full_flock_is_second_order_against_solve_ivp():
 @pytest.mark.parametrize("dt", [0.1, 0.05])
 def test_pursuer_constant_command_matches_closed_form(dt):
     # Textbook kinematics: x = x0 + v0 t + a t^2 / 2 (velocity Verlet is exact for it).
-    _, _, p, pv = run(OFF, np.zeros((0, 2)), np.zeros((0, 2)), round(1.0 / dt), drones=(1.0, 2.0),
-                      drone_vel=(3.0, 0.0), action=(0.0, 0.5), dt=dt, limits=(44.0, 8.0))  # fmt: skip
+    _, _, p, pv = run(
+        OFF, NO_DRONE, NO_DRONE, round(1.0 / dt), drones=(1.0, 2.0), drone_vel=(3.0, 0.0),
+        action=(0.0, 0.5), dt=dt, limits=(44.0, 8.0),
+    )  # fmt: skip
     np.testing.assert_allclose(p[0], [1.0 + 3.0, 2.0 + 0.5 * 4.0], atol=1e-9)
     np.testing.assert_allclose(pv[0], [3.0, 4.0], atol=1e-9)
 
@@ -314,7 +320,7 @@ def test_bird_fears_only_the_nearest_drone():
         "cohesion_radius",
         "dodge_radius",
         "alarm_radius",
-    ],  # fmt: skip
+    ],
 )
 def test_forces_are_continuous_across_every_cut_off(radius):
     # Olfati-Saber 2006 bump functions: the acceleration is continuous (C1) in distance, so the
@@ -382,7 +388,7 @@ def test_polarisation_falls_monotonically_with_noise():
     # noise over the schema's range 0..3 rad/s^0.5, 50 gulls, three seeds.
     levels = (0.0, 0.5, 1.0, 3.0)
     pol = [_unherded("gulls", 4, [1, 2, 3], seconds=20.0, noise_std=s)[0][2] for s in levels]
-    assert all(a > b for a, b in zip(pol, pol[1:], strict=False)), pol
+    assert all(a > b for a, b in itertools.pairwise(pol)), pol
     assert pol[0] > 0.99 and pol[-1] < 0.4, pol
 
 

@@ -46,8 +46,8 @@ start of the next (first same as last); each control step starts from a fresh ev
 state written between steps is honoured exactly.
 
 Drones: the commanded acceleration held over the control step, integrated exactly (velocity
-Verlet) and kept within the autopilot's speed limit. A bird fears only the nearest drone (the lowest index on a
-tie); a world with no drone has no fear at all.
+Verlet) and kept within the autopilot's speed limit. A bird fears only the nearest drone (the
+lowest index on a tie); a world with no drone has no fear at all.
 
 Neighbour search: all pairs for small flocks; for large flocks a cell grid with cell size equal
 to the interaction cut-off (birds sorted by cell key, neighbouring cells found by binary search,
@@ -58,11 +58,18 @@ arithmetic, so they agree to rounding.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 
-import numba
 import numpy as np
 
+from flockward.sim.jit import compiled, compiled_fastmath, compiled_inline, compiled_uncached
 from flockward.sim.types import K
+
+# One world's surroundings as flock_acceleration reads them: parameter row, destination (2,),
+# drone positions (P, 2), drone velocities (P, 2), use_grid, cell keys (N,), visit order (N,).
+ForceContext = tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, bool, np.ndarray, np.ndarray]
+# force(x, v, n, ctx, out): every bird's acceleration into out.
+Force = Callable[[np.ndarray, np.ndarray, int, ForceContext, np.ndarray], None]
 
 # Above this many birds the cell grid beats all pairs (measured by `flockward bench`).
 GRID_MIN_BIRDS = 350
@@ -106,8 +113,8 @@ _C_NMODEL = K["noise_model"]
 _C_NOISE = K["noise_std"]
 
 
-@numba.njit(cache=True, inline="always")
-def bump(z, h):
+@compiled_inline
+def bump(z: float, h: float) -> float:
     """C1 cut-off: 1 on [0, h), 1 - 3t^2 + 2t^3 with t = (z - h)/(1 - h) on [h, 1), 0 beyond."""
     if z < h:
         return 1.0
@@ -117,8 +124,8 @@ def bump(z, h):
     return 1.0 - t * t * (3.0 - 2.0 * t)
 
 
-@numba.njit(cache=True, inline="always")
-def _grant(qx, qy, budget):
+@compiled_inline
+def _grant(qx: float, qy: float, budget: float) -> tuple[float, float, float]:
     """Share of the remaining budget for one request: its vector and granted magnitude."""
     m = math.sqrt(qx * qx + qy * qy)
     if m == 0.0 or budget <= 0.0:
@@ -129,22 +136,186 @@ def _grant(qx, qy, budget):
     return qx * f, qy * f, m * f
 
 
-@numba.njit(cache=True)
-def is_informed(i, fraction):
+@compiled
+def is_informed(i: int, fraction: float) -> bool:
     """Whether bird ``i`` knows the roost: ``fraction`` of the birds, spread evenly by index."""
     return math.floor((i + 1) * fraction) > math.floor(i * fraction)
 
 
-@numba.njit(cache=True)
-def _cell_keys(x, n, cell, keys):
+@compiled
+def _cell_keys(x: np.ndarray, n: int, cell: float, keys: np.ndarray) -> None:
+    """Each bird's cell of side ``cell``, packed into one int64 (x cell high, y cell low)."""
     for i in range(n):
         cx = np.int64(math.floor(x[i, 0] / cell)) + 2**30
         cy = np.int64(math.floor(x[i, 1] / cell)) + 2**30
         keys[i] = (cx << 32) | cy
 
 
-@numba.njit(cache=True, fastmath=_FAST)
-def flock_acceleration(x, v, n, ctx, out):
+@compiled_inline
+def _fear_requests(
+    xi: float,
+    yi: float,
+    vxi: float,
+    vyi: float,
+    drones: np.ndarray,
+    drone_vel: np.ndarray,
+    r_alarm: float,
+    r_dodge: float,
+    a_flee: float,
+    a_dodge: float,
+    relative: bool,
+) -> tuple[float, float, float, float, float]:
+    """One bird's flight and dodge requests from the nearest drone (the first on a tie), and its
+    fear level in [0, 1]; all zero without drones."""
+    fx = fy = ox = oy = fear = 0.0
+    n_drones = drones.shape[0]
+    if n_drones == 0:
+        return fx, fy, ox, oy, fear
+    near = 0
+    rx = xi - drones[0, 0]
+    ry = yi - drones[0, 1]
+    dd2 = rx * rx + ry * ry
+    for q in range(1, n_drones):
+        qx = xi - drones[q, 0]
+        qy = yi - drones[q, 1]
+        q2 = qx * qx + qy * qy
+        if q2 < dd2:
+            near, rx, ry, dd2 = q, qx, qy, q2
+    d = math.sqrt(dd2)
+    if d >= r_alarm or d <= _TINY:
+        return fx, fy, ox, oy, fear
+    fear = bump(d / r_alarm, r_dodge / r_alarm)
+    fx = a_flee * fear * rx / d
+    fy = a_flee * fear * ry / d
+    if d < r_dodge:
+        ex = drone_vel[near, 0]
+        ey = drone_vel[near, 1]
+        if relative:
+            ex -= vxi
+            ey -= vyi
+        e2 = ex * ex + ey * ey
+        lam = DODGE_LAMBDA_MAX * e2 / (e2 + DODGE_SPEED_SCALE * DODGE_SPEED_SCALE)
+        along = (rx * ex + ry * ey) / e2 if e2 > 0.0 else 0.0
+        nx = rx - lam * along * ex
+        ny = ry - lam * along * ey
+        nn = math.sqrt(nx * nx + ny * ny)
+        if nn > _TINY:
+            m = a_dodge * bump(d / r_dodge, BUMP_PLATEAU) / nn
+            ox = m * nx
+            oy = m * ny
+    return fx, fy, ox, oy, fear
+
+
+@compiled_inline
+def _allocate(
+    sx: float,
+    sy: float,
+    ox: float,
+    oy: float,
+    fx: float,
+    fy: float,
+    alx: float,
+    aly: float,
+    cx: float,
+    cy: float,
+    tx: float,
+    ty: float,
+    a_max: float,
+) -> tuple[float, float]:
+    """The steering requests granted in priority order (separation, dodge, flight, alignment,
+    cohesion, destination) from the budget ``a_max``; their sum."""
+    budget = a_max
+    ax, ay, used = _grant(sx, sy, budget)
+    budget -= used
+    gx, gy, used = _grant(ox, oy, budget)
+    ax += gx
+    ay += gy
+    budget -= used
+    gx, gy, used = _grant(fx, fy, budget)
+    ax += gx
+    ay += gy
+    budget -= used
+    gx, gy, used = _grant(alx, aly, budget)
+    ax += gx
+    ay += gy
+    budget -= used
+    gx, gy, used = _grant(cx, cy, budget)
+    ax += gx
+    ay += gy
+    budget -= used
+    gx, gy, used = _grant(tx, ty, budget)
+    return ax + gx, ay + gy
+
+
+@compiled_inline
+def _destination_request(
+    i: int,
+    informed: float,
+    destination: np.ndarray,
+    xi: float,
+    yi: float,
+    ux: float,
+    uy: float,
+    k_dst: float,
+    cruise: float,
+) -> tuple[float, float]:
+    """An informed bird's turn toward the roost, perpendicular to its velocity; zero for others."""
+    if not is_informed(i, informed):
+        return 0.0, 0.0
+    gx = destination[0] - xi
+    gy = destination[1] - yi
+    g = math.sqrt(gx * gx + gy * gy)
+    if g <= _TINY:
+        return 0.0, 0.0
+    gx /= g
+    gy /= g
+    gu = gx * ux + gy * uy
+    return k_dst * cruise * (gx - gu * ux), k_dst * cruise * (gy - gu * uy)
+
+
+@compiled_inline
+def _candidate_range(
+    use_grid: bool, keys: np.ndarray, sorted_keys: np.ndarray, i: int, r: int, n: int
+) -> tuple[int, int]:
+    """The slice of the visit order holding bird ``i``'s candidate neighbours in column r - 1 of
+    its 3 x 3 cells (the grid), or every bird (all pairs)."""
+    if not use_grid:
+        return 0, n
+    kx = (keys[i] >> 32) + r - 1
+    ky = keys[i] & 0xFFFFFFFF
+    start = np.searchsorted(sorted_keys, (kx << 32) | (ky - 1), "left")
+    stop = np.searchsorted(sorted_keys, (kx << 32) | (ky + 1), "right")
+    return start, stop
+
+
+@compiled
+def _visit_order(
+    x: np.ndarray, n: int, cut: float, use_grid: bool, keys: np.ndarray, order: np.ndarray
+) -> tuple[np.ndarray, int]:
+    """Fill ``order`` with the birds in visiting order: by cell key on the grid (returning the
+    sorted keys and 3 column ranges per bird), else by index (no keys, one range: all birds)."""
+    if use_grid:
+        _cell_keys(x, n, cut, keys)
+        order[:n] = np.argsort(keys[:n], kind="mergesort")
+        return keys[:n][order[:n]], 3
+    for i in range(n):
+        order[i] = i
+    return keys[:0], 1
+
+
+@compiled_inline
+def _heading(vx: float, vy: float) -> tuple[float, float, float]:
+    """Speed and unit velocity; a bird at rest heads east (any fixed choice keeps it defined)."""
+    speed = math.sqrt(vx * vx + vy * vy)
+    if speed > _TINY:
+        return speed, vx / speed, vy / speed
+    return speed, 1.0, 0.0
+
+
+@compiled_fastmath(_FAST)
+def flock_acceleration(
+    x: np.ndarray, v: np.ndarray, n: int, ctx: ForceContext, out: np.ndarray
+) -> None:
     """Every bird's acceleration (N, 2) into ``out`` for positions ``x`` and velocities ``v``.
 
     ``ctx`` = (params row, destination (2,), drone positions (P, 2), drone velocities (P, 2),
@@ -174,16 +345,7 @@ def flock_acceleration(x, v, n, ctx, out):
     a_flee = prm[_C_AFLEE]
     a_dodge = prm[_C_ADGE]
     relative = prm[_C_DFRAME] == 0.0
-    n_drones = drones.shape[0]
-    if use_grid:
-        _cell_keys(x, n, cut, keys)
-        order[:n] = np.argsort(keys[:n], kind="mergesort")
-        sorted_keys = keys[:n][order[:n]]
-    else:
-        for i in range(n):
-            order[i] = i
-        sorted_keys = keys[:0]
-    n_ranges = 3 if use_grid else 1
+    sorted_keys, n_ranges = _visit_order(x, n, cut, use_grid, keys, order)
     for i in range(n):
         xi = x[i, 0]
         yi = x[i, 1]
@@ -191,14 +353,7 @@ def flock_acceleration(x, v, n, ctx, out):
         vyi = v[i, 1]
         sx = sy = alx = aly = aw = cx = cy = cw = 0.0
         for r in range(n_ranges):
-            if use_grid:
-                kx = (keys[i] >> 32) + r - 1
-                ky = keys[i] & 0xFFFFFFFF
-                start = np.searchsorted(sorted_keys, (kx << 32) | (ky - 1), "left")
-                stop = np.searchsorted(sorted_keys, (kx << 32) | (ky + 1), "right")
-            else:
-                start = 0
-                stop = n
+            start, stop = _candidate_range(use_grid, keys, sorted_keys, i, r, n)
             for s in range(start, stop):
                 j = order[s]
                 if j == i:
@@ -234,84 +389,28 @@ def flock_acceleration(x, v, n, ctx, out):
         aly *= scale
         cx *= k_coh / (1.0 + cw)
         cy *= k_coh / (1.0 + cw)
-        speed = math.sqrt(vxi * vxi + vyi * vyi)
-        ux = vxi / speed if speed > _TINY else 1.0
-        uy = vyi / speed if speed > _TINY else 0.0
-        tx = ty = 0.0
-        if is_informed(i, informed):
-            gx = destination[0] - xi
-            gy = destination[1] - yi
-            g = math.sqrt(gx * gx + gy * gy)
-            if g > _TINY:
-                gx /= g
-                gy /= g
-                gu = gx * ux + gy * uy
-                tx = k_dst * cruise * (gx - gu * ux)
-                ty = k_dst * cruise * (gy - gu * uy)
-        # Fear of the nearest drone (the first on a tie); none without drones.
-        fx = fy = ox = oy = fear = 0.0
-        if n_drones > 0:
-            near = 0
-            rx = xi - drones[0, 0]
-            ry = yi - drones[0, 1]
-            dd2 = rx * rx + ry * ry
-            for q in range(1, n_drones):
-                qx = xi - drones[q, 0]
-                qy = yi - drones[q, 1]
-                q2 = qx * qx + qy * qy
-                if q2 < dd2:
-                    near, rx, ry, dd2 = q, qx, qy, q2
-            d = math.sqrt(dd2)
-            if d < r_alarm and d > _TINY:
-                fear = bump(d / r_alarm, r_dodge / r_alarm)
-                fx = a_flee * fear * rx / d
-                fy = a_flee * fear * ry / d
-                if d < r_dodge:
-                    ex = drone_vel[near, 0]
-                    ey = drone_vel[near, 1]
-                    if relative:
-                        ex -= vxi
-                        ey -= vyi
-                    e2 = ex * ex + ey * ey
-                    lam = DODGE_LAMBDA_MAX * e2 / (e2 + DODGE_SPEED_SCALE * DODGE_SPEED_SCALE)
-                    along = (rx * ex + ry * ey) / e2 if e2 > 0.0 else 0.0
-                    nx = rx - lam * along * ex
-                    ny = ry - lam * along * ey
-                    nn = math.sqrt(nx * nx + ny * ny)
-                    if nn > _TINY:
-                        m = a_dodge * bump(d / r_dodge, BUMP_PLATEAU) / nn
-                        ox = m * nx
-                        oy = m * ny
-        budget = a_max
-        ax, ay, used = _grant(sx, sy, budget)
-        budget -= used
-        gx_, gy_, used = _grant(ox, oy, budget)
-        ax += gx_
-        ay += gy_
-        budget -= used
-        gx_, gy_, used = _grant(fx, fy, budget)
-        ax += gx_
-        ay += gy_
-        budget -= used
-        gx_, gy_, used = _grant(alx, aly, budget)
-        ax += gx_
-        ay += gy_
-        budget -= used
-        gx_, gy_, used = _grant(cx, cy, budget)
-        ax += gx_
-        ay += gy_
-        budget -= used
-        gx_, gy_, used = _grant(tx, ty, budget)
-        ax += gx_
-        ay += gy_
+        speed, ux, uy = _heading(vxi, vyi)
+        tx, ty = _destination_request(i, informed, destination, xi, yi, ux, uy, k_dst, cruise)
+        fx, fy, ox, oy, fear = _fear_requests(
+            xi, yi, vxi, vyi, drones, drone_vel, r_alarm, r_dodge, a_flee, a_dodge, relative
+        )
+        ax, ay = _allocate(sx, sy, ox, oy, fx, fy, alx, aly, cx, cy, tx, ty, a_max)
         preferred = cruise + (burst - cruise) * fear
         out[i, 0] = ax + k_v * (preferred - speed) * ux
         out[i, 1] = ay + k_v * (preferred - speed) * uy
 
 
-# Not cached: numba's on-disk cache cannot tell one force function argument from another.
-@numba.njit
-def verlet_heun_substep(x, v, a, v_pred, n, h, force, ctx):
+@compiled_uncached
+def verlet_heun_substep(
+    x: np.ndarray,
+    v: np.ndarray,
+    a: np.ndarray,
+    v_pred: np.ndarray,
+    n: int,
+    h: float,
+    force: Force,
+    ctx: ForceContext,
+) -> None:
     """One substep of velocity Verlet with a Heun-predicted velocity, in place.
 
     ``a`` holds force(x, v~) from the previous substep on entry and the new one on return (first
@@ -330,8 +429,10 @@ def verlet_heun_substep(x, v, a, v_pred, n, h, force, ctx):
             v[i, c] += half * a[i, c]
 
 
-@numba.njit
-def integrate(x, v, h, steps, force, ctx):
+@compiled_uncached
+def integrate(
+    x: np.ndarray, v: np.ndarray, h: float, steps: int, force: Force, ctx: ForceContext
+) -> None:
     """``steps`` substeps of ``verlet_heun_substep`` from a fresh force evaluation, in place."""
     n = x.shape[0]
     a = np.empty_like(x)
@@ -341,8 +442,10 @@ def integrate(x, v, h, steps, force, ctx):
         verlet_heun_substep(x, v, a, v_pred, n, h, force, ctx)
 
 
-@numba.njit(cache=True)
-def _drone_substep(drones, drone_vel, action, limits, h):
+@compiled
+def _drone_substep(
+    drones: np.ndarray, drone_vel: np.ndarray, action: np.ndarray, limits: np.ndarray, h: float
+) -> None:
     """Every drone: its held command over one substep, within its speed limit.
 
     The autopilot never flies past its speed limit: the new velocity v' = v + h a is scaled back
@@ -370,8 +473,16 @@ def _drone_substep(drones, drone_vel, action, limits, h):
         drone_vel[q, 1] = nvy
 
 
-@numba.njit(cache=True)
-def _noise_and_clamp(v, n, prm, noise, row, sqrt_h, has_noise):
+@compiled
+def _noise_and_clamp(
+    v: np.ndarray,
+    n: int,
+    prm: np.ndarray,
+    noise: np.ndarray,
+    row: int,
+    sqrt_h: float,
+    has_noise: bool,
+) -> int:
     """Apply one substep's noise increment, then the airspeed safety net; count its activations."""
     sigma = prm[_C_NOISE] if has_noise else 0.0
     heading = prm[_C_NMODEL] == 0.0
@@ -406,29 +517,30 @@ def _noise_and_clamp(v, n, prm, noise, row, sqrt_h, has_noise):
     return clamped
 
 
-@numba.njit(cache=True)
+@compiled
 def _step_worlds(
-    bird_pos,
-    bird_vel,
-    pursuer_pos,
-    pursuer_vel,
-    count,
-    destination,
-    params,
-    pursuer_limits,
-    action,
-    noise,
-    noise_row,
-    dt,
-    substeps,
-    use_grid,
-    live,
-    accel,
-    v_pred,
-    index_work,
-    clamps,
-    force,
-):
+    bird_pos: np.ndarray,
+    bird_vel: np.ndarray,
+    pursuer_pos: np.ndarray,
+    pursuer_vel: np.ndarray,
+    count: np.ndarray,
+    destination: np.ndarray,
+    params: np.ndarray,
+    pursuer_limits: np.ndarray,
+    action: np.ndarray,
+    noise: np.ndarray,
+    noise_row: np.ndarray,
+    dt: float,
+    substeps: int,
+    use_grid: bool,
+    live: np.ndarray,
+    accel: np.ndarray,
+    v_pred: np.ndarray,
+    index_work: np.ndarray,
+    clamps: np.ndarray,
+    force: Force,
+) -> None:
+    """``step_worlds`` with the force function passed in (compiled once per force)."""
     n_worlds = bird_pos.shape[0]
     has_noise = noise.shape[1] > 0
     h = dt / substeps
@@ -510,7 +622,7 @@ def flock_context(
     drone_vel: np.ndarray,
     birds: int,
     use_grid: bool = False,
-) -> tuple:
+) -> ForceContext:
     """The ``ctx`` tuple ``flock_acceleration`` reads for one world, with fresh work space."""
     keys = np.zeros(max(birds, 1), dtype=np.int64)
     order = np.zeros(max(birds, 1), dtype=np.int64)
