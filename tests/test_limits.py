@@ -132,7 +132,7 @@ def test_dodge_radius_not_inside_alarm_radius() -> None:
 
 def test_flee_acceleration_must_stay_below_the_budget() -> None:
     _refused(
-        lambda: FlockParams(flee_accel=8.0),
+        lambda: FlockParams(flee_accel=12.0),  # the default budget max_accel is 12 m/s^2
         "FlockParams",
         "flee_accel",
         "flee_accel < max_accel",

@@ -57,6 +57,7 @@ arithmetic, so they agree to rounding.
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Callable
 
@@ -400,46 +401,57 @@ def flock_acceleration(
         out[i, 1] = ay + k_v * (preferred - speed) * uy
 
 
-@compiled_uncached
-def verlet_heun_substep(
-    x: np.ndarray,
-    v: np.ndarray,
-    a: np.ndarray,
-    v_pred: np.ndarray,
-    n: int,
-    h: float,
-    force: Force,
-    ctx: ForceContext,
-) -> None:
-    """One substep of velocity Verlet with a Heun-predicted velocity, in place.
+# One substep of the integrator for a given force function: x, v, a, v_pred, n, h, ctx.
+Substep = Callable[[np.ndarray, np.ndarray, np.ndarray, np.ndarray, int, float, ForceContext], None]
+
+
+@functools.cache
+def verlet_heun_substep(force: Force) -> Substep:
+    """The integrator's substep for ``force``, compiled for it: velocity Verlet with a
+    Heun-predicted velocity, in place.
 
     ``a`` holds force(x, v~) from the previous substep on entry and the new one on return (first
     same as last). ``force(x, v, n, ctx, out)`` writes accelerations; ``v_pred`` is work space.
+    The force is bound at compile time, not passed in, so the kernel that calls the flock's
+    substep can be cached on disk (numba cannot cache a function taking another as argument).
     """
-    half = 0.5 * h
-    for i in range(n):
-        for c in range(2):
-            v_half = v[i, c] + half * a[i, c]
-            x[i, c] += h * v_half
-            v_pred[i, c] = v_half + half * a[i, c]
-            v[i, c] = v_half
-    force(x, v_pred, n, ctx, a)
-    for i in range(n):
-        for c in range(2):
-            v[i, c] += half * a[i, c]
+
+    @compiled_uncached
+    def substep(
+        x: np.ndarray,
+        v: np.ndarray,
+        a: np.ndarray,
+        v_pred: np.ndarray,
+        n: int,
+        h: float,
+        ctx: ForceContext,
+    ) -> None:
+        half = 0.5 * h
+        for i in range(n):
+            for c in range(2):
+                v_half = v[i, c] + half * a[i, c]
+                x[i, c] += h * v_half
+                v_pred[i, c] = v_half + half * a[i, c]
+                v[i, c] = v_half
+        force(x, v_pred, n, ctx, a)
+        for i in range(n):
+            for c in range(2):
+                v[i, c] += half * a[i, c]
+
+    return substep
 
 
-@compiled_uncached
 def integrate(
     x: np.ndarray, v: np.ndarray, h: float, steps: int, force: Force, ctx: ForceContext
 ) -> None:
-    """``steps`` substeps of ``verlet_heun_substep`` from a fresh force evaluation, in place."""
+    """``steps`` substeps of the integrator under ``force`` from a fresh evaluation, in place."""
     n = x.shape[0]
     a = np.empty_like(x)
     v_pred = np.empty_like(v)
     force(x, v, n, ctx, a)
+    substep = verlet_heun_substep(force)
     for _ in range(steps):
-        verlet_heun_substep(x, v, a, v_pred, n, h, force, ctx)
+        substep(x, v, a, v_pred, n, h, ctx)
 
 
 @compiled
@@ -517,6 +529,9 @@ def _noise_and_clamp(
     return clamped
 
 
+_flock_substep = verlet_heun_substep(flock_acceleration)
+
+
 @compiled
 def _step_worlds(
     bird_pos: np.ndarray,
@@ -538,9 +553,8 @@ def _step_worlds(
     v_pred: np.ndarray,
     index_work: np.ndarray,
     clamps: np.ndarray,
-    force: Force,
 ) -> None:
-    """``step_worlds`` with the force function passed in (compiled once per force)."""
+    """The compiled body of ``step_worlds``."""
     n_worlds = bird_pos.shape[0]
     has_noise = noise.shape[1] > 0
     h = dt / substeps
@@ -560,11 +574,11 @@ def _step_worlds(
             index_work[0],
             index_work[1],
         )
-        force(pos, vel, n, ctx, accel)
+        flock_acceleration(pos, vel, n, ctx, accel)
         for k in range(substeps):
             # The drones move first: the birds' force evaluation sees them at the substep's end.
             _drone_substep(pursuer_pos[b], pursuer_vel[b], action[b], pursuer_limits[b], h)
-            verlet_heun_substep(pos, vel, accel, v_pred, n, h, force, ctx)
+            _flock_substep(pos, vel, accel, v_pred, n, h, ctx)
             row = noise_row[b] + k
             clamps[b] += _noise_and_clamp(vel, n, params[b], noise[b], row, sqrt_h, has_noise)
 
@@ -611,7 +625,6 @@ def step_worlds(
         v_pred,
         index_work,
         clamps,
-        flock_acceleration,
     )
 
 
