@@ -388,7 +388,7 @@ def check_vicsek_aligned(settings: VerifySettings) -> CheckResult:
     return judged(
         "vicsek-aligned",
         error,
-        "|1 - v_a| <= 1e-12",
+        "abs(1 - v_a) <= 1e-12",
         error <= 1e-12,
         "Vicsek et al. 1995: v_a = 1 for a fully aligned flock",
         "64 flocks of 50 birds, one heading each, speeds 1-20 m/s",
