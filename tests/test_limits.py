@@ -108,13 +108,13 @@ def test_cruise_speed_outside_speed_range() -> None:
         lambda: FlockParams(cruise_speed=25.0),
         "FlockParams",
         "cruise_speed",
-        "min_speed <= cruise_speed <= max_speed (now 7, 25, 20 m/s)",
+        "min_speed <= cruise_speed <= max_speed (now 3.75, 25, 23.4 m/s)",
     )
 
 
 def test_initial_speed_outside_speed_range() -> None:
     _refused(
-        lambda: FlockParams(speed=5.0),
+        lambda: FlockParams(speed=3.0),
         "FlockParams",
         "speed",
         "min_speed <= speed <= max_speed",
@@ -130,12 +130,12 @@ def test_dodge_radius_not_inside_alarm_radius() -> None:
     )
 
 
-def test_alignment_radius_beyond_tabulated_reach() -> None:
+def test_flee_acceleration_must_stay_below_the_budget() -> None:
     _refused(
-        lambda: FlockParams(alignment_radius=60.0),
+        lambda: FlockParams(flee_accel=12.0),  # the default budget max_accel is 12 m/s^2
         "FlockParams",
-        "alignment_radius",
-        "alignment_radius <= 10 * alignment_sigma",
+        "flee_accel",
+        "flee_accel < max_accel",
     )
 
 
@@ -170,10 +170,10 @@ def test_flock_start_inside_protected_zone() -> None:
 
 def test_randomised_cruise_speed_outside_flock_speeds() -> None:
     _refused(
-        lambda: Scenario(name="s", randomise=Randomisation(cruise_speed=(5.0, 15.0))),
+        lambda: Scenario(name="s", randomise=Randomisation(cruise_speed=(2.0, 15.0))),
         "Scenario",
         "randomise.cruise_speed",
-        "must lie within [flock.min_speed, flock.max_speed] = [7, 20] m/s",
+        "must lie within [flock.min_speed, flock.max_speed] = [3.75, 23.4] m/s",
     )
 
 

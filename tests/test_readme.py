@@ -40,3 +40,30 @@ def test_examples_use_registered_ids(heading: str) -> None:
     for block in _python_blocks(heading):
         for env_id in re.findall(r'"(flockward/[A-Za-z]+-v\d+)"', block):
             assert env_id in gym.registry
+
+
+def _table_rows(text: str, header: str) -> list[str]:
+    """The rows of the first Markdown table whose header line starts with ``header``."""
+    lines = text.splitlines()
+    start = next(i for i, line in enumerate(lines) if line.startswith(header))
+    rows = []
+    for line in lines[start:]:
+        if not line.startswith("|"):
+            break
+        rows.append(line)
+    return rows
+
+
+@pytest.mark.parametrize(
+    ("committed", "header"),
+    [
+        ("results/standard/leaderboard.md", "| rank | controller"),
+        ("results/verify/report.md", "| check | measured"),
+    ],
+)
+def test_readme_tables_are_the_committed_ones(committed: str, header: str) -> None:
+    # README figures come from committed results: each table is copied whole, never typed.
+    source = README.parent / committed
+    assert _table_rows(README.read_text(encoding="utf-8"), header) == _table_rows(
+        source.read_text(encoding="utf-8"), header
+    )

@@ -40,9 +40,9 @@ def test_scenarios_used_here_are_shipped():
 
 @pytest.mark.parametrize("name", ["headon", "pigeons-cluster", "crosswind-mix"])
 def test_airspeeds_stay_within_limits(name):
-    # Birds in flapping flight keep min_speed <= |v| <= max_speed (the model's airspeed clamp);
-    # the drone keeps |v| <= its max_speed. Random commands; in two of the four worlds the pursuer
-    # starts inside the flock, so birds flee at full speed and brake hard.
+    # Birds keep min_speed <= |v| <= max_speed (the airspeed safety net behind the smooth speed
+    # regulation); the drone keeps |v| <= its max_speed. Random commands; in two of the four
+    # worlds the pursuer starts inside the flock, so birds flee toward burst speed.
     scenario = load_scenario(name)
     world = make_world(scenario, [11, 12, 13, 14])
     pursuer_into_flock(world, 0)
@@ -51,17 +51,17 @@ def test_airspeeds_stay_within_limits(name):
     hi = np.array([f.max_speed for f in world.flocks])[:, None]
     slots = np.arange(world.max_birds)[None, :] < world.state.count[:, None]
     rng = np.random.default_rng(0)
-    at_max = at_min = 0
+    fastest = 0.0
     for _ in range(300):
         world.step(rng.uniform(-1.5, 1.5, (world.n_worlds, 1, 2)))
         speed = np.linalg.norm(world.state.bird_vel, axis=-1)
         assert np.all(speed[slots] >= np.broadcast_to(lo, speed.shape)[slots] * (1 - 1e-12))
         assert np.all(speed[slots] <= np.broadcast_to(hi, speed.shape)[slots] * (1 + 1e-12))
-        at_max += np.sum(np.abs(speed - hi)[slots] < 1e-9)
-        at_min += np.sum(np.abs(speed - lo)[slots] < 1e-9)
+        fastest = max(fastest, float(speed[slots].max()))
         p_speed = np.linalg.norm(world.state.pursuer_vel, axis=-1)
         assert np.all(p_speed <= world.pursuer_limits[..., 0] * (1 + 1e-12))
-    assert at_max > 0 and at_min > 0  # both clamps were exercised, not just never reached
+    # Fear was exercised: some bird flew faster than cruise, toward its burst speed.
+    assert fastest > max(f.cruise_speed for f in world.flocks) * 1.05
     assert np.all(np.isfinite(world.state.bird_pos))
 
 

@@ -55,10 +55,10 @@ __all__ = [
 # sha256 of each shipped suite's resolved episodes, by (name, version). A changed suite needs a
 # new version and a new row here (tests/test_suites.py prints the value to record).
 KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
-    ("smoke", 1): "8a98670a2b6b32da6b48c784f391a15920e70b9425016569f3d5b53cca71240e",
-    ("standard", 1): "20092ffe0d3fd0acc386a195914e183865fd3d11bdd8bfcfa1a60e2470114dd7",
-    ("stress", 1): "6f0a9f2508b2d909ddfa6a2e463a729bc276ad5b04a6e8add73511fde9f40cb1",
-    ("validation", 1): "7481de101df4641372c0b913f5b910d7dcc97e12ea655799409a11b68288b19a",
+    ("smoke", 2): "a361c1321ae5fad57349d2a50ad6852a7f9743fa1068d8d6ad00ad93ef5ecaea",
+    ("standard", 2): "dd498d4ec615d126f1465a0a9ea0a6e5d8157d8faa6f02c93671fe49afeee81b",
+    ("stress", 2): "7ce62d900038c2d36ff5f072ca66467d549e71423fe9e6ccdf862b405e186d01",
+    ("validation", 2): "4ff2e9f7b05e649087da87186d963ddb3c4f34eb48f092afdddae5fe0570908b",
 }
 
 _MAX_SEED = 2**31 - 1

@@ -145,7 +145,12 @@ def run_checks(
         raise ValueError(f"unknown check(s) {', '.join(unknown)}; allowed: {', '.join(checks)}")
     results = []
     for name in chosen:
-        result = checks[name](settings)
+        try:
+            result = checks[name](settings)
+        except Exception as error:  # a check that cannot run fails, and says why, in its row
+            result = CheckResult(
+                name, None, "runs", FAIL, "-", f"raised {type(error).__name__}: {error}"
+            )
         results.append(result)
         if on_result is not None:
             on_result(result)

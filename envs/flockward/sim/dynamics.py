@@ -1,307 +1,469 @@
-"""The step kernel: birds and drones of B independent worlds advanced by one time step.
+"""The step kernel: birds and drones of B independent worlds advanced by one control step.
 
-Written once, batch-first, compiled with numba. Birds are double integrators steered by the sum of
-published terms:
+Written once, batch-first, compiled with numba. Each control step of length ``dt`` is split into
+``substeps`` physics substeps of length h = dt / substeps.
 
-- separation: inverse-distance repulsion from flockmates closer than ``separation_radius``
-  (Reynolds 1987, SIGGRAPH);
-- alignment: Cucker-Smale coupling (K/N) * sum_j psi(r_ij) (v_j - v_i), with
-  psi(r) = (1 + r^2/sigma^2)^-beta, among flockmates within ``alignment_radius``
-  (Cucker & Smale 2007, IEEE TAC);
-- cohesion: toward the centroid of flockmates within ``cohesion_radius`` (Reynolds 1987);
-- destination: steering toward the cruise velocity aimed at the flock's roost, a normalised form of
-  the navigational feedback of Olfati-Saber 2006 (IEEE TAC);
-- fear of the nearest drone (pursuer): radial flight inside ``alarm_radius`` and, inside the
-  smaller ``dodge_radius``, a sideways dodge perpendicular to that drone's line of approach;
-- optional Gaussian acceleration noise.
+Birds are double integrators. Each bird's acceleration is a set of steering requests, every one
+continuous in distance (the cut-offs are the C1 bump rho_h of Olfati-Saber 2006, IEEE TAC, with
+the polynomial 1 - 3t^2 + 2t^3 on its ramp in place of the cosine: same end values and zero end
+slopes, no libm call in the pair loop):
 
-The summed acceleration is capped at ``max_accel`` and the airspeed is clamped to
-[min_speed, max_speed] (birds in flapping flight cannot hover).
+- separation: k_sep ((r_sep/d) - 1)^2 rho_0(d/r_sep) away from each neighbour, d floored at
+  ``SEPARATION_FLOOR`` r_sep: zero with zero slope at r_sep, growing like 1/d^2 near contact, so
+  with first call on the budget it acts as a hard core;
+- alignment, Motsch & Tadmor 2011 (J. Stat. Phys.) by default: k_ali sum_j w_ij (v_j - v_i) /
+  (1 + sum_j w_ij) with w_ij = rho(d/r_ali) and the bird itself as the 1, so the rate depends on
+  local density, not on N; or Cucker & Smale 2007 (IEEE TAC): (k_ali/N) sum_j psi(d) w_ij
+  (v_j - v_i), psi = (1 + d^2/sigma^2)^-beta. A large ``alignment_radius`` makes it global;
+- cohesion: k_coh sum_j w_ij (x_j - x_i) / (1 + sum_j w_ij), a locally normalised centroid pull;
+- destination: only the informed share of the flock (Couzin et al. 2005, Nature) turns toward
+  the roost, k_dst c (g - (g.u) u) with g, u the unit vectors to the roost and along the bird's
+  velocity; it turns the bird and leaves its speed alone;
+- fear of the nearest drone: flight A_flee f(d) away from it, f = rho_{r_dodge/r_alarm}(d/r_alarm)
+  (flat inside ``dodge_radius``, zero at ``alarm_radius``), and inside ``dodge_radius`` a dodge
+  A_dodge rho(d/r_dodge) along n = unit(r - lam (r.e) e): r the drone-to-bird offset, e the
+  drone's line of approach (its velocity relative to the bird, or over the ground), lam grows
+  with the approach speed from 0 to ``DODGE_LAMBDA_MAX``. Each bird dodges to its own side of the
+  drone's path; a hovering drone sends each bird along its own bearing.
 
-Integration: each step holds the acceleration constant (zero-order hold) and applies the exact
-discretisation of the double integrator, v' = v + a dt and x' = x + (v + v') dt / 2, which equals
-x + v dt + a dt^2 / 2 and so is exact for constant acceleration, unlike explicit or semi-implicit
-Euler, at the cost of one force evaluation per step. After the speed clamp the position still
-advances by the mean of the old and the clamped new velocity. Each drone uses the same scheme, with
-its own command and limits.
+The requests share the steering budget ``max_accel`` in priority order (separation, dodge, flee,
+alignment, cohesion, destination; Reynolds 1987 allocates by priority too). Each request of
+magnitude m is granted m / (1 + (m/B)^p)^(1/p), p = ``BUDGET_POWER``, along its own direction,
+and B shrinks by the granted magnitude: small requests pass almost unchanged, large ones saturate
+at what is left, and the result is smooth in the requests. Speed is regulated outside the budget,
+k_v (v_pref - s) along the velocity, v_pref rising from cruise to burst speed with fear. The hard
+airspeed clamp [min_speed, max_speed] is a counted safety net, not part of the model.
 
-No drone (P = 0): nothing to fear, the flock flies unherded.
+Noise: heading noise (rotation of v by sigma sqrt(h) xi per substep, rotational diffusion in
+rad/s^0.5) or white-noise acceleration (v += sigma sqrt(h) xi, Euler-Maruyama, m/s^1.5). Either
+way the variance it injects per second does not depend on h.
 
-Several drones: a bird fears only the nearest one (the lowest index on a tie), not the sum of all.
-A bird reacts to the most pressing threat, and the fear law's gains describe one threat: summing
-would make two drones at the same spot twice as frightening as one. With one drone this is the
-single-drone law, operation for operation. Birds see every drone where it was at the start of the
-step; the drones move after the birds.
+Integration (``verlet_heun_substep``): velocity Verlet with a Heun-predicted velocity for the
+velocity-dependent terms. For forces of position only it is velocity Verlet (symplectic, second
+order); with velocity-dependent forces its velocity update is Heun's method, second order too.
+One force evaluation per substep: the acceleration at the end of a substep is reused at the
+start of the next (first same as last); each control step starts from a fresh evaluation, so a
+state written between steps is honoured exactly.
 
-Neighbour search: all pairs (each pair visited once, contributions applied to both birds) for small
-flocks; for large flocks a cell grid with cell size equal to the interaction cut-off (birds sorted
-by cell key, neighbouring cells found by binary search, so memory stays O(N) however far birds
-spread). Both traversals run the same pair arithmetic, so they agree to rounding.
+Drones: the commanded acceleration held over the control step, integrated exactly (velocity
+Verlet) and kept within the autopilot's speed limit. A bird fears only the nearest drone (the
+lowest index on a tie); a world with no drone has no fear at all.
+
+Neighbour search: all pairs for small flocks; for large flocks a cell grid with cell size equal
+to the interaction cut-off (birds sorted by cell key, neighbouring cells found by binary search,
+memory O(N)). Both visit each bird's neighbours as ordered pairs and run the same pair
+arithmetic, so they agree to rounding.
 """
 
 from __future__ import annotations
 
+import functools
 import math
+from collections.abc import Callable
 
 import numpy as np
 
-from flockward.sim.jit import compiled, compiled_fastmath
+from flockward.sim.jit import compiled, compiled_fastmath, compiled_inline, compiled_uncached
 from flockward.sim.types import K
+
+# One world's surroundings as flock_acceleration reads them: parameter row, destination (2,),
+# drone positions (P, 2), drone velocities (P, 2), use_grid, cell keys (N,), visit order (N,).
+ForceContext = tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, bool, np.ndarray, np.ndarray]
+# force(x, v, n, ctx, out): every bird's acceleration into out.
+Force = Callable[[np.ndarray, np.ndarray, int, ForceContext, np.ndarray], None]
 
 # Above this many birds the cell grid beats all pairs (measured by `flockward bench`).
 GRID_MIN_BIRDS = 350
 NEIGHBOUR_SEARCH = ("auto", "all-pairs", "grid")
 
-_SEP_MIN_D2 = 1e-2  # m^2: separation distance floor, so very close birds push apart finitely
+# Model constants (modelling choices, see the module docstring).
+SEPARATION_FLOOR = 0.05  # of r_sep: closer pairs push apart as if at this distance
+BUMP_PLATEAU = 0.3  # alignment, cohesion and dodge weights are 1 below this share of the radius
+DODGE_LAMBDA_MAX = 0.9  # < 1 keeps the dodge direction defined on the drone's line of approach
+DODGE_SPEED_SCALE = 2.0  # m/s: approach speed at which the dodge is half lateral
+BUDGET_POWER = 4.0  # sharpness of the smooth budget allocation (only 4 is compiled: two sqrt)
+
 _TINY = 1e-12
 # Exact IEEE semantics except fused multiply-add and fast transcendental approximations: the same
 # compiled code runs for single and vector envs, so results stay bit-identical between them.
-_FAST: set[str] = {"contract", "afn"}
+_FAST = {"contract", "afn"}
 
 _C_CRUISE = K["cruise_speed"]
+_C_BURST = K["burst_speed"]
 _C_VMIN = K["min_speed"]
 _C_VMAX = K["max_speed"]
 _C_AMAX = K["max_accel"]
+_C_KV = K["speed_gain"]
 _C_RSEP = K["separation_radius"]
 _C_KSEP = K["separation_gain"]
+_C_AMODEL = K["alignment_model"]
 _C_RALI = K["alignment_radius"]
 _C_KALI = K["alignment_gain"]
 _C_SIG = K["alignment_sigma"]
+_C_BETA = K["alignment_beta"]
 _C_RCOH = K["cohesion_radius"]
 _C_KCOH = K["cohesion_gain"]
 _C_KDST = K["destination_gain"]
+_C_INF = K["informed_fraction"]
 _C_RALM = K["alarm_radius"]
-_C_KFLE = K["flee_gain"]
+_C_AFLEE = K["flee_accel"]
 _C_RDGE = K["dodge_radius"]
-_C_KDGE = K["dodge_gain"]
+_C_ADGE = K["dodge_accel"]
+_C_DFRAME = K["dodge_frame"]
+_C_NMODEL = K["noise_model"]
 _C_NOISE = K["noise_std"]
 
-# Per-world work space: bird coordinates copied to struct-of-arrays rows (contiguous loads in the
-# pair loop) and, in a separate array so the compiler sees no aliasing, the pair accumulators.
-_X, _Y, _VX, _VY = range(4)
-_SX, _SY, _AX, _AY, _CX, _CY, _CN = range(7)
 
-# The Cucker-Smale weight (1 + u)^-beta, u = r^2 / sigma^2, is read from a table over
-# z = u / (1 + u) in [0, 1), where it equals (1 - z)^beta: one division and a linear interpolation
-# per pair instead of a libm pow (about 30 ns, five times the rest of the pair's work).
-ALIGN_TABLE_SIZE = 2048
+@compiled_inline
+def bump(z: float, h: float) -> float:
+    """C1 cut-off: 1 on [0, h), 1 - 3t^2 + 2t^3 with t = (z - h)/(1 - h) on [h, 1), 0 beyond."""
+    if z < h:
+        return 1.0
+    if z >= 1.0:
+        return 0.0
+    t = (z - h) / (1.0 - h)
+    return 1.0 - t * t * (3.0 - 2.0 * t)
 
 
-def alignment_table(beta: float) -> np.ndarray:
-    """Tabulated Cucker-Smale weight (1 - z)^beta on a uniform grid of z, padded by one entry."""
-    z = np.linspace(0.0, 1.0, ALIGN_TABLE_SIZE + 1)
-    table = np.empty(ALIGN_TABLE_SIZE + 2)
-    table[:-1] = (1.0 - z) ** beta
-    table[-1] = 0.0
-    return table
+@compiled_inline
+def _grant(qx: float, qy: float, budget: float) -> tuple[float, float, float]:
+    """Share of the remaining budget for one request: its vector and granted magnitude."""
+    m = math.sqrt(qx * qx + qy * qy)
+    if m == 0.0 or budget <= 0.0:
+        return 0.0, 0.0, 0.0
+    r = m / budget
+    r2 = r * r
+    f = 1.0 / math.sqrt(math.sqrt(1.0 + r2 * r2))
+    return qx * f, qy * f, m * f
 
 
 @compiled
-def _cell_keys(w: np.ndarray, n: int, cell: float, keys: np.ndarray) -> None:
-    """Each bird's grid-cell key into ``keys``: cell column in the high 32 bits, row in the low."""
+def is_informed(i: int, fraction: float) -> bool:
+    """Whether bird ``i`` knows the roost: ``fraction`` of the birds, spread evenly by index."""
+    return math.floor((i + 1) * fraction) > math.floor(i * fraction)
+
+
+@compiled
+def _cell_keys(x: np.ndarray, n: int, cell: float, keys: np.ndarray) -> None:
+    """Each bird's cell of side ``cell``, packed into one int64 (x cell high, y cell low)."""
     for i in range(n):
-        cx = np.int64(math.floor(w[_X, i] / cell)) + 2**30
-        cy = np.int64(math.floor(w[_Y, i] / cell)) + 2**30
+        cx = np.int64(math.floor(x[i, 0] / cell)) + 2**30
+        cy = np.int64(math.floor(x[i, 1] / cell)) + 2**30
         keys[i] = (cx << 32) | cy
 
 
-@compiled_fastmath(_FAST)
-def _accumulate(
-    w: np.ndarray,  # (4, N) bird coordinates, struct of arrays
-    acc: np.ndarray,  # (7, N) pair sums, zeroed by the caller
-    n: int,
-    prm: np.ndarray,  # (len(KERNEL_FIELDS),) the world's bird parameters
-    table: np.ndarray,  # (ALIGN_TABLE_SIZE + 2,) alignment_table(beta)
-    use_grid: bool,
-    keys: np.ndarray,  # (N,) int64 work space
-    order: np.ndarray,  # (N,) int64 work space
-) -> None:
-    """Sum every neighbour pair's separation, alignment and cohesion terms into ``acc``.
+@compiled_inline
+def _fear_requests(
+    xi: float,
+    yi: float,
+    vxi: float,
+    vyi: float,
+    drones: np.ndarray,
+    drone_vel: np.ndarray,
+    r_alarm: float,
+    r_dodge: float,
+    a_flee: float,
+    a_dodge: float,
+    relative: bool,
+) -> tuple[float, float, float, float, float]:
+    """One bird's flight and dodge requests from the nearest drone (the first on a tie), and its
+    fear level in [0, 1]; all zero without drones."""
+    fx = fy = ox = oy = fear = 0.0
+    n_drones = drones.shape[0]
+    if n_drones == 0:
+        return fx, fy, ox, oy, fear
+    near = 0
+    rx = xi - drones[0, 0]
+    ry = yi - drones[0, 1]
+    dd2 = rx * rx + ry * ry
+    for q in range(1, n_drones):
+        qx = xi - drones[q, 0]
+        qy = yi - drones[q, 1]
+        q2 = qx * qx + qy * qy
+        if q2 < dd2:
+            near, rx, ry, dd2 = q, qx, qy, q2
+    d = math.sqrt(dd2)
+    if d >= r_alarm or d <= _TINY:
+        return fx, fy, ox, oy, fear
+    fear = bump(d / r_alarm, r_dodge / r_alarm)
+    fx = a_flee * fear * rx / d
+    fy = a_flee * fear * ry / d
+    if d < r_dodge:
+        ex = drone_vel[near, 0]
+        ey = drone_vel[near, 1]
+        if relative:
+            ex -= vxi
+            ey -= vyi
+        e2 = ex * ex + ey * ey
+        lam = DODGE_LAMBDA_MAX * e2 / (e2 + DODGE_SPEED_SCALE * DODGE_SPEED_SCALE)
+        along = (rx * ex + ry * ey) / e2 if e2 > 0.0 else 0.0
+        nx = rx - lam * along * ex
+        ny = ry - lam * along * ey
+        nn = math.sqrt(nx * nx + ny * ny)
+        if nn > _TINY:
+            m = a_dodge * bump(d / r_dodge, BUMP_PLATEAU) / nn
+            ox = m * nx
+            oy = m * ny
+    return fx, fy, ox, oy, fear
 
-    Each unordered pair within the cut-off is visited once (j > i) and applied to both birds: all
-    terms are antisymmetric in (i, j) except the neighbour count. Candidates are all later birds
-    (all pairs) or the birds of the 3 x 3 surrounding grid cells (grid); the pair arithmetic is
-    the same code for both.
-    """
-    r_sep2 = prm[_C_RSEP] ** 2
-    r_ali2 = prm[_C_RALI] ** 2
-    r_coh2 = prm[_C_RCOH] ** 2
-    cut2 = max(r_sep2, r_ali2, r_coh2)
-    inv_sig2 = 1.0 / prm[_C_SIG] ** 2
-    X = w[_X]
-    Y = w[_Y]
-    VX = w[_VX]
-    VY = w[_VY]
+
+@compiled_inline
+def _allocate(
+    sx: float,
+    sy: float,
+    ox: float,
+    oy: float,
+    fx: float,
+    fy: float,
+    alx: float,
+    aly: float,
+    cx: float,
+    cy: float,
+    tx: float,
+    ty: float,
+    a_max: float,
+) -> tuple[float, float]:
+    """The steering requests granted in priority order (separation, dodge, flight, alignment,
+    cohesion, destination) from the budget ``a_max``; their sum."""
+    budget = a_max
+    ax, ay, used = _grant(sx, sy, budget)
+    budget -= used
+    gx, gy, used = _grant(ox, oy, budget)
+    ax += gx
+    ay += gy
+    budget -= used
+    gx, gy, used = _grant(fx, fy, budget)
+    ax += gx
+    ay += gy
+    budget -= used
+    gx, gy, used = _grant(alx, aly, budget)
+    ax += gx
+    ay += gy
+    budget -= used
+    gx, gy, used = _grant(cx, cy, budget)
+    ax += gx
+    ay += gy
+    budget -= used
+    gx, gy, used = _grant(tx, ty, budget)
+    return ax + gx, ay + gy
+
+
+@compiled_inline
+def _destination_request(
+    i: int,
+    informed: float,
+    destination: np.ndarray,
+    xi: float,
+    yi: float,
+    ux: float,
+    uy: float,
+    k_dst: float,
+    cruise: float,
+) -> tuple[float, float]:
+    """An informed bird's turn toward the roost, perpendicular to its velocity; zero for others."""
+    if not is_informed(i, informed):
+        return 0.0, 0.0
+    gx = destination[0] - xi
+    gy = destination[1] - yi
+    g = math.sqrt(gx * gx + gy * gy)
+    if g <= _TINY:
+        return 0.0, 0.0
+    gx /= g
+    gy /= g
+    gu = gx * ux + gy * uy
+    return k_dst * cruise * (gx - gu * ux), k_dst * cruise * (gy - gu * uy)
+
+
+@compiled_inline
+def _candidate_range(
+    use_grid: bool, keys: np.ndarray, sorted_keys: np.ndarray, i: int, r: int, n: int
+) -> tuple[int, int]:
+    """The slice of the visit order holding bird ``i``'s candidate neighbours in column r - 1 of
+    its 3 x 3 cells (the grid), or every bird (all pairs)."""
+    if not use_grid:
+        return 0, n
+    kx = (keys[i] >> 32) + r - 1
+    ky = keys[i] & 0xFFFFFFFF
+    start = np.searchsorted(sorted_keys, (kx << 32) | (ky - 1), "left")
+    stop = np.searchsorted(sorted_keys, (kx << 32) | (ky + 1), "right")
+    return start, stop
+
+
+@compiled
+def _visit_order(
+    x: np.ndarray, n: int, cut: float, use_grid: bool, keys: np.ndarray, order: np.ndarray
+) -> tuple[np.ndarray, int]:
+    """Fill ``order`` with the birds in visiting order: by cell key on the grid (returning the
+    sorted keys and 3 column ranges per bird), else by index (no keys, one range: all birds)."""
     if use_grid:
-        _cell_keys(w, n, math.sqrt(cut2), keys)
+        _cell_keys(x, n, cut, keys)
         order[:n] = np.argsort(keys[:n], kind="mergesort")
-        sorted_keys = keys[:n][order[:n]]
-    else:
-        for i in range(n):
-            order[i] = i
-        sorted_keys = keys[:0]
+        return keys[:n][order[:n]], 3
     for i in range(n):
-        xi = X[i]
-        yi = Y[i]
-        vxi = VX[i]
-        vyi = VY[i]
-        sxi = syi = axi = ayi = cxi = cyi = cni = 0.0
-        n_ranges = 3 if use_grid else 1
+        order[i] = i
+    return keys[:0], 1
+
+
+@compiled_inline
+def _heading(vx: float, vy: float) -> tuple[float, float, float]:
+    """Speed and unit velocity; a bird at rest heads east (any fixed choice keeps it defined)."""
+    speed = math.sqrt(vx * vx + vy * vy)
+    if speed > _TINY:
+        return speed, vx / speed, vy / speed
+    return speed, 1.0, 0.0
+
+
+@compiled_fastmath(_FAST)
+def flock_acceleration(
+    x: np.ndarray, v: np.ndarray, n: int, ctx: ForceContext, out: np.ndarray
+) -> None:
+    """Every bird's acceleration (N, 2) into ``out`` for positions ``x`` and velocities ``v``.
+
+    ``ctx`` = (params row, destination (2,), drone positions (P, 2), drone velocities (P, 2),
+    use_grid, cell keys (N,) int64, visit order (N,) int64): one world's surroundings.
+    """
+    prm, destination, drones, drone_vel, use_grid, keys, order = ctx
+    r_sep = prm[_C_RSEP]
+    r_ali = prm[_C_RALI]
+    r_coh = prm[_C_RCOH]
+    cut = max(r_sep, r_ali, r_coh)
+    cut2 = cut * cut
+    k_sep = prm[_C_KSEP]
+    cucker_smale = prm[_C_AMODEL] == 1.0
+    inv_sig2 = 1.0 / (prm[_C_SIG] * prm[_C_SIG])
+    beta = prm[_C_BETA]
+    d_floor = SEPARATION_FLOOR * r_sep
+    k_ali = prm[_C_KALI]
+    k_coh = prm[_C_KCOH]
+    k_dst = prm[_C_KDST]
+    informed = prm[_C_INF]
+    cruise = prm[_C_CRUISE]
+    burst = prm[_C_BURST]
+    k_v = prm[_C_KV]
+    a_max = prm[_C_AMAX]
+    r_alarm = prm[_C_RALM]
+    r_dodge = prm[_C_RDGE]
+    a_flee = prm[_C_AFLEE]
+    a_dodge = prm[_C_ADGE]
+    relative = prm[_C_DFRAME] == 0.0
+    sorted_keys, n_ranges = _visit_order(x, n, cut, use_grid, keys, order)
+    for i in range(n):
+        xi = x[i, 0]
+        yi = x[i, 1]
+        vxi = v[i, 0]
+        vyi = v[i, 1]
+        sx = sy = alx = aly = aw = cx = cy = cw = 0.0
         for r in range(n_ranges):
-            if use_grid:
-                kx = (keys[i] >> 32) + r - 1
-                ky = keys[i] & 0xFFFFFFFF
-                start = np.searchsorted(sorted_keys, (kx << 32) | (ky - 1), "left")
-                stop = np.searchsorted(sorted_keys, (kx << 32) | (ky + 1), "right")
-            else:
-                start = i + 1
-                stop = n
+            start, stop = _candidate_range(use_grid, keys, sorted_keys, i, r, n)
             for s in range(start, stop):
                 j = order[s]
-                if j <= i:
+                if j == i:
                     continue
-                dx = X[j] - xi
-                dy = Y[j] - yi
+                dx = x[j, 0] - xi
+                dy = x[j, 1] - yi
                 d2 = dx * dx + dy * dy
                 if d2 >= cut2:
                     continue
-                sx = sy = ax = ay = cx = cy = cn = 0.0
-                if d2 < r_sep2:
-                    inv = 1.0 / max(d2, _SEP_MIN_D2)
-                    sx = -dx * inv
-                    sy = -dy * inv
-                if d2 < r_ali2:
-                    u = d2 * inv_sig2
-                    t = ALIGN_TABLE_SIZE * u / (1.0 + u)
-                    k = int(t)
-                    wt = table[k] + (t - k) * (table[k + 1] - table[k])
-                    ax = wt * (VX[j] - vxi)
-                    ay = wt * (VY[j] - vyi)
-                if d2 < r_coh2:
-                    cx = dx
-                    cy = dy
-                    cn = 1.0
-                sxi += sx
-                syi += sy
-                axi += ax
-                ayi += ay
-                cxi += cx
-                cyi += cy
-                cni += cn
-                acc[_SX, j] -= sx
-                acc[_SY, j] -= sy
-                acc[_AX, j] -= ax
-                acc[_AY, j] -= ay
-                acc[_CX, j] -= cx
-                acc[_CY, j] -= cy
-                acc[_CN, j] += cn
-        acc[_SX, i] += sxi
-        acc[_SY, i] += syi
-        acc[_AX, i] += axi
-        acc[_AY, i] += ayi
-        acc[_CX, i] += cxi
-        acc[_CY, i] += cyi
-        acc[_CN, i] += cni
-
-
-@compiled
-def _advance(
-    x: float,
-    y: float,
-    vx: float,
-    vy: float,
-    ax: float,
-    ay: float,
-    vmin: float,
-    vmax: float,
-    dt: float,
-) -> tuple[float, float, float, float]:
-    """Exact zero-order-hold double-integrator step, then the airspeed clamp."""
-    nvx = vx + ax * dt
-    nvy = vy + ay * dt
-    speed = math.sqrt(nvx * nvx + nvy * nvy)
-    if speed > vmax:
-        nvx *= vmax / speed
-        nvy *= vmax / speed
-    elif speed < vmin:
-        if speed > _TINY:
-            nvx *= vmin / speed
-            nvy *= vmin / speed
+                d = math.sqrt(d2)
+                if d < r_sep:
+                    q = r_sep / max(d, d_floor) - 1.0
+                    f = k_sep * q * q * bump(d / r_sep, 0.0) / max(d, _TINY)
+                    sx -= f * dx
+                    sy -= f * dy
+                if d < r_ali:
+                    w = bump(d / r_ali, BUMP_PLATEAU)
+                    if cucker_smale:
+                        w *= math.pow(1.0 + d2 * inv_sig2, -beta)
+                    alx += w * (v[j, 0] - vxi)
+                    aly += w * (v[j, 1] - vyi)
+                    aw += w
+                if d < r_coh:
+                    w = bump(d / r_coh, BUMP_PLATEAU)
+                    cx += w * dx
+                    cy += w * dy
+                    cw += w
+        if cucker_smale:
+            scale = k_ali / n
         else:
-            # Stalled exactly: keep the old heading (or +x if there is none) at minimum speed.
-            old = math.sqrt(vx * vx + vy * vy)
-            if old > _TINY:
-                nvx = vx * vmin / old
-                nvy = vy * vmin / old
-            else:
-                nvx = vmin
-                nvy = 0.0
-    return x + 0.5 * (vx + nvx) * dt, y + 0.5 * (vy + nvy) * dt, nvx, nvy
+            scale = k_ali / (1.0 + aw)
+        alx *= scale
+        aly *= scale
+        cx *= k_coh / (1.0 + cw)
+        cy *= k_coh / (1.0 + cw)
+        speed, ux, uy = _heading(vxi, vyi)
+        tx, ty = _destination_request(i, informed, destination, xi, yi, ux, uy, k_dst, cruise)
+        fx, fy, ox, oy, fear = _fear_requests(
+            xi, yi, vxi, vyi, drones, drone_vel, r_alarm, r_dodge, a_flee, a_dodge, relative
+        )
+        ax, ay = _allocate(sx, sy, ox, oy, fx, fy, alx, aly, cx, cy, tx, ty, a_max)
+        preferred = cruise + (burst - cruise) * fear
+        out[i, 0] = ax + k_v * (preferred - speed) * ux
+        out[i, 1] = ay + k_v * (preferred - speed) * uy
 
 
-@compiled
-def _fear(
-    x: float,
-    y: float,
-    ax: float,
-    ay: float,
-    drones: np.ndarray,  # (P, 2) m, drone positions at the start of the step
-    drone_vel: np.ndarray,  # (P, 2) m/s
-    r_alarm: float,
-    r_dodge: float,
-    k_flee: float,
-    k_dodge: float,
-) -> tuple[float, float]:
-    """The bird's acceleration (ax, ay) plus its flight from the nearest drone."""
-    if drones.shape[0] == 0:
-        return ax, ay  # no drone in the world (the unherded control): nothing to fear
-    # The nearest drone (first on a tie) is the one this bird fears.
-    near = 0
-    rx = x - drones[0, 0]
-    ry = y - drones[0, 1]
-    d2 = rx * rx + ry * ry
-    for q in range(1, drones.shape[0]):
-        qx = x - drones[q, 0]
-        qy = y - drones[q, 1]
-        q2 = qx * qx + qy * qy
-        if q2 < d2:
-            near, rx, ry, d2 = q, qx, qy, q2
-    d = math.sqrt(d2)
-    if d < r_alarm and d > _TINY:
-        f = k_flee * (1.0 - d / r_alarm) / d
-        ax += f * rx
-        ay += f * ry
-        if d < r_dodge:
-            # Line of approach: the drone's velocity if it moves, else the bird-drone line.
-            pvx = drone_vel[near, 0]
-            pvy = drone_vel[near, 1]
-            pspeed = math.sqrt(pvx * pvx + pvy * pvy)
-            if pspeed > _TINY:
-                ux = pvx / pspeed
-                uy = pvy / pspeed
-            else:
-                ux = -rx / d
-                uy = -ry / d
-            # Perpendicular to the approach line, on the side the bird already is.
-            nx = -uy
-            ny = ux
-            side = 1.0 if rx * nx + ry * ny >= 0.0 else -1.0
-            f = k_dodge * (1.0 - d / r_dodge) * side
-            ax += f * nx
-            ay += f * ny
-    return ax, ay
+# One substep of the integrator for a given force function: x, v, a, v_pred, n, h, ctx.
+Substep = Callable[[np.ndarray, np.ndarray, np.ndarray, np.ndarray, int, float, ForceContext], None]
 
 
-@compiled
-def _move_drones(
-    drones: np.ndarray,  # (P, 2) m, updated in place
-    drone_vel: np.ndarray,  # (P, 2) m/s, updated in place
-    action: np.ndarray,  # (P, 2) normalised command per drone
-    limits: np.ndarray,  # (P, 2) per drone: max speed m/s, max acceleration m/s^2
-    dt: float,
+@functools.cache
+def verlet_heun_substep(force: Force) -> Substep:
+    """The integrator's substep for ``force``, compiled for it: velocity Verlet with a
+    Heun-predicted velocity, in place.
+
+    ``a`` holds force(x, v~) from the previous substep on entry and the new one on return (first
+    same as last). ``force(x, v, n, ctx, out)`` writes accelerations; ``v_pred`` is work space.
+    The force is bound at compile time, not passed in, so the kernel that calls the flock's
+    substep can be cached on disk (numba cannot cache a function taking another as argument).
+    """
+
+    @compiled_uncached
+    def substep(
+        x: np.ndarray,
+        v: np.ndarray,
+        a: np.ndarray,
+        v_pred: np.ndarray,
+        n: int,
+        h: float,
+        ctx: ForceContext,
+    ) -> None:
+        half = 0.5 * h
+        for i in range(n):
+            for c in range(2):
+                v_half = v[i, c] + half * a[i, c]
+                x[i, c] += h * v_half
+                v_pred[i, c] = v_half + half * a[i, c]
+                v[i, c] = v_half
+        force(x, v_pred, n, ctx, a)
+        for i in range(n):
+            for c in range(2):
+                v[i, c] += half * a[i, c]
+
+    return substep
+
+
+def integrate(
+    x: np.ndarray, v: np.ndarray, h: float, steps: int, force: Force, ctx: ForceContext
 ) -> None:
-    """Advance one world's drones under their commands, in place."""
-    # Each drone: its command is clipped to the unit box, then its norm capped at 1.
+    """``steps`` substeps of the integrator under ``force`` from a fresh evaluation, in place."""
+    n = x.shape[0]
+    a = np.empty_like(x)
+    v_pred = np.empty_like(v)
+    force(x, v, n, ctx, a)
+    substep = verlet_heun_substep(force)
+    for _ in range(steps):
+        substep(x, v, a, v_pred, n, h, ctx)
+
+
+@compiled
+def _drone_substep(
+    drones: np.ndarray, drone_vel: np.ndarray, action: np.ndarray, limits: np.ndarray, h: float
+) -> None:
+    """Every drone: its held command over one substep, within its speed limit.
+
+    The autopilot never flies past its speed limit: the new velocity v' = v + h a is scaled back
+    onto the limit when it would exceed it, and the position advances by h (v + v') / 2, which
+    is exact for a constant command (velocity Verlet) and for flight at the limit.
+    """
     for q in range(drones.shape[0]):
         ux = min(max(action[q, 0], -1.0), 1.0)
         uy = min(max(action[q, 1], -1.0), 1.0)
@@ -309,25 +471,118 @@ def _move_drones(
         if u > 1.0:
             ux /= u
             uy /= u
-        amax_p = limits[q, 1]
-        nx_, ny_, nvx, nvy = _advance(
-            drones[q, 0],
-            drones[q, 1],
-            drone_vel[q, 0],
-            drone_vel[q, 1],
-            ux * amax_p,
-            uy * amax_p,
-            0.0,
-            limits[q, 0],
-            dt,
-        )
-        drones[q, 0] = nx_
-        drones[q, 1] = ny_
+        amax = limits[q, 1]
+        vmax = limits[q, 0]
+        nvx = drone_vel[q, 0] + h * ux * amax
+        nvy = drone_vel[q, 1] + h * uy * amax
+        speed = math.sqrt(nvx * nvx + nvy * nvy)
+        if speed > vmax:
+            nvx *= vmax / speed
+            nvy *= vmax / speed
+        drones[q, 0] += 0.5 * h * (drone_vel[q, 0] + nvx)
+        drones[q, 1] += 0.5 * h * (drone_vel[q, 1] + nvy)
         drone_vel[q, 0] = nvx
         drone_vel[q, 1] = nvy
 
 
 @compiled
+def _noise_and_clamp(
+    v: np.ndarray,
+    n: int,
+    prm: np.ndarray,
+    noise: np.ndarray,
+    row: int,
+    sqrt_h: float,
+    has_noise: bool,
+) -> int:
+    """Apply one substep's noise increment, then the airspeed safety net; count its activations."""
+    sigma = prm[_C_NOISE] if has_noise else 0.0
+    heading = prm[_C_NMODEL] == 0.0
+    lo = prm[_C_VMIN]
+    hi = prm[_C_VMAX]
+    clamped = 0
+    for i in range(n):
+        if sigma > 0.0:
+            if heading:
+                th = sigma * sqrt_h * noise[row, i, 0]
+                cs = math.cos(th)
+                sn = math.sin(th)
+                vx = v[i, 0]
+                v[i, 0] = cs * vx - sn * v[i, 1]
+                v[i, 1] = sn * vx + cs * v[i, 1]
+            else:
+                v[i, 0] += sigma * sqrt_h * noise[row, i, 0]
+                v[i, 1] += sigma * sqrt_h * noise[row, i, 1]
+        s = math.sqrt(v[i, 0] * v[i, 0] + v[i, 1] * v[i, 1])
+        if s > hi:
+            v[i, 0] *= hi / s
+            v[i, 1] *= hi / s
+            clamped += 1
+        elif s < lo:
+            clamped += 1
+            if s > _TINY:
+                v[i, 0] *= lo / s
+                v[i, 1] *= lo / s
+            else:
+                v[i, 0] = lo
+                v[i, 1] = 0.0
+    return clamped
+
+
+_flock_substep = verlet_heun_substep(flock_acceleration)
+
+
+@compiled
+def _step_worlds(
+    bird_pos: np.ndarray,
+    bird_vel: np.ndarray,
+    pursuer_pos: np.ndarray,
+    pursuer_vel: np.ndarray,
+    count: np.ndarray,
+    destination: np.ndarray,
+    params: np.ndarray,
+    pursuer_limits: np.ndarray,
+    action: np.ndarray,
+    noise: np.ndarray,
+    noise_row: np.ndarray,
+    dt: float,
+    substeps: int,
+    use_grid: bool,
+    live: np.ndarray,
+    accel: np.ndarray,
+    v_pred: np.ndarray,
+    index_work: np.ndarray,
+    clamps: np.ndarray,
+) -> None:
+    """The compiled body of ``step_worlds``."""
+    n_worlds = bird_pos.shape[0]
+    has_noise = noise.shape[1] > 0
+    h = dt / substeps
+    sqrt_h = math.sqrt(h)
+    for b in range(n_worlds):
+        if not live[b]:
+            continue
+        n = count[b]
+        pos = bird_pos[b]
+        vel = bird_vel[b]
+        ctx = (
+            params[b],
+            destination[b],
+            pursuer_pos[b],
+            pursuer_vel[b],
+            use_grid,
+            index_work[0],
+            index_work[1],
+        )
+        flock_acceleration(pos, vel, n, ctx, accel)
+        for k in range(substeps):
+            # The drones move first: the birds' force evaluation sees them at the substep's end.
+            _drone_substep(pursuer_pos[b], pursuer_vel[b], action[b], pursuer_limits[b], h)
+            _flock_substep(pos, vel, accel, v_pred, n, h, ctx)
+            row = noise_row[b] + k
+            clamps[b] += _noise_and_clamp(vel, n, params[b], noise[b], row, sqrt_h, has_noise)
+
+
 def step_worlds(
     bird_pos: np.ndarray,  # (B, N, 2) m, updated in place
     bird_vel: np.ndarray,  # (B, N, 2) m/s, updated in place
@@ -336,81 +591,63 @@ def step_worlds(
     count: np.ndarray,  # (B,) active birds
     destination: np.ndarray,  # (B, 2) m
     params: np.ndarray,  # (B, len(KERNEL_FIELDS)) per-world bird parameters
-    align_tables: np.ndarray,  # (B, ALIGN_TABLE_SIZE + 2) per-world alignment_table(beta)
     pursuer_limits: np.ndarray,  # (B, P, 2) per drone: max speed m/s, max acceleration m/s^2
     action: np.ndarray,  # (B, P, 2) normalised command per drone, already finite
-    noise: np.ndarray,  # (B, T, N, 2) standard normals, or shape (B, 0, 0, 2) for none
-    noise_row: np.ndarray,  # (B,) which of the T rows this step uses
-    dt: float,  # s
-    use_grid: bool,  # bool: cell grid instead of all pairs
+    noise: np.ndarray,  # (B, T, N, 2) standard normals, T >= substeps, or (B, 0, 0, 2) for none
+    noise_row: np.ndarray,  # (B,) first of the ``substeps`` rows this step uses
+    dt: float,  # s, the control step
+    substeps: int,  # physics substeps per control step
+    use_grid: bool,  # cell grid instead of all pairs
     live: np.ndarray,  # (B,) bool: worlds to advance; the others are left untouched
-    work: np.ndarray,  # (4, N) float64 work space for coordinates
-    acc: np.ndarray,  # (7, N) float64 work space for pair sums
+    accel: np.ndarray,  # (N, 2) float64 work space: accelerations
+    v_pred: np.ndarray,  # (N, 2) float64 work space: predicted velocities
     index_work: np.ndarray,  # (2, N) int64 work space: cell keys, visit order
+    clamps: np.ndarray,  # (B,) int64: airspeed safety-net activations, incremented
 ) -> None:
-    """Advance every world by one step, in place."""
-    n_worlds = bird_pos.shape[0]
-    has_noise = noise.shape[1] > 0
-    for b in range(n_worlds):
-        if not live[b]:
-            continue
-        n = count[b]
-        prm = params[b]
-        pos = bird_pos[b]
-        vel = bird_vel[b]
-        drones = pursuer_pos[b]
-        drone_vel = pursuer_vel[b]
-        for i in range(n):
-            work[_X, i] = pos[i, 0]
-            work[_Y, i] = pos[i, 1]
-            work[_VX, i] = vel[i, 0]
-            work[_VY, i] = vel[i, 1]
-        acc[:, :n] = 0.0
-        _accumulate(work, acc, n, prm, align_tables[b], use_grid, index_work[0], index_work[1])
-        k_sep = prm[_C_KSEP]
-        k_ali = prm[_C_KALI] / max(n, 1)
-        k_coh = prm[_C_KCOH]
-        k_dst = prm[_C_KDST]
-        cruise = prm[_C_CRUISE]
-        r_alarm = prm[_C_RALM]
-        r_dodge = prm[_C_RDGE]
-        k_flee = prm[_C_KFLE]
-        k_dodge = prm[_C_KDGE]
-        a_max = prm[_C_AMAX]
-        sigma = prm[_C_NOISE]
-        dest_x = destination[b, 0]
-        dest_y = destination[b, 1]
-        row = noise_row[b]
-        for i in range(n):
-            x = pos[i, 0]
-            y = pos[i, 1]
-            vx = vel[i, 0]
-            vy = vel[i, 1]
-            ax = k_sep * acc[_SX, i] + k_ali * acc[_AX, i]
-            ay = k_sep * acc[_SY, i] + k_ali * acc[_AY, i]
-            if acc[_CN, i] > 0.0:
-                ax += k_coh * acc[_CX, i] / acc[_CN, i]
-                ay += k_coh * acc[_CY, i] / acc[_CN, i]
-            gx = dest_x - x
-            gy = dest_y - y
-            g = math.sqrt(gx * gx + gy * gy)
-            if g > _TINY:
-                ax += k_dst * (cruise * gx / g - vx)
-                ay += k_dst * (cruise * gy / g - vy)
-            ax, ay = _fear(x, y, ax, ay, drones, drone_vel, r_alarm, r_dodge, k_flee, k_dodge)
-            if has_noise and sigma > 0.0:
-                ax += sigma * noise[b, row, i, 0]
-                ay += sigma * noise[b, row, i, 1]
-            a = math.sqrt(ax * ax + ay * ay)
-            if a > a_max:
-                ax *= a_max / a
-                ay *= a_max / a
-            nx_, ny_, nvx, nvy = _advance(x, y, vx, vy, ax, ay, prm[_C_VMIN], prm[_C_VMAX], dt)
-            pos[i, 0] = nx_
-            pos[i, 1] = ny_
-            vel[i, 0] = nvx
-            vel[i, 1] = nvy
-        _move_drones(drones, drone_vel, action[b], pursuer_limits[b], dt)
+    """Advance every live world by one control step, in place."""
+    _step_worlds(
+        bird_pos,
+        bird_vel,
+        pursuer_pos,
+        pursuer_vel,
+        count,
+        destination,
+        params,
+        pursuer_limits,
+        action,
+        noise,
+        noise_row,
+        dt,
+        substeps,
+        use_grid,
+        live,
+        accel,
+        v_pred,
+        index_work,
+        clamps,
+    )
+
+
+def flock_context(
+    params: np.ndarray,
+    destination: np.ndarray,
+    drones: np.ndarray,
+    drone_vel: np.ndarray,
+    birds: int,
+    use_grid: bool = False,
+) -> ForceContext:
+    """The ``ctx`` tuple ``flock_acceleration`` reads for one world, with fresh work space."""
+    keys = np.zeros(max(birds, 1), dtype=np.int64)
+    order = np.zeros(max(birds, 1), dtype=np.int64)
+    return (
+        np.ascontiguousarray(params, dtype=np.float64),
+        np.ascontiguousarray(destination, dtype=np.float64),
+        np.ascontiguousarray(drones, dtype=np.float64).reshape(-1, 2),
+        np.ascontiguousarray(drone_vel, dtype=np.float64).reshape(-1, 2),
+        bool(use_grid),
+        keys,
+        order,
+    )
 
 
 def choose_grid(max_birds: int, interaction_radius: float, neighbour_search: str = "auto") -> bool:

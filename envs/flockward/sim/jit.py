@@ -29,3 +29,14 @@ def compiled_fastmath(flags: set[str]) -> Callable[[Callable[P, R]], Callable[P,
         return cast("Callable[P, R]", numba.njit(cache=True, fastmath=flags)(fn))
 
     return decorate
+
+
+def compiled_inline(fn: Callable[P, R]) -> Callable[P, R]:
+    """Like ``compiled``, inlined into its callers by numba (a small helper of a hot loop)."""
+    return cast("Callable[P, R]", numba.njit(cache=True, inline="always")(fn))
+
+
+def compiled_uncached(fn: Callable[P, R]) -> Callable[P, R]:
+    """Like ``compiled`` without the on-disk cache: for functions that take another compiled
+    function as an argument, which numba's cache cannot tell apart."""
+    return cast("Callable[P, R]", numba.njit(fn))

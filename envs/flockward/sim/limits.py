@@ -29,6 +29,7 @@ from flockward.sim.spec import (
     spec_of,
 )
 from flockward.sim.types import (
+    MAX_HEADING_NOISE,
     Circle,
     EpisodeParams,
     FlockParams,
@@ -46,7 +47,6 @@ if TYPE_CHECKING:
 
 __all__ = [
     "LIMITS",
-    "MAX_ALIGNMENT_REACH",
     "MAX_VERTICES",
     "NAME_RE",
     "RECORD_SECTIONS",
@@ -61,11 +61,6 @@ __all__ = [
     "zone_table",
     "zone_text",
 ]
-
-# Largest alignment_radius / alignment_sigma: beyond it the kernel's tabulated weight drifts from
-# the formula by more than 1e-4 relative (flockward.sim.dynamics.alignment_table).
-MAX_ALIGNMENT_REACH = 10.0
-
 
 # --------------------------------------------------------------------------------------------
 # Text of numbers and values, shared by record errors and config errors.
@@ -235,13 +230,27 @@ def _check_flock(flock: FlockParams) -> None:
             "must keep dodge_radius < alarm_radius, birds dodge only once alarmed "
             f"(now {n(flock.dodge_radius)} and {n(flock.alarm_radius)} m)",
         )
-    if flock.alignment_radius > MAX_ALIGNMENT_REACH * flock.alignment_sigma:
+    if not flock.cruise_speed <= flock.burst_speed <= hi:
         _broken(
             flock,
-            ("alignment_radius", "alignment_sigma"),
-            f"must keep alignment_radius <= {MAX_ALIGNMENT_REACH:g} * alignment_sigma, where "
-            "the tabulated Cucker-Smale weight is accurate to 1e-4 "
-            f"(now {n(flock.alignment_radius)} and {n(flock.alignment_sigma)} m)",
+            ("burst_speed", "cruise_speed", "max_speed"),
+            "must keep cruise_speed <= burst_speed <= max_speed (now "
+            f"{n(flock.cruise_speed)}, {n(flock.burst_speed)}, {n(hi)} m/s)",
+        )
+    if flock.flee_accel >= flock.max_accel:
+        _broken(
+            flock,
+            ("flee_accel", "max_accel"),
+            "must keep flee_accel < max_accel, so flight saturates below the steering budget "
+            f"and leaves room for the dodge and the flock (now {n(flock.flee_accel)} and "
+            f"{n(flock.max_accel)} m/s^2)",
+        )
+    if flock.noise_model == "heading" and flock.noise_std > MAX_HEADING_NOISE:
+        _broken(
+            flock,
+            ("noise_std", "noise_model"),
+            f"must keep noise_std <= {MAX_HEADING_NOISE:g} rad/s^0.5 for heading noise "
+            f"(now {n(flock.noise_std)})",
         )
 
 

@@ -28,6 +28,11 @@ if TYPE_CHECKING:
     from _typeshed import DataclassInstance
 
 FORMATIONS = ("disc", "hex", "line", "cluster")
+ALIGNMENT_MODELS = ("motsch-tadmor", "cucker-smale")
+DODGE_FRAMES = ("relative", "ground")
+NOISE_MODELS = ("heading", "vector")
+# Largest heading noise: beyond about 3 rad/s^0.5 a flock's polarisation sits at its noise floor.
+MAX_HEADING_NOISE = 3.0
 
 
 def _check(record: DataclassInstance) -> None:
@@ -44,6 +49,8 @@ class FlockParams:
 
     The defaults describe a flock of medium gulls: cruise airspeed 12.5 m/s, inside the 11-14 m/s
     range of gull airspeeds measured by tracking radar (Alerstam et al. 2007, PLoS Biology 5:e197).
+    Burst speed, acceleration budget, radii and gains are modelling choices (configs/flocks/).
+    What each term does: flockward.sim.dynamics.
     """
 
     name: str = param("gulls", Spec("name"))
@@ -58,34 +65,49 @@ class FlockParams:
     # counter-clockwise from +x; None = toward destination
     heading_deg: float | None = param(None, number(-360.0, 360.0, "deg", opt=True))
     speed: float = param(12.5, number(0.0, 60.0, "m/s"))  # initial airspeed
-    # airspeed the bird steers toward its destination at
+    # airspeed the bird regulates toward when unafraid
     cruise_speed: float = param(12.5, positive(60.0, "m/s"))
-    # birds in flapping flight cannot hover
-    min_speed: float = param(7.0, number(0.0, 60.0, "m/s"))
-    max_speed: float = param(20.0, positive(80.0, "m/s"))  # burst airspeed when fleeing
-    max_accel: float = param(10.0, positive(100.0, "m/s^2"))  # steering acceleration cap
+    # airspeed a fully frightened bird regulates toward (escape flight)
+    burst_speed: float = param(18.0, positive(60.0, "m/s"))
+    # safety net only: airspeeds are clamped to [min_speed, max_speed], counted (World.clamps)
+    min_speed: float = param(3.75, number(0.0, 60.0, "m/s"))
+    max_speed: float = param(23.4, positive(80.0, "m/s"))
+    # steering budget shared by every steering request; the range reaches far beyond any bird so
+    # that checks can take the budget out of play and compare with the published laws
+    max_accel: float = param(12.0, positive(10_000.0, "m/s^2"))
+    # speed regulation k_v (v_pref - s), outside the steering budget
+    speed_gain: float = param(0.8, number(0.0, 100.0, "1/s"))
     separation_radius: float = param(2.0, positive(100.0, "m"))
-    # inverse-distance repulsion (Reynolds 1987)
-    separation_gain: float = param(12.0, number(0.0, 1000.0, "m^2/s^2"))
-    alignment_radius: float = param(15.0, positive(500.0, "m"))
-    alignment_gain: float = param(2.0, number(0.0, 100.0, "1/s"))  # Cucker-Smale coupling K
+    # k_sep ((r_sep/d) - 1)^2 per neighbour, smooth to zero at the radius
+    separation_gain: float = param(8.0, number(0.0, 1000.0, "m/s^2"))
+    alignment_model: str = param("motsch-tadmor", Spec("choice", choices=ALIGNMENT_MODELS))
+    # up to 100 km, so a Cucker-Smale flock may align globally
+    alignment_radius: float = param(15.0, positive(100_000.0, "m"))
+    # Motsch-Tadmor rate, or Cucker-Smale coupling K
+    alignment_gain: float = param(2.0, number(0.0, 100.0, "1/s"))
     alignment_sigma: float = param(5.0, positive(500.0, "m"))  # Cucker-Smale length scale
     # Cucker-Smale exponent (beta < 1/2: unconditional flocking)
     alignment_beta: float = param(0.25, number(0.0, 5.0))
     cohesion_radius: float = param(25.0, positive(500.0, "m"))
-    cohesion_gain: float = param(0.4, number(0.0, 100.0, "1/s^2"))
-    # pull toward cruise velocity aimed at the destination
-    destination_gain: float = param(0.25, number(0.0, 100.0, "1/s"))
-    # inside it a bird flees the pursuer radially
+    # pull toward the locally weighted centroid of neighbours
+    cohesion_gain: float = param(0.3, number(0.0, 100.0, "1/s^2"))
+    # turning rate toward the roost per unit of cruise speed (informed birds only)
+    destination_gain: float = param(0.3, number(0.0, 100.0, "1/s"))
+    # share of the flock that knows the roost (spread evenly over the birds)
+    informed_fraction: float = param(0.3, number(0.0, 1.0))
+    # inside it a bird flees the nearest drone
     alarm_radius: float = param(80.0, positive(1000.0, "m"))
-    # at zero distance, falling linearly to 0 at alarm_radius
-    flee_gain: float = param(20.0, number(0.0, 1000.0, "m/s^2"))
-    # inside it a bird also dodges sideways
-    dodge_radius: float = param(15.0, positive(1000.0, "m"))
-    # at zero distance, falling linearly to 0 at dodge_radius
-    dodge_gain: float = param(10.0, number(0.0, 1000.0, "m/s^2"))
-    # standard deviation of Gaussian acceleration noise
-    noise_std: float = param(0.0, number(0.0, 100.0, "m/s^2"))
+    # flight acceleration inside dodge_radius, falling smoothly to 0 at alarm_radius
+    flee_accel: float = param(4.0, number(0.0, 1000.0, "m/s^2"))
+    # inside it a bird also dodges sideways off the drone's line of approach
+    dodge_radius: float = param(40.0, positive(1000.0, "m"))
+    # dodge acceleration close to the drone, falling smoothly to 0 at dodge_radius
+    dodge_accel: float = param(12.0, number(0.0, 1000.0, "m/s^2"))
+    # line of approach: the drone's velocity relative to the bird, or over the ground
+    dodge_frame: str = param("relative", Spec("choice", choices=DODGE_FRAMES))
+    # heading: rotational diffusion (rad/s^0.5); vector: white-noise acceleration (m/s^1.5)
+    noise_model: str = param("heading", Spec("choice", choices=NOISE_MODELS))
+    noise_std: float = param(0.05, number(0.0, 40.0, "rad/s^0.5 or m/s^1.5"))
     # proximity-graph radius for fragmentation; None = cohesion
     link_radius: float | None = param(None, positive(1000.0, "m", opt=True))
 
@@ -104,17 +126,20 @@ class FlockParams:
 
     def kernel_vector(self) -> np.ndarray:
         """The numbers the step kernel reads, in KERNEL_FIELDS order (float64)."""
-        return np.array([float(getattr(self, name)) for name in KERNEL_FIELDS], dtype=np.float64)
+        return np.array([_kernel_number(self, name) for name in KERNEL_FIELDS], dtype=np.float64)
 
 
 # Order of the per-world parameter rows handed to the compiled step kernel.
 KERNEL_FIELDS = (
     "cruise_speed",
+    "burst_speed",
     "min_speed",
     "max_speed",
     "max_accel",
+    "speed_gain",
     "separation_radius",
     "separation_gain",
+    "alignment_model",
     "alignment_radius",
     "alignment_gain",
     "alignment_sigma",
@@ -122,12 +147,29 @@ KERNEL_FIELDS = (
     "cohesion_radius",
     "cohesion_gain",
     "destination_gain",
+    "informed_fraction",
     "alarm_radius",
-    "flee_gain",
+    "flee_accel",
     "dodge_radius",
-    "dodge_gain",
+    "dodge_accel",
+    "dodge_frame",
+    "noise_model",
     "noise_std",
 )
+# Choice fields reach the kernel as their index in the list of choices.
+_KERNEL_CHOICES = {
+    "alignment_model": ALIGNMENT_MODELS,
+    "dodge_frame": DODGE_FRAMES,
+    "noise_model": NOISE_MODELS,
+}
+
+
+def _kernel_number(flock: FlockParams, name: str) -> float:
+    value = getattr(flock, name)
+    choices = _KERNEL_CHOICES.get(name)
+    return float(choices.index(value)) if choices else float(value)
+
+
 K = {name: index for index, name in enumerate(KERNEL_FIELDS)}  # column index by field name
 
 # Gains a randomisation range may scale (multiplicatively, per reset).
@@ -136,8 +178,8 @@ SCALABLE_GAINS = (
     "alignment_gain",
     "cohesion_gain",
     "destination_gain",
-    "flee_gain",
-    "dodge_gain",
+    "flee_accel",
+    "dodge_accel",
 )
 
 
@@ -146,10 +188,10 @@ class PursuerParams:
     """The drone: a double integrator commanded by a normalised acceleration."""
 
     start: tuple[float, float] = param((0.0, 0.0), POINT)
-    # (small multirotor cruise 10-20 m/s, common practice)
+    # A small multirotor (configs/pursuers/multirotor.toml; max 20-25 m/s, common practice).
     # The bound 44.7 m/s = 87 kn is the groundspeed limit for small drones in US 14 CFR 107.51.
-    max_speed: float = param(20.0, positive(44.7, "m/s"))
-    max_accel: float = param(8.0, positive(50.0, "m/s^2"))
+    max_speed: float = param(22.0, positive(44.7, "m/s"))
+    max_accel: float = param(10.0, positive(50.0, "m/s^2"))
     # closer than this to any bird counts as a collision
     safety_radius: float = param(5.0, number(0.0, 100.0, "m"))
 
@@ -194,7 +236,10 @@ class SiteParams:
 class EpisodeParams:
     """Time step and the rules that end an episode."""
 
-    dt: float = param(0.1, positive(1.0, "s"))
+    dt: float = param(0.1, positive(1.0, "s"))  # control step
+    # physics substeps per control step (4 at dt 0.1 s: a 0.025 s step, chosen by a convergence
+    # study: flock statistics agree within 5 % with half of it)
+    substeps: int = param(4, Spec("int", 1, 100, "steps"))
     # (150 s at the default dt)
     max_steps: int = param(1500, Spec("int", 1, 1_000_000, "steps"))
     # share of birds inside the goal region that counts as success
@@ -243,7 +288,7 @@ class Randomisation:
     gain_scale: tuple[float, float] | None = param(None, span(0.0, 10.0, open_lo=True))
     # m/s
     cruise_speed: tuple[float, float] | None = param(None, span(0.0, 60.0, "m/s", open_lo=True))
-    noise_std: tuple[float, float] | None = param(None, span(0.0, 100.0, "m/s^2"))
+    noise_std: tuple[float, float] | None = param(None, span(0.0, 40.0, "rad/s^0.5 or m/s^1.5"))
 
     def __post_init__(self) -> None:
         _check(self)

@@ -1,16 +1,16 @@
 """B independent worlds of one scenario, stepped together by the compiled kernel.
 
 Each world owns its random generator. Resets draw the world's randomised scenario values from it and
-the acceleration noise is drawn from it too, in blocks of ``NOISE_BLOCK`` steps counted from the
-world's own reset, so a world's trajectory depends on its own seed only: B worlds stepped together
-equal B worlds stepped alone, bit for bit.
+the flight noise is drawn from it too, in blocks of ``NOISE_BLOCK`` control steps (each with one row
+per physics substep) counted from the world's own reset, so a world's trajectory depends on its own
+seed only: B worlds stepped together equal B worlds stepped alone, bit for bit.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from flockward.sim.dynamics import alignment_table, choose_grid, step_worlds
+from flockward.sim.dynamics import choose_grid, step_worlds
 from flockward.sim.resets import sample_reset
 from flockward.sim.types import FlockParams, Scenario, WorldState
 
@@ -21,8 +21,9 @@ class World:
     """The batched simulation: reset any subset of worlds, step all of them in one call.
 
     Every world flies ``drones`` drones (P), all with the scenario's pursuer limits and start.
-    Scenarios describe one drone, which is the default. With no drone (P = 0) nothing frightens
-    the birds: the unherded control, whose actions are (B, 0, 2).
+    Scenarios describe one drone, which is the default; the environments build one-drone worlds.
+    With ``drones = 0`` the world has no drone and the birds know no fear (the unherded control).
+    ``clamps`` counts, per world since its reset, how often the airspeed safety net acted.
     """
 
     def __init__(
@@ -41,9 +42,9 @@ class World:
         self.n_drones = drones
         self.max_birds = scenario.max_birds
         self.dt = scenario.episode.dt
+        self.substeps = scenario.episode.substeps
         self.state = WorldState.zeros(worlds, self.max_birds, drones)
         self.params = np.tile(scenario.flock.kernel_vector(), (worlds, 1))
-        self.align_tables = np.tile(alignment_table(scenario.flock.alignment_beta), (worlds, 1))
         self.flocks: list[FlockParams] = [scenario.flock] * worlds
         self.destination = np.tile(np.asarray(scenario.site.destination, float), (worlds, 1))
         limits = [scenario.pursuer.max_speed, scenario.pursuer.max_accel]
@@ -51,17 +52,21 @@ class World:
         self.pursuer_limits = np.tile(np.asarray(limits, float), (worlds, drones, 1))
         self.rngs = [np.random.default_rng() for _ in range(worlds)]
         self.steps = np.zeros(worlds, dtype=np.int64)  # steps since each world's reset
+        self.clamps = np.zeros(worlds, dtype=np.int64)  # airspeed safety-net activations
         self._all_live = np.ones(worlds, dtype=np.bool_)
         self.use_grid = choose_grid(
             self.max_birds, scenario.flock.interaction_radius, neighbour_search
         )
         noise_hi = scenario.randomise.noise_std[1] if scenario.randomise.noise_std else 0.0
         self.has_noise = max(scenario.flock.noise_std, noise_hi) > 0.0
-        shape = (worlds, NOISE_BLOCK, self.max_birds, 2) if self.has_noise else (worlds, 0, 0, 2)
+        self._block_rows = NOISE_BLOCK * self.substeps
+        shape = (
+            (worlds, self._block_rows, self.max_birds, 2) if self.has_noise else (worlds, 0, 0, 2)
+        )
         self._noise = np.zeros(shape)
         self._noise_row = np.zeros(worlds, dtype=np.int64)
-        self._work = np.zeros((4, max(self.max_birds, 1)))  # coordinates, struct of arrays
-        self._acc = np.zeros((7, max(self.max_birds, 1)))  # pair sums
+        self._accel = np.zeros((max(self.max_birds, 1), 2))
+        self._v_pred = np.zeros((max(self.max_birds, 1), 2))
         self._index_work = np.zeros((2, max(self.max_birds, 1)), dtype=np.int64)
 
     def reset(self, index: int, rng: np.random.Generator | None = None) -> None:
@@ -83,11 +88,11 @@ class World:
         s.count[index] = n
         self.flocks[index] = sample.flock
         self.params[index] = sample.flock.kernel_vector()
-        self.align_tables[index] = alignment_table(sample.flock.alignment_beta)
         self.steps[index] = 0
+        self.clamps[index] = 0
         if self.has_noise:
             self._noise[index] = 0.0
-            self._noise_row[index] = NOISE_BLOCK  # the first step draws a fresh block
+            self._noise_row[index] = self._block_rows  # the first step draws a fresh block
 
     def step(self, action: np.ndarray, live: np.ndarray | None = None) -> None:
         """Advance the ``live`` worlds (default all) by one step under ``action`` (B, P, 2): each
@@ -100,9 +105,9 @@ class World:
             )
         live = self._all_live if live is None else live
         if self.has_noise:
-            for b in np.flatnonzero((self._noise_row >= NOISE_BLOCK) & live):
+            for b in np.flatnonzero((self._noise_row >= self._block_rows) & live):
                 n = int(self.state.count[b])
-                self._noise[b, :, :n] = self.rngs[b].standard_normal((NOISE_BLOCK, n, 2))
+                self._noise[b, :, :n] = self.rngs[b].standard_normal((self._block_rows, n, 2))
                 self._noise_row[b] = 0
         s = self.state
         step_worlds(
@@ -113,18 +118,19 @@ class World:
             s.count,
             self.destination,
             self.params,
-            self.align_tables,
             self.pursuer_limits,
             action,
             self._noise,
             self._noise_row,
             self.dt,
+            self.substeps,
             self.use_grid,
             live,
-            self._work,
-            self._acc,
+            self._accel,
+            self._v_pred,
             self._index_work,
+            self.clamps,
         )
         if self.has_noise:
-            self._noise_row += live
+            self._noise_row += live * self.substeps
         self.steps += live

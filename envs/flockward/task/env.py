@@ -93,9 +93,14 @@ class DivertEnv(gym.Env):
     v0: first release. Later changes that leave every observation value, reward and episode as
     they were: observation and reward as objects passed in; finite bounds on the bounded
     observation entries (unit vectors, fractions, masks).
+    v1: flock model v1 (``flockward.sim.dynamics``): physics substeps of a second-order
+    integrator apart from the 0.1 s control step, forces continuous in distance, a hard-core
+    separation, Motsch-Tadmor alignment, a prioritised acceleration budget in which dodge and
+    flight act as distinct regimes, white heading noise, sourced species speeds, drones faster
+    than a fleeing bird. Observation layout and reward terms are unchanged; every number differs.
 
     >>> import gymnasium as gym, flockward
-    >>> env = gym.make("flockward/Divert-v0", scenario="headon")
+    >>> env = gym.make("flockward/Divert-v1", scenario="headon")
     >>> obs, info = env.reset(seed=0)
     >>> obs.shape
     (26,)
