@@ -7,14 +7,17 @@ compares each record field exactly. The expensive variant replays every episode 
 
 from __future__ import annotations
 
+import functools
 import json
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
 import pytest
 
-from flockward.bench.evaluation import _play
+from flockward.bench.evaluation import _play, run_suite
 from flockward.bench.suites import load_suite
+from flockward.controller import Controller
 from flockward_baselines.controllers import make_controller
 from flockward_baselines.policy import PolicyController
 
@@ -22,12 +25,13 @@ ROOT = Path(__file__).resolve().parents[1]
 RESULT_FILES = sorted((ROOT / "results" / "standard").glob("*.json"))
 
 
-def _factory(data: dict[str, Any]):
+def _factory(data: dict[str, Any]) -> Callable[[], Controller]:
+    """A picklable zero-argument factory of the file's controller (for worker processes too)."""
     params = data["controller_parameters"]
     if "model_sha256" in params:
         model = ROOT / "results" / "models" / Path(params["model"]).name
-        return lambda: PolicyController(model, params.get("algorithm", "ppo"))
-    return lambda: make_controller(data["controller"], **params)
+        return functools.partial(PolicyController, model, params.get("algorithm", "ppo"))
+    return functools.partial(make_controller, data["controller"], **params)
 
 
 def _replay(path: Path, first_of_family_only: bool) -> list[tuple[int, str, Any, Any]]:
@@ -57,5 +61,18 @@ def test_first_episode_of_every_family_replays_bit_for_bit(path: Path) -> None:
 
 @pytest.mark.expensive
 @pytest.mark.parametrize("path", RESULT_FILES, ids=lambda p: p.stem)
-def test_every_committed_episode_replays_bit_for_bit(path: Path) -> None:
-    assert _replay(path, first_of_family_only=False) == []
+def test_every_committed_episode_replays_bit_for_bit(path: Path, tmp_path: Path) -> None:
+    # Through the runner with two worker processes, as `flockward run --workers 2` plays them.
+    data = json.loads(path.read_text(encoding="utf-8"))
+    fresh_path = run_suite(
+        load_suite(data["suite"]),
+        _factory(data),
+        data["controller"],
+        results_dir=tmp_path,
+        workers=2,
+        progress=False,
+        env_options=data.get("environment"),
+    )
+    fresh = json.loads(fresh_path.read_text(encoding="utf-8"))
+    assert fresh["suite_hash"] == data["suite_hash"]
+    assert fresh["episodes"] == data["episodes"]
