@@ -13,7 +13,7 @@ from flockward_baselines.cli import CAUTION, main
 
 ROOT = Path(__file__).resolve().parent.parent
 SHIPPED = sorted(str(p) for p in (ROOT / "configs").glob("*/*.toml") if p.parent.name in
-                 ("flocks", "scenarios"))  # fmt: skip
+                 ("flocks", "pursuers", "scenarios"))  # fmt: skip
 BAD = Path(__file__).resolve().parent / "fixtures" / "bad"
 
 
@@ -27,6 +27,7 @@ def test_check_shipped_configs(capsys: pytest.CaptureFixture[str]) -> None:
         assert line.startswith(f"ok  {path}  (")
     assert any("scenario 'crosswind-mix': 20-80 gulls" in line for line in lines)
     assert any("flock 'geese': 30 birds" in line for line in lines)
+    assert any("pursuer 'fixed-wing': max speed 28 m/s, max accel 6 m/s^2" in ln for ln in lines)
 
 
 def test_check_quiet(capsys: pytest.CaptureFixture[str]) -> None:

@@ -21,8 +21,10 @@ from flockward.config.scenarios import (
     config_reference,
     describe,
     list_flocks,
+    list_pursuers,
     list_scenarios,
     load_flock,
+    load_pursuer,
     load_scenario,
     parse_override,
     sample_reset,
@@ -35,6 +37,7 @@ ROOT = Path(__file__).resolve().parent.parent
 BAD = Path(__file__).resolve().parent / "fixtures" / "bad"
 SCENARIO_FILES = sorted((ROOT / "configs" / "scenarios").glob("*.toml"))
 FLOCK_FILES = sorted((ROOT / "configs" / "flocks").glob("*.toml"))
+PURSUER_FILES = sorted((ROOT / "configs" / "pursuers").glob("*.toml"))
 
 # fixture -> (dotted key the message must name, fragment of what is allowed)
 BAD_CASES = {
@@ -62,7 +65,8 @@ BAD_CASES = {
 
 
 def _load_any(path: Path) -> object:
-    return load_scenario(path) if config_kind(path) == "scenario" else load_flock(path)
+    loaders = {"scenario": load_scenario, "flock": load_flock, "pursuer": load_pursuer}
+    return loaders[config_kind(path)](path)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -72,6 +76,7 @@ def _load_any(path: Path) -> object:
 def test_shipped_lists_match_directories() -> None:
     assert list_scenarios() == sorted(p.stem for p in SCENARIO_FILES)
     assert list_flocks() == sorted(p.stem for p in FLOCK_FILES)
+    assert list_pursuers() == sorted(p.stem for p in PURSUER_FILES) == ["fixed-wing", "multirotor"]
     assert config_dir().resolve() == (ROOT / "configs").resolve()
     required = {"headon", "oblique", "trio", "murmuration", "geese-line", "pigeons-cluster"}
     assert required | {"crosswind-mix"} <= set(list_scenarios())
@@ -261,6 +266,95 @@ def test_error_in_flock_file_names_that_file(tmp_path: Path) -> None:
     (tmp_path / "f.toml").write_text("count = -3\n")
     path = _write(tmp_path, "[flock]\nfile = 'f.toml'\n")
     with pytest.raises(ConfigError, match=r"f\.toml: key 'count' = -3: must be an integer"):
+        load_scenario(path)
+
+
+# Regression test: every shipped scenario's hash as recorded before drone presets existed (commit
+# 2e86711; the same values as the committed results' provenance). Loading the drone from a preset
+# must leave every resolved scenario, and so every hash and committed result, unchanged.
+SCENARIO_HASHES_BEFORE_PRESETS = {
+    "crosswind-mix": "9e7f8b185966f17a39031159e2752863139e9a202cf0ce295e2a5e1c7e369e24",
+    "geese-line": "e521d91b60b4d5f8d585cabf54cf07ce3807ed6a4578d92c6f048d8c4096ca28",
+    "headon": "24e67990c1e656c3aaca155d75d89ef02e2a2affa92d6cd9710b4828c7948cc4",
+    "murmuration": "0e7e7f8550b4287fe8db46427e860292e3d99462364f1de2af74be4cced3ebef",
+    "oblique": "b36cd2bc88aebb0d2d2a4688ecca25e50005a9d245e9147820bde5bf148f00ad",
+    "pigeons-cluster": "8ca96467484c5e1f21883c887039be1f939b5292507a523f8666e047595dcfcc",
+    "trio": "22053b9beac39bf7fc658ee64b4b7964d5f50a7c559cd61a157df6bb6dde0281",
+}
+
+
+def test_shipped_scenarios_resolve_as_before_presets() -> None:
+    """Regression test against the hashes recorded before drone presets."""
+    now = {name: scenario_hash(load_scenario(name)) for name in list_scenarios()}
+    assert now == SCENARIO_HASHES_BEFORE_PRESETS
+
+
+@pytest.mark.parametrize("path", SCENARIO_FILES, ids=lambda p: p.stem)
+def test_shipped_scenario_same_without_its_preset_line(path: Path, tmp_path: Path) -> None:
+    """Regression test: a scenario naming a preset equals its text with the file line removed
+    (then the drone takes the record defaults, the values before presets existed)."""
+    text = path.read_text()
+    stripped = "\n".join(
+        line for line in text.splitlines() if not line.startswith('file = "multirotor"')
+    )
+    copy = tmp_path / path.name
+    copy.write_text(stripped)
+    before, after = load_scenario(copy), load_scenario(path)
+    assert dataclasses.replace(before, source_file=after.source_file) == after
+
+
+@pytest.mark.parametrize("path", PURSUER_FILES, ids=lambda p: p.stem)
+def test_shipped_pursuer_validates(path: Path) -> None:
+    text = path.read_text()
+    assert text.startswith("#")
+    assert "common practice" in text and "14 CFR 107.51" in text and "44.7 m/s" in text
+    assert config_kind(path) == "pursuer"
+    assert load_pursuer(path) == load_pursuer(path.stem)
+
+
+def test_fixed_wing_preset_limits_and_basis(tmp_path: Path) -> None:
+    path = _write(tmp_path, "[pursuer]\nfile = 'fixed-wing'\nstart = [-10.0, 5.0]\n")
+    drone = load_scenario(path).pursuer
+    assert (drone.max_speed, drone.max_accel, drone.start) == (28.0, 6.0, (-10.0, 5.0))
+    # Level coordinated turn: lateral acceleration = g tan(bank) (standard flight mechanics);
+    # the preset rounds a 30 degree bank, 5.66 m/s^2, to the nearest whole m/s^2.
+    assert round(9.80665 * math.tan(math.radians(30.0))) == drone.max_accel
+    # 14 CFR 107.51(a): at most 87 knots groundspeed (1 kn = 0.514444 m/s), about 44.7 m/s.
+    assert drone.max_speed < 87 * 0.514444
+    assert "stall" in (ROOT / "configs" / "pursuers" / "fixed-wing.toml").read_text()
+
+
+def test_pursuer_file_keys_overridden_by_scenario_and_override(tmp_path: Path) -> None:
+    path = _write(tmp_path, "[pursuer]\nfile = 'fixed-wing'\nmax_accel = 4.0\n")
+    drone = load_scenario(path).pursuer
+    assert (drone.max_speed, drone.max_accel) == (28.0, 4.0)
+    drone = load_scenario(path, {"pursuer.max_speed": 25.0}).pursuer
+    assert (drone.max_speed, drone.max_accel) == (25.0, 4.0)
+    # An override naming a preset replaces the file's preset; the scenario's keys still win.
+    drone = load_scenario(path, {"pursuer.file": "multirotor"}).pursuer
+    assert (drone.max_speed, drone.max_accel) == (22.0, 4.0)
+    assert load_scenario("headon", {"pursuer.file": "fixed-wing"}).pursuer == dataclasses.replace(
+        load_scenario("headon").pursuer, max_speed=28.0, max_accel=6.0
+    )
+
+
+def test_unknown_pursuer_preset_is_one_line_error(tmp_path: Path) -> None:
+    path = _write(tmp_path, "[pursuer]\nfile = 'glider'\n")
+    with pytest.raises(ConfigError) as info:
+        load_scenario(path)
+    message = str(info.value)
+    assert "\n" not in message
+    assert message.startswith(str(path)) or message.startswith("s.toml")
+    assert "key 'pursuer.file' = \"glider\"" in message
+    assert "shipped pursuer (fixed-wing, multirotor)" in message
+    with pytest.raises(ConfigError, match=r"override 'pursuer.file' = \"glider\""):
+        load_scenario("headon", {"pursuer.file": "glider"})
+
+
+def test_error_in_pursuer_file_names_that_file(tmp_path: Path) -> None:
+    (tmp_path / "d.toml").write_text("max_speed = 60.0\n")
+    path = _write(tmp_path, "[pursuer]\nfile = 'd.toml'\n")
+    with pytest.raises(ConfigError, match=r"d\.toml: key 'max_speed' = 60: .*\(0, 44\.7\] m/s"):
         load_scenario(path)
 
 

@@ -13,7 +13,13 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from flockward.config.scenarios import ConfigError, config_kind, load_flock, load_scenario
+from flockward.config.scenarios import (
+    ConfigError,
+    config_kind,
+    load_flock,
+    load_pursuer,
+    load_scenario,
+)
 from flockward.sim.types import Randomisation, Scenario
 
 if TYPE_CHECKING:
@@ -34,8 +40,14 @@ EXIT_INVALID = 2  # a config is invalid (argparse also uses 2 for a bad command 
 
 
 def _summary(path: Path) -> str:
-    """Validate one scenario or flock file and return a one-line summary of it."""
-    if config_kind(path) == "scenario":
+    """Validate one scenario, flock or pursuer file and return a one-line summary of it."""
+    kind = config_kind(path)
+    if kind == "pursuer":
+        p = load_pursuer(path)
+        return (
+            f"pursuer '{path.stem}': max speed {p.max_speed:g} m/s, max accel {p.max_accel:g} m/s^2"
+        )
+    if kind == "scenario":
         s = load_scenario(path)
         f, rnd = s.flock, s.randomise
         birds = f"{rnd.count[0]}-{rnd.count[1]}" if rnd.count else str(f.count)
@@ -53,7 +65,7 @@ def _summary(path: Path) -> str:
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
-    """Validate scenario and flock files; print one line per file."""
+    """Validate scenario, flock and pursuer files; print one line per file."""
     status = EXIT_OK
     for name in args.files:
         try:
@@ -315,7 +327,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     check = sub.add_parser(
         "check",
-        help="validate scenario and flock files",
+        help="validate scenario, flock and pursuer files",
         description="Validate scenario and flock TOML files (the kind is detected from the "
         "content). Exit status 0 if all are valid, 2 if any is not.",
         epilog=CAUTION,

@@ -11,6 +11,7 @@ __all__ = [
     "config_dir",
     "label",
     "list_flocks",
+    "list_pursuers",
     "list_scenarios",
     "looks_like_path",
     "read_toml",
@@ -30,7 +31,7 @@ def _config_roots() -> list[Path]:
 
 
 def config_dir() -> Path:
-    """The shipped configs directory (holding flocks/, scenarios/, suites/ and train/)."""
+    """The shipped configs directory (holding flocks/, pursuers/, scenarios/, suites/, train/)."""
     for root in _config_roots():
         if (root / "scenarios").is_dir():
             return root
@@ -51,6 +52,11 @@ def list_scenarios() -> list[str]:
 def list_flocks() -> list[str]:
     """Names of the shipped flocks (file stems under configs/flocks/)."""
     return shipped_names("flocks")
+
+
+def list_pursuers() -> list[str]:
+    """Names of the shipped drone presets (file stems under configs/pursuers/)."""
+    return shipped_names("pursuers")
 
 
 def label(path: Path) -> str:

@@ -2,7 +2,8 @@
 
 Each key is checked against the schema (``flockward.config.schema``) as it is read; the records
 then check the relations between keys themselves (``flockward.sim.limits``), and a broken one is
-reported against the key set last (override > scenario file > flock file > default). Any problem
+reported against the key set last (override > scenario file > section file > default). A section
+file is a flock or a drone preset named by ``[flock] file`` or ``[pursuer] file``. Any problem
 raises :class:`ConfigError` with a one-line message naming the file, the dotted key, the offending
 value and what is allowed.
 """
@@ -20,15 +21,18 @@ from flockward.config.files import (
     config_dir,
     label,
     list_flocks,
+    list_pursuers,
     list_scenarios,
     looks_like_path,
     read_toml,
     resolve,
+    shipped_names,
 )
 from flockward.config.hashing import scenario_hash
 from flockward.config.schema import (
-    FLOCK_FILE_KEY,
+    FILE_SECTIONS,
     SCHEMA,
+    SECTION_FILE_KEY,
     SECTIONS,
     Origin,
     Spec,
@@ -57,8 +61,10 @@ __all__ = [
     "config_reference",
     "describe",
     "list_flocks",
+    "list_pursuers",
     "list_scenarios",
     "load_flock",
+    "load_pursuer",
     "load_scenario",
     "parse_override",
     "sample_reset",
@@ -67,9 +73,12 @@ __all__ = [
 
 
 def config_kind(path: str | Path) -> str:
-    """'scenario' if the file holds any table (such as [site] or [flock]), else 'flock'."""
+    """'scenario' if the file holds any table (such as [site] or [flock]); 'pursuer' if it holds
+    keys and all of them are drone keys (a drone preset); else 'flock'."""
     data = read_toml(Path(path))
-    return "scenario" if any(isinstance(v, dict) for v in data.values()) else "flock"
+    if any(isinstance(v, dict) for v in data.values()):
+        return "scenario"
+    return "pursuer" if data and set(data) <= set(SCHEMA["pursuer"]) else "flock"
 
 
 # --------------------------------------------------------------------------------------------
@@ -87,8 +96,8 @@ def _collect(table: Mapping[str, object], section: str, origin: Origin) -> _Entr
     for key, value in table.items():
         if key not in specs:
             allowed = list(specs)
-            if section == "flock" and origin.key == "flock":
-                allowed.append(FLOCK_FILE_KEY)
+            if section in FILE_SECTIONS and origin.key == section:
+                allowed.append(SECTION_FILE_KEY)
             raise origin.unknown(key, allowed)
         entries[key] = (value, origin.child(key))
     return entries
@@ -110,19 +119,33 @@ def _record(cls: Callable[..., R], values: Mapping[str, object], where: _Where) 
         raise origin.error(value, rule) from None
 
 
-def _flock_from(entries: _Entries, default: Origin) -> FlockParams:
+def _section_record(cls: Callable[..., R], section: str, entries: _Entries, default: Origin) -> R:
+    """The record of one section; a key no entry sets is reported as a default below
+    ``default``."""
+
     def where(key: str) -> Origin:
         return entries[key][1] if key in entries else default.child(key).default()
 
-    return _record(FlockParams, _build("flock", entries), where)
+    return _record(cls, _build(section, entries), where)
+
+
+def _section_file(section: str, path: Path) -> _Entries:
+    """Raw entries of a section file: the section's keys at top level of the file."""
+    return _collect(read_toml(path), section, Origin(label(path), "", layer=1))
 
 
 def load_flock(path: str | Path) -> FlockParams:
     """Read a flock file (FlockParams keys at top level) or a shipped flock by name."""
-    file = resolve(path, "flocks")
-    data = read_toml(file)
+    file = resolve(path, FILE_SECTIONS["flock"])
     origin = Origin(label(file), "", layer=1)
-    return _flock_from(_collect(data, "flock", origin), origin)
+    return _section_record(FlockParams, "flock", _section_file("flock", file), origin)
+
+
+def load_pursuer(path: str | Path) -> PursuerParams:
+    """Read a drone preset (PursuerParams keys at top level) or a shipped preset by name."""
+    file = resolve(path, FILE_SECTIONS["pursuer"])
+    origin = Origin(label(file), "", layer=1)
+    return _section_record(PursuerParams, "pursuer", _section_file("pursuer", file), origin)
 
 
 def parse_override(item: str) -> tuple[str, object]:
@@ -140,17 +163,20 @@ def parse_override(item: str) -> tuple[str, object]:
     return key.strip(), value
 
 
+_FileRef = tuple[object, Origin]  # a section's file key: (raw value, where it was set)
+
+
 def _override_entries(
     overrides: Mapping[str, object], file_label: str
-) -> tuple[dict[str, _Entries], tuple[object, Origin] | None]:
-    """Overrides as raw entries per section, plus a 'flock.file' override if there is one."""
+) -> tuple[dict[str, _Entries], dict[str, _FileRef]]:
+    """Overrides as raw entries per section, plus the section files they name ('flock.file')."""
     entries: dict[str, _Entries] = {s: {} for s in SCHEMA}
-    flock_file = None
+    files: dict[str, _FileRef] = {}
     for dotted, value in overrides.items():
         section, _, key = dotted.rpartition(".")
         origin = Origin(file_label, section, override=True, layer=3)
-        if section == "flock" and key == FLOCK_FILE_KEY:
-            flock_file = (value, origin.child(key))
+        if section in FILE_SECTIONS and key == SECTION_FILE_KEY:
+            files[section] = (value, origin.child(key))
             continue
         if section not in SCHEMA or (not section and key not in SCHEMA[""]):
             raise ConfigError(
@@ -159,21 +185,46 @@ def _override_entries(
                 f"{', '.join(SECTIONS)}"
             )
         entries[section].update(_collect({key: value}, section, origin))
-    return entries, flock_file
+    return entries, files
 
 
-def _flock_file_entries(value: object, origin: Origin, base: Path) -> _Entries:
-    """Raw entries of the flock file named by [flock] file (shipped name or relative path)."""
+def _named_file_entries(section: str, value: object, origin: Origin, base: Path) -> _Entries:
+    """Raw entries of the section file named by ``[SECTION] file`` (shipped name or a path
+    relative to the scenario file)."""
     if not isinstance(value, str) or not value:
-        raise origin.error(value, "must be a shipped flock name or a path to a flock file")
-    path = resolve(value, "flocks", base=base)
+        raise origin.error(value, f"must be a shipped {section} name or a path to a {section} file")
+    sub = FILE_SECTIONS[section]
+    path = resolve(value, sub, base=base)
     if not path.is_file():
         raise origin.error(
             value,
-            "no such flock file; use a shipped flock "
-            f"({', '.join(list_flocks())}) or a path relative to the scenario file",
+            f"no such {section} file; use a shipped {section} "
+            f"({', '.join(shipped_names(sub))}) or a path relative to the scenario file",
         )
-    return _collect(read_toml(path), "flock", Origin(label(path), "", layer=1))
+    return _section_file(section, path)
+
+
+def _scenario_entries(
+    data: Mapping[str, object], top: Origin
+) -> tuple[dict[str, _Entries], dict[str, _FileRef]]:
+    """A scenario file's raw entries per section, plus the section files it names."""
+    raw: dict[str, _Entries] = {s: {} for s in SCHEMA}
+    files: dict[str, _FileRef] = {}
+    for key, value in data.items():
+        if key in SCHEMA[""]:
+            raw[""][key] = (value, top.child(key))
+        elif key in SECTIONS:
+            origin = top.child(key)
+            if not isinstance(value, dict):
+                raise origin.error(value, "must be a table")
+            table = dict(value)
+            if key in FILE_SECTIONS and SECTION_FILE_KEY in table:
+                named = table.pop(SECTION_FILE_KEY)
+                files[key] = (named, origin.child(SECTION_FILE_KEY))
+            raw[key] = _collect(table, key, origin)
+        else:
+            raise top.unknown(key, [*SCHEMA[""], *SECTIONS])
+    return raw, files
 
 
 def load_scenario(
@@ -182,7 +233,7 @@ def load_scenario(
     """Read and validate a scenario: a shipped name (see list_scenarios) or a TOML path.
 
     ``overrides`` maps dotted keys ('flock.count', 'episode.max_steps', 'name') to values and is
-    checked exactly like the file's own keys; they apply after the file and its flock file.
+    checked exactly like the file's own keys; they apply after the file and its section files.
     """
     if not looks_like_path(name_or_path) and name_or_path not in list_scenarios():
         if not Path(name_or_path).is_file():
@@ -194,38 +245,25 @@ def load_scenario(
     file_label = label(file)
     top = Origin(file_label, "")
 
-    # Raw entries per section, each remembering its origin.
-    raw: dict[str, _Entries] = {s: {} for s in SCHEMA}
-    flock_file: tuple[object, Origin] | None = None
-    for key, value in data.items():
-        if key in SCHEMA[""]:
-            raw[""][key] = (value, top.child(key))
-        elif key in SECTIONS:
-            origin = top.child(key)
-            if not isinstance(value, dict):
-                raise origin.error(value, "must be a table")
-            table = dict(value)
-            if key == "flock" and FLOCK_FILE_KEY in table:
-                flock_file = (table.pop(FLOCK_FILE_KEY), origin.child(FLOCK_FILE_KEY))
-            raw[key] = _collect(table, key, origin)
-        else:
-            raise top.unknown(key, [*SCHEMA[""], *SECTIONS])
+    raw, files = _scenario_entries(data, top)
 
-    override_entries, override_file = _override_entries(overrides or {}, file_label)
-    flock_file = override_file or flock_file
+    override_entries, override_files = _override_entries(overrides or {}, file_label)
+    files.update(override_files)
 
-    # The flock: its file (if any), then the scenario's [flock] keys, then overrides.
-    flock_entries = {} if flock_file is None else _flock_file_entries(*flock_file, file.parent)
-    flock_entries.update(raw["flock"])
-    flock_entries.update(override_entries["flock"])
-    flock = _flock_from(flock_entries, top.child("flock"))
+    # Each section: its file (if any), then the scenario's own keys, then overrides.
+    for section in SCHEMA:
+        layered = (
+            _named_file_entries(section, *files[section], file.parent) if section in files else {}
+        )
+        layered.update(raw[section])
+        layered.update(override_entries[section])
+        raw[section] = layered
+    flock = _section_record(FlockParams, "flock", raw["flock"], top.child("flock"))
 
     values: dict[str, dict[str, object]] = {}
     for section in SCHEMA:
-        if section == "flock":
-            continue
-        raw[section].update(override_entries[section])
-        values[section] = _build(section, raw[section])
+        if section != "flock":
+            values[section] = _build(section, raw[section])
 
     def where(dotted: str) -> Origin:
         section, _, key = dotted.rpartition(".")

@@ -19,11 +19,23 @@ from flockward.sim.limits import LIMITS, polygon_problem, value_text
 from flockward.sim.spec import MAX_VERTICES, NAME_RE, POINT, RADIUS, Spec
 from flockward.sim.types import Circle, Polygon, Zone
 
-__all__ = ["FLOCK_FILE_KEY", "SCHEMA", "SECTIONS", "Origin", "Spec", "config_reference", "convert"]
+__all__ = [
+    "FILE_SECTIONS",
+    "SCHEMA",
+    "SECTIONS",
+    "SECTION_FILE_KEY",
+    "Origin",
+    "Spec",
+    "config_reference",
+    "convert",
+]
 
 SCHEMA: dict[str, dict[str, Spec]] = LIMITS
 SECTIONS = tuple(s for s in SCHEMA if s)
-FLOCK_FILE_KEY = "file"  # [flock] file = "gulls": the only key not a FlockParams field
+# [flock] file = "gulls", [pursuer] file = "multirotor": a section whose values may come from a
+# file of their own; "file" is the only key of such a section that is not a record field.
+SECTION_FILE_KEY = "file"
+FILE_SECTIONS = {"flock": "flocks", "pursuer": "pursuers"}  # section -> directory under configs/
 _CIRCLE_KEYS = ("center", "radius")
 _MAX_SHOWN = 120  # characters of an offending value quoted in an error message
 _PLAIN_KINDS = ("bool", "str", "name", "choice")  # checked, then kept as they are
@@ -39,10 +51,12 @@ def config_reference() -> str:
             dotted = f"{section}.{key}" if section else key
             note = " (optional)" if spec.optional else ""
             lines.append(f"| `{dotted}` | {spec.allowed()}{note} |")
-    lines.append(
-        f"| `flock.{FLOCK_FILE_KEY}` | a shipped flock name or a path relative to the scenario "
-        "file; the other [flock] keys override its values (optional) |"
-    )
+    for section, sub in FILE_SECTIONS.items():
+        lines.append(
+            f"| `{section}.{SECTION_FILE_KEY}` | a shipped {section} name (configs/{sub}/) or a "
+            f"path relative to the scenario file; the other [{section}] keys override its "
+            "values (optional) |"
+        )
     return "\n".join(lines)
 
 
@@ -53,7 +67,7 @@ class Origin:
     file: str
     key: str
     override: bool = False
-    layer: int = 2  # 0 default, 1 flock file, 2 scenario file, 3 override: later layers win
+    layer: int = 2  # 0 default, 1 section file, 2 scenario file, 3 override: later layers win
 
     def default(self) -> Origin:
         """The same key, marked as not written anywhere (a record default)."""
