@@ -16,6 +16,16 @@ slopes, no libm call in the pair loop):
   local density, not on N; or Cucker & Smale 2007 (IEEE TAC): (k_ali/N) sum_j psi(d) w_ij
   (v_j - v_i), psi = (1 + d^2/sigma^2)^-beta. A large ``alignment_radius`` makes it global;
 - cohesion: k_coh sum_j w_ij (x_j - x_i) / (1 + sum_j w_ij), a locally normalised centroid pull;
+- topological neighbours (option, ``neighbours`` = k >= 1; 0, the default, keeps the metric
+  radii): starlings interact with about 6-7 nearest neighbours whatever their distance
+  (Ballerini et al. 2008, PNAS 105:1232, from memory). Each bird's alignment and cohesion radius
+  becomes R_i = min(c d_k(i), r_coh), d_k(i) its distance to its k-th nearest flockmate and
+  c = ``topological_reach``, and both weights become rho_{1/c}(d/R_i): the k nearest weigh 1,
+  those out to R_i fade to 0. d_k is continuous in positions, so the forces stay continuous;
+  r_coh caps the reach (a bird perceives no farther), so beyond r_coh / c a sparse flock's
+  birds lose their neighbours as in the metric model. Separation stays metric. d_k(i) comes from
+  a first pass over the bird's candidates (the k smallest squared distances kept sorted), the
+  sums from a second;
 - destination: only the informed share of the flock (Couzin et al. 2005, Nature) turns toward
   the roost, k_dst c (g - (g.u) u) with g, u the unit vectors to the roost and along the bird's
   velocity; it turns the bird and leaves its speed alone;
@@ -341,7 +351,7 @@ def _kth_nearest_sq(
                     nearest[m] = nearest[m - 1]
                     m -= 1
                 nearest[m] = d2
-    return nearest[k - 1]
+    return float(nearest[k - 1])
 
 
 @compiled_inline
