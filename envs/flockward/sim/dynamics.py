@@ -16,6 +16,16 @@ slopes, no libm call in the pair loop):
   local density, not on N; or Cucker & Smale 2007 (IEEE TAC): (k_ali/N) sum_j psi(d) w_ij
   (v_j - v_i), psi = (1 + d^2/sigma^2)^-beta. A large ``alignment_radius`` makes it global;
 - cohesion: k_coh sum_j w_ij (x_j - x_i) / (1 + sum_j w_ij), a locally normalised centroid pull;
+- topological neighbours (option, ``neighbours`` = k >= 1; 0, the default, keeps the metric
+  radii): starlings interact with about 6-7 nearest neighbours whatever their distance
+  (Ballerini et al. 2008, PNAS 105:1232, from memory). Each bird's alignment and cohesion radius
+  becomes R_i = min(c d_k(i), r_coh), d_k(i) its distance to its k-th nearest flockmate and
+  c = ``topological_reach``, and both weights become rho_{1/c}(d/R_i): the k nearest weigh 1,
+  those out to R_i fade to 0. d_k is continuous in positions, so the forces stay continuous;
+  r_coh caps the reach (a bird perceives no farther), so beyond r_coh / c a sparse flock's
+  birds lose their neighbours as in the metric model. Separation stays metric. d_k(i) comes from
+  a first pass over the bird's candidates (the k smallest squared distances kept sorted), the
+  sums from a second;
 - destination: only the informed share of the flock (Couzin et al. 2005, Nature) turns toward
   the roost, k_dst c (g - (g.u) u) with g, u the unit vectors to the roost and along the bird's
   velocity; it turns the bird and leaves its speed alone;
@@ -64,7 +74,7 @@ from collections.abc import Callable
 import numpy as np
 
 from flockward.sim.jit import compiled, compiled_fastmath, compiled_inline, compiled_uncached
-from flockward.sim.types import K
+from flockward.sim.types import MAX_NEIGHBOURS, K
 
 # One world's surroundings as flock_acceleration reads them: parameter row, destination (2,),
 # drone positions (P, 2), drone velocities (P, 2), use_grid, cell keys (N,), visit order (N,).
@@ -112,6 +122,8 @@ _C_ADGE = K["dodge_accel"]
 _C_DFRAME = K["dodge_frame"]
 _C_NMODEL = K["noise_model"]
 _C_NOISE = K["noise_std"]
+_C_TOPK = K["neighbours"]
+_C_TOPC = K["topological_reach"]
 
 
 @compiled_inline
@@ -305,6 +317,77 @@ def _visit_order(
 
 
 @compiled_inline
+def _kth_nearest_sq(
+    x: np.ndarray,
+    i: int,
+    k: int,
+    limit2: float,
+    use_grid: bool,
+    keys: np.ndarray,
+    sorted_keys: np.ndarray,
+    order: np.ndarray,
+    n_ranges: int,
+    n: int,
+    nearest: np.ndarray,
+) -> float:
+    """Squared distance from bird ``i`` to its k-th nearest flockmate, or ``limit2`` when fewer
+    than k lie closer than that. ``nearest`` (>= k) holds the k smallest, sorted by insertion."""
+    for m in range(k):
+        nearest[m] = limit2
+    xi = x[i, 0]
+    yi = x[i, 1]
+    for r in range(n_ranges):
+        start, stop = _candidate_range(use_grid, keys, sorted_keys, i, r, n)
+        for s in range(start, stop):
+            j = order[s]
+            if j == i:
+                continue
+            dx = x[j, 0] - xi
+            dy = x[j, 1] - yi
+            d2 = dx * dx + dy * dy
+            if d2 < nearest[k - 1]:
+                m = k - 1
+                while m > 0 and nearest[m - 1] > d2:
+                    nearest[m] = nearest[m - 1]
+                    m -= 1
+                nearest[m] = d2
+    return float(nearest[k - 1])
+
+
+@compiled_inline
+def _topological_radius(dk2: float, limit2: float, reach: float, r_coh: float) -> float:
+    """R_i = min(c d_k(i), r_coh) from the squared k-th neighbour distance (``limit2`` or more
+    means beyond r_coh / c)."""
+    if dk2 >= limit2:
+        return r_coh
+    return min(reach * math.sqrt(dk2), r_coh)
+
+
+@compiled
+def neighbour_radii(x: np.ndarray, n: int, ctx: ForceContext, out: np.ndarray) -> None:
+    """Every bird's alignment and cohesion radius (N, 2) into ``out``, as ``flock_acceleration``
+    uses them: the metric radii, or with topological neighbours each bird's own R_i (twice)."""
+    prm, _, _, _, use_grid, keys, order = ctx
+    r_ali = prm[_C_RALI]
+    r_coh = prm[_C_RCOH]
+    k = int(prm[_C_TOPK])
+    reach = prm[_C_TOPC]
+    limit = r_coh / reach
+    cut = max(prm[_C_RSEP], r_ali, r_coh)
+    sorted_keys, n_ranges = _visit_order(x, n, cut, use_grid, keys, order)
+    nearest = np.empty(MAX_NEIGHBOURS)
+    for i in range(n):
+        if k == 0:
+            out[i, 0] = r_ali
+            out[i, 1] = r_coh
+            continue
+        dk2 = _kth_nearest_sq(
+            x, i, k, limit * limit, use_grid, keys, sorted_keys, order, n_ranges, n, nearest
+        )
+        out[i, 0] = out[i, 1] = _topological_radius(dk2, limit * limit, reach, r_coh)
+
+
+@compiled_inline
 def _heading(vx: float, vy: float) -> tuple[float, float, float]:
     """Speed and unit velocity; a bird at rest heads east (any fixed choice keeps it defined)."""
     speed = math.sqrt(vx * vx + vy * vy)
@@ -346,12 +429,26 @@ def flock_acceleration(
     a_flee = prm[_C_AFLEE]
     a_dodge = prm[_C_ADGE]
     relative = prm[_C_DFRAME] == 0.0
+    k_top = int(prm[_C_TOPK])
+    reach = prm[_C_TOPC]
+    limit2 = (r_coh / reach) * (r_coh / reach)
+    nearest = np.empty(MAX_NEIGHBOURS)
     sorted_keys, n_ranges = _visit_order(x, n, cut, use_grid, keys, order)
     for i in range(n):
         xi = x[i, 0]
         yi = x[i, 1]
         vxi = v[i, 0]
         vyi = v[i, 1]
+        r_a = r_ali
+        r_c = r_coh
+        plateau = BUMP_PLATEAU
+        if k_top > 0:
+            # First pass: the k-th neighbour distance sets this bird's own radius for both terms.
+            dk2 = _kth_nearest_sq(
+                x, i, k_top, limit2, use_grid, keys, sorted_keys, order, n_ranges, n, nearest
+            )
+            r_a = r_c = _topological_radius(dk2, limit2, reach, r_coh)
+            plateau = 1.0 / reach
         sx = sy = alx = aly = aw = cx = cy = cw = 0.0
         for r in range(n_ranges):
             start, stop = _candidate_range(use_grid, keys, sorted_keys, i, r, n)
@@ -370,15 +467,15 @@ def flock_acceleration(
                     f = k_sep * q * q * bump(d / r_sep, 0.0) / max(d, _TINY)
                     sx -= f * dx
                     sy -= f * dy
-                if d < r_ali:
-                    w = bump(d / r_ali, BUMP_PLATEAU)
+                if d < r_a:
+                    w = bump(d / r_a, plateau)
                     if cucker_smale:
                         w *= math.pow(1.0 + d2 * inv_sig2, -beta)
                     alx += w * (v[j, 0] - vxi)
                     aly += w * (v[j, 1] - vyi)
                     aw += w
-                if d < r_coh:
-                    w = bump(d / r_coh, BUMP_PLATEAU)
+                if d < r_c:
+                    w = bump(d / r_c, plateau)
                     cx += w * dx
                     cy += w * dy
                     cw += w

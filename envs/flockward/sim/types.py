@@ -31,6 +31,8 @@ FORMATIONS = ("disc", "hex", "line", "cluster")
 ALIGNMENT_MODELS = ("motsch-tadmor", "cucker-smale")
 DODGE_FRAMES = ("relative", "ground")
 NOISE_MODELS = ("heading", "vector")
+# Most topological neighbours a bird can follow (the kernel keeps their distances sorted per bird).
+MAX_NEIGHBOURS = 16
 # Largest heading noise: beyond about 3 rad/s^0.5 a flock's polarisation sits at its noise floor.
 MAX_HEADING_NOISE = 3.0
 
@@ -91,6 +93,12 @@ class FlockParams:
     cohesion_radius: float = param(25.0, positive(500.0, "m"))
     # pull toward the locally weighted centroid of neighbours
     cohesion_gain: float = param(0.3, number(0.0, 100.0, "1/s^2"))
+    # 0: metric neighbours (the radii above); k >= 1: topological, each bird's alignment and
+    # cohesion reach its k nearest flockmates (Ballerini et al. 2008 measured about 6-7)
+    neighbours: int = param(0, Spec("int", 0, MAX_NEIGHBOURS, "birds"))
+    # topological reach c: a bird's radius is c times its k-th neighbour distance, capped at
+    # cohesion_radius; the k nearest weigh 1, those out to the radius fade to 0
+    topological_reach: float = param(1.5, number(1.0, 10.0, open_lo=True))
     # turning rate toward the roost per unit of cruise speed (informed birds only)
     destination_gain: float = param(0.3, number(0.0, 100.0, "1/s"))
     # share of the flock that knows the roost (spread evenly over the birds)
@@ -155,6 +163,8 @@ KERNEL_FIELDS = (
     "dodge_frame",
     "noise_model",
     "noise_std",
+    "neighbours",
+    "topological_reach",
 )
 # Choice fields reach the kernel as their index in the list of choices.
 _KERNEL_CHOICES = {
