@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from flock_helpers import FAR, OFF
 from scipy.spatial import cKDTree
 
 from flockward.config.files import ConfigError
@@ -14,24 +15,6 @@ from flockward.sim.dynamics import flock_acceleration, flock_context, neighbour_
 from flockward.sim.limits import derived
 from flockward.sim.types import FlockParams
 from flockward.sim.world import World
-
-FAR = (1.0e7, 1.0e7)  # m: a destination with no effect
-
-# Every term off, no budget, no speed regulation: a single term can be checked on its own.
-OFF = derived(
-    FlockParams(),
-    separation_gain=0.0,
-    alignment_gain=0.0,
-    cohesion_gain=0.0,
-    destination_gain=0.0,
-    flee_accel=0.0,
-    dodge_accel=0.0,
-    speed_gain=0.0,
-    noise_std=0.0,
-    min_speed=0.0,
-    max_speed=1e9,
-    max_accel=1e9,
-)
 
 
 def accel(flock: FlockParams, x: np.ndarray, v: np.ndarray, grid: bool = False) -> np.ndarray:

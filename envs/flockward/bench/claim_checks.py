@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from functools import lru_cache
 from typing import Any
@@ -138,11 +138,7 @@ def check_push_band(settings: VerifySettings) -> CheckResult:
     make, radii = premise
     seeds = settings.episode_seeds
     distances = band_distances(settings, radii)
-    sweep = [
-        radii[0] * AGGRESSIVE_FRACTION,
-        *distances,
-        radii[0] + TIMID_FRACTION * (radii[1] - radii[0]),
-    ]
+    sweep = [_aggressive_distance(radii), *distances, _timid_distance(radii)]
     counts = [_push_counts(make, d, seeds) for d in sweep]
     inside = counts[1:-1]
     best = max(range(len(inside)), key=lambda k: inside[k].whole)
@@ -169,43 +165,55 @@ def check_push_band(settings: VerifySettings) -> CheckResult:
     )
 
 
-def check_aggressive_push(settings: VerifySettings) -> CheckResult:
-    """Pushing from half the dodge radius splits the flock in most seeds."""
-    name, bound = "claim-aggressive-push-splits", f"split share >= {MAJORITY}"
-    premise = _premise(name, bound, SOURCE_AGGRESSIVE, settings)
+def _aggressive_distance(radii: tuple[float, float]) -> float:
+    """Push distance of the aggressive claim: a fraction of the dodge radius (m)."""
+    return radii[0] * AGGRESSIVE_FRACTION
+
+
+def _timid_distance(radii: tuple[float, float]) -> float:
+    """Push distance of the timid claim: most of the way from the dodge to the alarm radius (m)."""
+    return radii[0] + TIMID_FRACTION * (radii[1] - radii[0])
+
+
+def _single_push_claim(
+    settings: VerifySettings,
+    name: str,
+    source: str,
+    outcome: str,
+    distance_of: Callable[[tuple[float, float]], float],
+) -> CheckResult:
+    """Boundary-arc pushing from one distance: the share of seeds whose episode had ``outcome``
+    (a Counts field: "split" or "breach") must be a majority."""
+    bound = f"{outcome} share >= {MAJORITY}"
+    premise = _premise(name, bound, source, settings)
     if isinstance(premise, CheckResult):
         return premise
     make, radii = premise
-    distance = radii[0] * AGGRESSIVE_FRACTION
+    distance = distance_of(radii)
     counts = _push_counts(make, distance, settings.episode_seeds)
-    share = counts.split / counts.seeds
+    hits = int(getattr(counts, outcome))
+    share = hits / counts.seeds
     return judged(
         name,
         share,
         bound,
         share >= MAJORITY,
-        SOURCE_AGGRESSIVE,
-        f"push {distance:g} m: split {wilson(counts.split, counts.seeds)}; {counts.text()}",
+        source,
+        f"push {distance:g} m: {outcome} {wilson(hits, counts.seeds)}; {counts.text()}",
+    )
+
+
+def check_aggressive_push(settings: VerifySettings) -> CheckResult:
+    """Pushing from half the dodge radius splits the flock in most seeds."""
+    return _single_push_claim(
+        settings, "claim-aggressive-push-splits", SOURCE_AGGRESSIVE, "split", _aggressive_distance
     )
 
 
 def check_timid_push(settings: VerifySettings) -> CheckResult:
     """Pushing from near the alarm radius lets the flock breach in most seeds."""
-    name, bound = "claim-timid-push-spills", f"breach share >= {MAJORITY}"
-    premise = _premise(name, bound, SOURCE_TIMID, settings)
-    if isinstance(premise, CheckResult):
-        return premise
-    make, radii = premise
-    distance = radii[0] + TIMID_FRACTION * (radii[1] - radii[0])
-    counts = _push_counts(make, distance, settings.episode_seeds)
-    share = counts.breach / counts.seeds
-    return judged(
-        name,
-        share,
-        bound,
-        share >= MAJORITY,
-        SOURCE_TIMID,
-        f"push {distance:g} m: breach {wilson(counts.breach, counts.seeds)}; {counts.text()}",
+    return _single_push_claim(
+        settings, "claim-timid-push-spills", SOURCE_TIMID, "breach", _timid_distance
     )
 
 
