@@ -412,3 +412,12 @@ def test_padded_slots_are_never_read():
                         np.zeros((1, 2)), 5)  # fmt: skip
     flock_acceleration(x, v, 3, ctx, out)
     assert np.all(np.isfinite(out[:3])) and np.all(out[3:] == 0.0)
+
+
+def test_starling_spacing_lies_in_the_measured_range():
+    # Ballerini et al. 2008, PNAS 105:1232 (from memory): nearest-neighbour distance r1 of wild
+    # starling flocks 0.68-1.51 m. The unherded starling flock's median NN distance must lie there.
+    f = load_flock("starlings")
+    stats, _, _ = _unherded("starlings", 4, [1, 2], seconds=20.0)
+    median_nn = stats[1] * f.separation_radius
+    assert 0.68 <= median_nn <= 1.51, median_nn

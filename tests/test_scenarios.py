@@ -269,26 +269,6 @@ def test_error_in_flock_file_names_that_file(tmp_path: Path) -> None:
         load_scenario(path)
 
 
-# Regression test: every shipped scenario's hash as recorded before drone presets existed (commit
-# 2e86711; the same values as the committed results' provenance). Loading the drone from a preset
-# must leave every resolved scenario, and so every hash and committed result, unchanged.
-SCENARIO_HASHES_BEFORE_PRESETS = {
-    "crosswind-mix": "9e7f8b185966f17a39031159e2752863139e9a202cf0ce295e2a5e1c7e369e24",
-    "geese-line": "e521d91b60b4d5f8d585cabf54cf07ce3807ed6a4578d92c6f048d8c4096ca28",
-    "headon": "24e67990c1e656c3aaca155d75d89ef02e2a2affa92d6cd9710b4828c7948cc4",
-    "murmuration": "0e7e7f8550b4287fe8db46427e860292e3d99462364f1de2af74be4cced3ebef",
-    "oblique": "b36cd2bc88aebb0d2d2a4688ecca25e50005a9d245e9147820bde5bf148f00ad",
-    "pigeons-cluster": "8ca96467484c5e1f21883c887039be1f939b5292507a523f8666e047595dcfcc",
-    "trio": "22053b9beac39bf7fc658ee64b4b7964d5f50a7c559cd61a157df6bb6dde0281",
-}
-
-
-def test_shipped_scenarios_resolve_as_before_presets() -> None:
-    """Regression test against the hashes recorded before drone presets."""
-    now = {name: scenario_hash(load_scenario(name)) for name in list_scenarios()}
-    assert now == SCENARIO_HASHES_BEFORE_PRESETS
-
-
 @pytest.mark.parametrize("path", SCENARIO_FILES, ids=lambda p: p.stem)
 def test_shipped_scenario_same_without_its_preset_line(path: Path, tmp_path: Path) -> None:
     """Regression test: a scenario naming a preset equals its text with the file line removed

@@ -50,6 +50,8 @@ SMOOTH_STEPS = (0.2, 0.1, 0.05, 0.025, 0.0125)  # s, physics steps of the conver
 MIN_ORDER = 1.8  # observed order of a second-order scheme, allowing for rounding
 DT_TOLERANCE = 0.05  # relative change of a flock statistic when the step is halved
 OVERLAP_FRACTION = 0.3  # smallest nearest-neighbour distance / separation radius
+# Nearest-neighbour distance r1 measured in wild starling flocks, m (Ballerini et al. 2008).
+STARLING_SPACING = (0.68, 1.51)
 SAMPLE_EVERY = 0.5  # s between samples of the flock statistics
 # noise_std swept over the schema's range of heading noise (rad/s^0.5, flockward.sim.types)
 NOISE_LEVELS = (0.0, 0.25, 0.5, 1.0, 2.0, 3.0)
@@ -62,6 +64,9 @@ SOURCE_MT = "Motsch & Tadmor 2011, J Stat Phys 144:923: rate independent of N (D
 SOURCE_ORDER = "Hairer, Lubich & Wanner 2006: velocity Verlet is order 2 (DOMAIN.md 9.3)"
 SOURCE_DT = "numerical convergence: statistics independent of the step (model requirement)"
 SOURCE_OVERLAP = "birds keep a hard core: no overlap (model requirement)"
+SOURCE_SPACING = (
+    "Ballerini et al. 2008, PNAS 105:1232: starling r1 0.68-1.51 m across flocks (from memory)"
+)
 SOURCE_NOISE = "Vicsek et al. 1995, PRL 75:1226: v_a falls with noise toward 0"
 
 
@@ -592,6 +597,28 @@ def overlap_check(species: str) -> Any:
     return check
 
 
+def check_starling_spacing(settings: VerifySettings) -> CheckResult:
+    """The unherded starling flock's median nearest-neighbour distance lies in the range
+    measured in wild starling flocks."""
+    name = "spacing-starlings"
+    lo, hi = STARLING_SPACING
+    bound = f"{lo:g} m <= median NN <= {hi:g} m"
+    if "starlings" not in list_flocks():
+        return not_applicable(name, bound, SOURCE_SPACING, "no starling flock file")
+    coarse, _ = _species_runs("starlings", settings)
+    median = coarse["summary"]["median NN distance"]
+    return judged(
+        name,
+        median,
+        bound,
+        lo <= median <= hi,
+        SOURCE_SPACING,
+        f"median NN distance {median:.3g} m (separation radius "
+        f"{coarse['separation_radius']:g} m; mean of the second half of "
+        f"{settings.flock_duration:g} s, {len(settings.flock_seeds)} seeds)",
+    )
+
+
 def check_noise_frays(settings: VerifySettings) -> CheckResult:
     """Polarisation of an unherded flock falls as the noise grows, and noise can fray it."""
     name, bound = "noise-frays-flock", f"monotone and v_a(max noise) <= {NOISE_FRAYED}"
@@ -642,5 +669,6 @@ CHECKS = {
     "alignment-rate-vs-n": check_alignment_rate,
     "integrator-order": check_integrator_order,
     **_species_checks(),
+    "spacing-starlings": check_starling_spacing,
     "noise-frays-flock": check_noise_frays,
 }
