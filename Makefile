@@ -6,7 +6,7 @@ BIN    := $(VENV)/bin
 TORCH  := torch==2.13.0
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test soak lint type format bench clean
+.PHONY: demo test soak lint type format bench results clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -40,6 +40,19 @@ format: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/flockward bench
+
+# Regenerate every committed result with the shipped commands (tens of minutes on 2 cores): the
+# standard suite played by each scripted baseline, its leaderboard, the verification report and
+# the bench figures (verify last: it exits non-zero when a check fails). Run it after any change to dynamics, reward, observation or a suite.
+BOARD_CONTROLLERS := boundary-arc collect-drive direct-pursuit idle no-drone
+results: $(STAMP)
+	rm -f $(addprefix results/standard/,$(addsuffix .json,$(BOARD_CONTROLLERS)))
+	for c in $(BOARD_CONTROLLERS); do \
+		$(BIN)/flockward run --suite standard --controller $$c --workers 2 || exit 1; \
+	done
+	$(BIN)/flockward board --suite standard
+	$(BIN)/flockward bench > results/bench.tmp && mv results/bench.tmp results/bench.txt
+	$(BIN)/flockward verify
 
 clean:
 	rm -rf $(VENV) build dist .pytest_cache .ruff_cache
