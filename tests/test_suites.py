@@ -50,7 +50,7 @@ def test_shipped_suite_hash_is_recorded(name: str) -> None:
     key = (suite.name, suite.version)
     assert key in KNOWN_SUITE_HASHES, (
         f"suite {name!r} version {suite.version} has no recorded hash; add "
-        f"{key!r}: {digest!r} to KNOWN_SUITE_HASHES in flockward/suites.py"
+        f"{key!r}: {digest!r} to KNOWN_SUITE_HASHES in flockward/bench/suites.py"
     )
     assert KNOWN_SUITE_HASHES[key] == digest, (
         f"suite {name!r} version {suite.version} now hashes to {digest}, not the recorded "
@@ -119,6 +119,7 @@ def test_zone_override_reaches_the_scenario(tmp_path: Path) -> None:
         ("version = 1", "version = 2"),
         ('family = "gulls"', 'family = "gull"'),
         ('name = "tiny"', 'name = "tiny2"'),
+        ('family = "gulls"', 'family = "gulls"\ntier = 2'),
     ],
 )
 def test_hash_follows_content(tmp_path: Path, old: str, new: str) -> None:
@@ -126,6 +127,20 @@ def test_hash_follows_content(tmp_path: Path, old: str, new: str) -> None:
     assert new != old and old in TINY
     changed = suite_hash(load_suite(_write(tmp_path / "b.toml", TINY.replace(old, new))))
     assert changed != base
+
+
+def test_tier_one_is_the_default_and_leaves_the_hash_alone(tmp_path: Path) -> None:
+    # Regression test: suites written before tiers existed keep their hashes.
+    base = load_suite(_write(tmp_path / "a.toml", TINY))
+    tiered = TINY.replace('family = "gulls"', 'family = "gulls"\ntier = 1')
+    explicit = load_suite(_write(tmp_path / "b.toml", tiered))
+    assert [e.tier for e in base.entries] == [1, 1] == [e.tier for e in explicit.entries]
+    assert suite_hash(explicit) == suite_hash(base)
+
+
+def test_ladder_tiers_rise_from_the_easiest() -> None:
+    tiers = [e.tier for e in load_suite("ladder").entries]
+    assert tiers == sorted(tiers) and tiers[0] == 1 and len(set(tiers)) >= 4
 
 
 def test_hash_ignores_prose_and_location(tmp_path: Path) -> None:
@@ -164,6 +179,8 @@ def test_hash_follows_a_scenario_file(tmp_path: Path) -> None:
         ("version = 1", "", "missing key 'version'"),
         ('name = "tiny"', 'name = "Tiny Suite"', "key 'name' = \"Tiny Suite\": must be a lower"),
         ('family = "gulls"', 'family = "Gulls!"', "entry 2: key 'family'"),
+        ('family = "gulls"', 'family = "gulls"\ntier = 0', "entry 2: key 'tier' = 0: must be"),
+        ('family = "gulls"', 'family = "gulls"\ntier = "easy"', "entry 2: key 'tier' = \"easy\""),
         ('"episode.max_steps" = 50', '"episode.max_steps" = 0', "override 'episode.max_steps'"),
         ('"episode.max_steps" = 50', '"flock.colour" = 1', "unknown override 'flock.colour'"),
         ('overrides = { "episode.max_steps" = 50 }', "overrides = 3", "key 'overrides' = 3"),

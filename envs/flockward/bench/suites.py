@@ -17,6 +17,7 @@ File layout::
     overrides = { "flock.count" = 10, name = "headon-10" }   # optional, dotted scenario keys
     seeds = [1000, 1019]        # inclusive: 20 episodes
     family = "headon-small"     # optional label for grouping results; default: scenario name
+    tier = 2                    # optional rung of a difficulty ladder, 1 (default) the easiest
 """
 
 from __future__ import annotations
@@ -71,7 +72,8 @@ _TOP_SPECS = {
     "description": Spec("str", max_len=2000),
 }
 _TOP_KEYS = ("name", "version", "description", "entry")
-_ENTRY_KEYS = ("scenario", "overrides", "seeds", "family")
+_ENTRY_KEYS = ("scenario", "overrides", "seeds", "family", "tier")
+_TIER = Spec("int", 1, 100)
 
 
 @dataclass(frozen=True)
@@ -82,6 +84,7 @@ class SuiteEntry:
     scenario: Scenario  # with the entry's overrides applied
     overrides: tuple[tuple[str, object], ...]  # (dotted key, value), sorted by key
     seeds: tuple[int, int]  # first, last (inclusive)
+    tier: int = 1  # rung of a difficulty ladder, 1 the easiest; suites without tiers are all 1
 
     @property
     def count(self) -> int:
@@ -231,11 +234,13 @@ def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
         raise fail.plain(str(error)) from None
 
     family = convert(raw.get("family", scenario.name), _NAME, fail.origin.child("family"))
+    tier = convert(raw.get("tier", 1), _TIER, fail.origin.child("tier"))
     return SuiteEntry(
         family=str(family),
         scenario=scenario,
         overrides=tuple(sorted(overrides.items())),
         seeds=seeds,
+        tier=int(tier),  # type: ignore[call-overload]
     )
 
 
@@ -301,17 +306,23 @@ def _canonical_suite(suite: Suite) -> dict[str, object]:
     return {
         "name": suite.name,
         "version": suite.version,
-        "entries": [
-            {
-                "family": e.family,
-                "scenario": e.scenario.name,
-                "scenario_hash": scenario_hash(e.scenario),
-                "overrides": [[k, v] for k, v in e.overrides],
-                "seeds": list(e.seeds),
-            }
-            for e in suite.entries
-        ],
+        "entries": [_canonical_entry(e) for e in suite.entries],
     }
+
+
+def _canonical_entry(entry: SuiteEntry) -> dict[str, object]:
+    """One entry's hashed content; the tier only where set, so suites without tiers keep their
+    hashes."""
+    canonical: dict[str, object] = {
+        "family": entry.family,
+        "scenario": entry.scenario.name,
+        "scenario_hash": scenario_hash(entry.scenario),
+        "overrides": [[k, v] for k, v in entry.overrides],
+        "seeds": list(entry.seeds),
+    }
+    if entry.tier != 1:
+        canonical["tier"] = entry.tier
+    return canonical
 
 
 def suite_hash(suite: Suite) -> str:
