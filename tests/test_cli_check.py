@@ -101,3 +101,50 @@ def test_subprocess_no_command_is_usage_error() -> None:
     assert result.returncode == 2
     assert "usage: flockward" in result.stderr
     assert "Traceback" not in result.stderr
+
+
+def test_empty_file_defines_nothing(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    empty = tmp_path / "empty.toml"
+    empty.write_text("# nothing here\n")
+    assert main(["check", str(empty)]) == 2
+    out, err = capsys.readouterr()
+    assert out == ""
+    assert err.strip() == f"{empty}: defines nothing; a scenario, flock or drone preset needs keys"
+
+
+def test_every_error_of_a_file_in_one_pass_with_lines(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    bad = tmp_path / "several.toml"
+    bad.write_text(
+        'name = "several"\n[flock]\nfile = "gulls"\ncount = -3\ncolour = 2\n'
+        "[episode]\ndt = 9\nmax_steps = 0\n"
+    )
+    assert main(["check", str(bad)]) == 2
+    err = capsys.readouterr().err.splitlines()
+    assert sorted(err) == sorted(
+        [
+            f"{bad}:5: unknown key 'flock.colour'; allowed: " + err[0].split("allowed: ")[1],
+            f"{bad}:4: key 'flock.count' = -3: must be an integer in [1, 5000] birds",
+            f"{bad}:7: key 'episode.dt' = 9: must be a finite number in (0, 1] s",
+            f"{bad}:8: key 'episode.max_steps' = 0: must be an integer in [1, 1000000] steps",
+        ]
+    )
+
+
+def test_location_and_kind_flag_decide_the_kind(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # Drone keys only: read as a drone preset by its keys, as a flock inside a flocks/ directory.
+    text = "max_speed = 20.0\nmax_accel = 8.0\n"
+    loose = tmp_path / "preset.toml"
+    loose.write_text(text)
+    (tmp_path / "flocks").mkdir()
+    placed = tmp_path / "flocks" / "preset.toml"
+    placed.write_text(text)
+    assert main(["check", str(loose)]) == 0
+    assert "pursuer 'preset'" in capsys.readouterr().out
+    assert main(["check", str(placed)]) == 0
+    assert "(flock 'gulls': 50 birds" in capsys.readouterr().out  # a flock with two keys set
+    assert main(["check", "--kind", "scenario", str(loose)]) == 2
+    assert "unknown key 'max_speed'" in capsys.readouterr().err

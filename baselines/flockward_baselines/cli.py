@@ -13,7 +13,9 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from flockward.config.checking import file_errors
 from flockward.config.scenarios import (
+    CONFIG_KINDS,
     ConfigError,
     config_kind,
     load_flock,
@@ -39,9 +41,8 @@ EXIT_OK = 0
 EXIT_INVALID = 2  # a config is invalid (argparse also uses 2 for a bad command line)
 
 
-def _summary(path: Path) -> str:
-    """Validate one scenario, flock or pursuer file and return a one-line summary of it."""
-    kind = config_kind(path)
+def _summary(path: Path, kind: str) -> str:
+    """A one-line summary of a valid scenario, flock or pursuer file."""
     if kind == "pursuer":
         p = load_pursuer(path)
         return (
@@ -65,17 +66,21 @@ def _summary(path: Path) -> str:
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
-    """Validate scenario, flock and pursuer files; print one line per file."""
+    """Validate scenario, flock and pursuer files: every error of each file, one line each."""
     status = EXIT_OK
     for name in args.files:
+        path = Path(name)
         try:
-            line = _summary(Path(name))
+            kind = args.kind or config_kind(path)
+            errors = file_errors(path, kind)
+            line = "" if errors else _summary(path, kind)
         except (ConfigError, OSError) as exc:
-            message = str(exc) if isinstance(exc, ConfigError) else f"{name}: {exc}"
-            print(" ".join(message.split()), file=sys.stderr)
+            errors = [str(exc) if isinstance(exc, ConfigError) else f"{name}: {exc}"]
+        if errors:
+            for message in errors:
+                print(" ".join(message.split()), file=sys.stderr)
             status = EXIT_INVALID
-            continue
-        if not args.quiet:
+        elif not args.quiet:
             print(f"ok  {name}  ({line})")
     return status
 
@@ -328,11 +333,19 @@ def build_parser() -> argparse.ArgumentParser:
     check = sub.add_parser(
         "check",
         help="validate scenario, flock and pursuer files",
-        description="Validate scenario and flock TOML files (the kind is detected from the "
-        "content). Exit status 0 if all are valid, 2 if any is not.",
+        description="Validate scenario, flock and drone-preset TOML files and report every "
+        "error of each, one line each with its line number where the file shows it. A file is "
+        "checked as --kind says, else as its directory says (scenarios/, flocks/, pursuers/), "
+        "else as its keys suggest. An empty file is an error. Exit status 0 if all are valid, "
+        "2 if any is not.",
         epilog=CAUTION,
     )
-    check.add_argument("files", nargs="+", metavar="FILE", help="scenario or flock TOML file")
+    check.add_argument(
+        "files", nargs="+", metavar="FILE", help="scenario, flock or drone-preset TOML file"
+    )
+    check.add_argument(
+        "--kind", choices=CONFIG_KINDS, help="check every FILE as this kind of config"
+    )
     check.add_argument("-q", "--quiet", action="store_true", help="print only the errors")
     check.set_defaults(handler=_cmd_check)
 

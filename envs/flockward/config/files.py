@@ -21,7 +21,16 @@ __all__ = [
 
 
 class ConfigError(ValueError):
-    """A config file or override is invalid; the message is one line: FILE: key ... : allowed."""
+    """A config file or override is invalid; the message is one line: FILE: key ... : allowed.
+
+    ``file`` and ``key`` (dotted, as in the message) say where, when the error is about one key
+    of one file, so a checker can carry on past it (``flockward.config.checking``).
+    """
+
+    def __init__(self, message: str, *, file: str | None = None, key: str | None = None):
+        super().__init__(message)
+        self.file = file
+        self.key = key
 
 
 def _config_roots() -> list[Path]:

@@ -52,6 +52,7 @@ from flockward.sim.types import (
 )
 
 __all__ = [
+    "CONFIG_KINDS",
     "SCHEMA",
     "ConfigError",
     "ResetSample",
@@ -72,13 +73,31 @@ __all__ = [
 ]
 
 
+# The kind of config each shipped directory holds: a file's location says what it is.
+KIND_OF_DIRECTORY = {"scenarios": "scenario", "flocks": "flock", "pursuers": "pursuer"}
+CONFIG_KINDS = ("scenario", "flock", "pursuer")
+
+
 def config_kind(path: str | Path) -> str:
-    """'scenario' if the file holds any table (such as [site] or [flock]); 'pursuer' if it holds
-    keys and all of them are drone keys (a drone preset); else 'flock'."""
-    data = read_toml(Path(path))
+    """What a config file is: 'scenario', 'flock' or 'pursuer' (a drone preset).
+
+    A file in a directory named scenarios/, flocks/ or pursuers/ is what its directory says.
+    Elsewhere its keys decide: any table (such as [site]) makes a scenario; only drone keys make
+    a drone preset; anything else is read as a flock. An empty file is an error, not a default.
+    """
+    file = Path(path)
+    data = read_toml(file)
+    if not data:
+        raise ConfigError(
+            f"{label(file)}: defines nothing; a scenario, flock or drone preset needs keys",
+            file=label(file),
+        )
+    by_location = KIND_OF_DIRECTORY.get(file.resolve().parent.name)
+    if by_location:
+        return by_location
     if any(isinstance(v, dict) for v in data.values()):
         return "scenario"
-    return "pursuer" if data and set(data) <= set(SCHEMA["pursuer"]) else "flock"
+    return "pursuer" if set(data) <= set(SCHEMA["pursuer"]) else "flock"
 
 
 # --------------------------------------------------------------------------------------------
@@ -137,15 +156,25 @@ def _section_file(section: str, path: Path) -> _Entries:
 def load_flock(path: str | Path) -> FlockParams:
     """Read a flock file (FlockParams keys at top level) or a shipped flock by name."""
     file = resolve(path, FILE_SECTIONS["flock"])
-    origin = Origin(label(file), "", layer=1)
-    return _section_record(FlockParams, "flock", _section_file("flock", file), origin)
+    return flock_from(read_toml(file), file)
 
 
 def load_pursuer(path: str | Path) -> PursuerParams:
     """Read a drone preset (PursuerParams keys at top level) or a shipped preset by name."""
     file = resolve(path, FILE_SECTIONS["pursuer"])
+    return pursuer_from(read_toml(file), file)
+
+
+def flock_from(data: Mapping[str, object], file: Path) -> FlockParams:
+    """The flock record of a flock file's parsed ``data`` (``file`` names it in messages)."""
     origin = Origin(label(file), "", layer=1)
-    return _section_record(PursuerParams, "pursuer", _section_file("pursuer", file), origin)
+    return _section_record(FlockParams, "flock", _collect(data, "flock", origin), origin)
+
+
+def pursuer_from(data: Mapping[str, object], file: Path) -> PursuerParams:
+    """The drone record of a preset file's parsed ``data`` (``file`` names it in messages)."""
+    origin = Origin(label(file), "", layer=1)
+    return _section_record(PursuerParams, "pursuer", _collect(data, "pursuer", origin), origin)
 
 
 def parse_override(item: str) -> tuple[str, object]:
@@ -241,7 +270,14 @@ def load_scenario(
             raise ConfigError(f"{name_or_path}: unknown scenario name; shipped: {shipped}")
         name_or_path = Path(name_or_path)
     file = resolve(name_or_path, "scenarios")
-    data = read_toml(file)
+    return scenario_from(read_toml(file), file, overrides)
+
+
+def scenario_from(
+    data: Mapping[str, object], file: Path, overrides: Mapping[str, object] | None = None
+) -> Scenario:
+    """The scenario of a scenario file's parsed ``data``; ``file`` names it in messages and
+    anchors the section files it names by relative path."""
     file_label = label(file)
     top = Origin(file_label, "")
 

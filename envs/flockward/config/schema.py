@@ -89,13 +89,21 @@ class Origin:
         if len(shown) > _MAX_SHOWN:  # one line, never an echo of a long input
             shown = f"{shown[: _MAX_SHOWN - 20]}... ({len(shown)} characters)"
         text = f"{self.file}: {self.word} '{self.key}' = {shown}: {allowed}"
-        return ConfigError(" ".join(text.split("\n")))
+        return ConfigError(" ".join(text.split("\n")), file=self._file(), key=self.key)
 
     def unknown(self, sub: str, allowed: Iterable[object]) -> ConfigError:
         """The one-line error for a key nobody reads below this one, listing the allowed keys."""
         dotted = self.child(sub).key
         names = ", ".join(str(a) for a in allowed)
-        return ConfigError(f"{self.file}: unknown {self.word} '{dotted}'; allowed: {names}")
+        return ConfigError(
+            f"{self.file}: unknown {self.word} '{dotted}'; allowed: {names}",
+            file=self._file(),
+            key=dotted,
+        )
+
+    def _file(self) -> str | None:
+        """The file a key of this origin lives in; None for an override (no file holds it)."""
+        return None if self.override else self.file
 
 
 # --------------------------------------------------------------------------------------------
