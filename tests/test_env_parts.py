@@ -230,7 +230,8 @@ def test_cli_run_applies_observation_and_reward(tmp_path, capsys):
     # controller, which shows the option reaches the episodes.
     assert main([*base, "--results", str(tmp_path), "--reward", REWARD_PATH]) == 2
     assert "different environment arguments" in capsys.readouterr().err
-    assert main([*base, "--results", str(tmp_path / "plain")]) == 0
+    assert main([*base, "--results", str(tmp_path / "plain")]) == 3  # episodes errored
+    assert "expected CentroidObservation" in capsys.readouterr().err
     plain = json.loads(
         (tmp_path / "plain" / "tiny" / "custom-env-parts-chasecentroid.json").read_text()
     )

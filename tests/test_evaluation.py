@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import importlib
 import json
+import sys
 from functools import partial
 from pathlib import Path
 from typing import Any
@@ -299,3 +301,93 @@ def test_cli_runs_a_saved_model(tiny: Path, tmp_path: Path) -> None:
     again = tmp_path / "again"
     assert main([*args[:-1], str(again)]) == 0
     assert _episodes(again / "tiny" / "model-tiny-policy.json") == _episodes(path)
+
+
+# ---------------------------------------------------------------------------------------------
+# Runs never hide a failure.
+
+BARE_CONTROLLER = """
+import numpy as np
+
+
+class Bare:
+    information_level = "observation"
+
+    def __init__(self, gain=1.0):
+        self.gain = gain
+
+    def act(self, observation, state):
+        return np.zeros(2)
+{reset}
+"""
+RESET = """
+    def reset(self, scenario, seed=None):
+        pass
+"""
+BROKEN = """
+    def reset(self, scenario, seed=None):
+        raise RuntimeError("not ready")
+"""
+
+
+def _module(folder: Path, body: str) -> None:
+    """Write the user's module mine.py and forget any earlier import of it."""
+    folder.mkdir(exist_ok=True)
+    (folder / "mine.py").write_text(BARE_CONTROLLER.format(reset=body), encoding="utf-8")
+    sys.modules.pop("mine", None)
+    importlib.invalidate_caches()
+
+
+@pytest.fixture(autouse=True)
+def _forget_mine(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Each test imports its own mine.py; sys.path and sys.modules are restored afterwards."""
+    monkeypatch.delitem(sys.modules, "mine", raising=False)
+    monkeypatch.syspath_prepend(str(Path(__file__).parent))
+
+
+def test_a_controller_missing_reset_is_refused_at_load(
+    tiny: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # The working directory is importable, as with `python -m`: no PYTHONPATH needed.
+    _module(tmp_path / "work", "")
+    monkeypatch.chdir(tmp_path / "work")
+    code = main(["run", "--suite", str(tiny), "--controller", "mine:Bare", "--results", "r"])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert err.count("\n") == 1
+    assert "'mine:Bare': needs a reset(scenario, seed) method" in err
+    assert not (tmp_path / "work" / "r").exists()
+
+
+def test_episode_errors_exit_non_zero_and_are_played_again(
+    tiny: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    work = tmp_path / "work"
+    _module(work, BROKEN)
+    monkeypatch.chdir(work)
+    args = ["run", "--suite", str(tiny), "--controller", "mine:Bare", "--results", "r"]
+    assert main(args) == 3
+    err = capsys.readouterr().err
+    assert "6 episode(s) ended in a controller error" in err
+    assert "trio seed 3: reset raised RuntimeError: not ready" in err
+    # Fixed: the rerun plays every errored episode again and exits 0.
+    _module(work, RESET)
+    assert main(args) == 0
+    rows = read_results(work / "r" / "tiny" / "mine-bare.json")["episodes"]
+    assert len(rows) == 6 and all(r["outcome"] != "error" for r in rows)
+    assert "playing again 6 episode(s)" in capsys.readouterr().err
+
+
+def test_a_param_change_never_reuses_a_file(
+    tiny: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # Bare has no parameters(): its public attributes stand in, and --param is recorded too.
+    _module(tmp_path / "work", RESET)
+    monkeypatch.chdir(tmp_path / "work")
+    base = ["run", "--suite", str(tiny), "--controller", "mine:Bare", "--results", "r"]
+    assert main([*base, "--limit", "1"]) == 0
+    data = read_results(tmp_path / "work" / "r" / "tiny" / "mine-bare.json")
+    assert data["controller_parameters"] == {"gain": 1.0}
+    capsys.readouterr()
+    assert main([*base, "--param", "gain=2.0"]) == 2
+    assert "holds results of a different controller parameters" in capsys.readouterr().err

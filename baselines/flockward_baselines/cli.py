@@ -39,6 +39,7 @@ CAUTION = (
 
 EXIT_OK = 0
 EXIT_INVALID = 2  # a config is invalid (argparse also uses 2 for a bad command line)
+EXIT_EPISODE_ERRORS = 3  # flockward run: at least one episode ended in a controller error
 
 
 def _summary(path: Path, kind: str) -> str:
@@ -272,7 +273,25 @@ def _cmd_run(args: argparse.Namespace) -> int:
         print(f"run stopped: {' '.join(str(exc).split())}; rerun to resume", file=sys.stderr)
         return 1
     print(_run_summary(path, len(suite.episodes())))
-    return EXIT_OK
+    return _report_episode_errors(path)
+
+
+def _report_episode_errors(path: Path) -> int:
+    """Print the first episode error of a result file and how many there were; the exit status
+    (EXIT_EPISODE_ERRORS if any episode errored, else EXIT_OK)."""
+    from flockward.bench.evaluation import read_results
+
+    errored = [r for r in read_results(path)["episodes"] if r["outcome"] == "error"]
+    if not errored:
+        return EXIT_OK
+    first = errored[0]
+    print(
+        f"error: {len(errored)} episode(s) ended in a controller error; the first, "
+        f"{first['family']} seed {first['seed']}: {' '.join(str(first['error']).split())[:300]}. "
+        "Errors are not results: fix the controller and rerun to play them again.",
+        file=sys.stderr,
+    )
+    return EXIT_EPISODE_ERRORS
 
 
 def _cmd_train(args: argparse.Namespace) -> int:
@@ -388,13 +407,17 @@ def build_parser() -> argparse.ArgumentParser:
         help="score a controller on a benchmark suite",
         description="Play every episode of a suite with one controller and write "
         "RESULTS/SUITE/CONTROLLER.json. Rerunning resumes: finished episodes are kept and only "
-        "the missing ones are played; a file from another suite version or other controller "
-        "parameters is refused, never overwritten.",
+        "the missing ones are played, and so are episodes that ended in a controller error; a "
+        "file from another suite version or other controller parameters is refused, never "
+        "overwritten. Exit status: 0 when every episode played, 2 for bad input, 3 when any "
+        "episode ended in a controller error (the first is printed), 1 when a worker died.",
         epilog=CAUTION,
     )
     run.add_argument("--suite", default="standard", help="shipped suite name or TOML path")
     run.add_argument(
-        "--controller", help="built-in controller name or an import path package.module:Name"
+        "--controller",
+        help="built-in controller name or an import path package.module:Name (the working "
+        "directory is importable)",
     )
     run.add_argument("--model", help="a Stable-Baselines3 model .zip (observation only)")
     run.add_argument("--results", default="results", help="results directory (default results/)")

@@ -8,6 +8,9 @@ velocity). The leaderboard prints the level beside each entry, so the two are ne
 from __future__ import annotations
 
 import importlib
+import json
+import os
+import sys
 from dataclasses import dataclass
 from enum import StrEnum
 from typing import Any
@@ -57,8 +60,43 @@ class Controller:
         raise NotImplementedError
 
     def parameters(self) -> dict[str, Any]:
-        """The controller's settings, recorded in result files for provenance."""
-        return {}
+        """The controller's settings, recorded in result files for provenance; a rerun with
+        other settings is refused rather than mixed into the same file.
+
+        By default: every public attribute of the instance that is plain JSON data (numbers,
+        strings, booleans, lists and dicts of them). Override it to record exactly what
+        matters.
+        """
+        return public_settings(self)
+
+
+def public_settings(obj: object) -> dict[str, Any]:
+    """``obj``'s public instance attributes that are plain JSON data, sorted by name."""
+    settings: dict[str, Any] = {}
+    for name, value in sorted(getattr(obj, "__dict__", {}).items()):
+        if name.startswith("_"):
+            continue
+        try:
+            json.dumps(value, allow_nan=False)
+        except (TypeError, ValueError):
+            continue
+        settings[name] = value
+    return settings
+
+
+# What a class needs to be scored: (attribute, how the error names it).
+CONTRACT = (
+    ("act", "an act(observation, state) method"),
+    ("reset", "a reset(scenario, seed) method"),
+)
+
+
+def _importable_here() -> None:
+    """Put the working directory on the import path, as ``python -m`` does, so a controller in
+    the user's own folder imports without PYTHONPATH."""
+    here = os.getcwd()
+    if here not in sys.path and "" not in sys.path:
+        sys.path.insert(0, here)
 
 
 def load_controller_class(spec: str) -> type:
@@ -66,6 +104,7 @@ def load_controller_class(spec: str) -> type:
     if ":" not in spec:
         raise ValueError(f"controller {spec!r}: expected an import path 'package.module:Name'")
     module_name, _, attr = spec.partition(":")
+    _importable_here()
     try:
         module = importlib.import_module(module_name)
     except ImportError as error:
@@ -73,14 +112,17 @@ def load_controller_class(spec: str) -> type:
             f"controller {spec!r}: cannot import module {module_name!r} ({error})"
         ) from None
     try:
-        # A class by contract; checked below by its information_level and act method.
+        # A class by contract; checked below attribute by attribute.
         cls: type = getattr(module, attr)
     except AttributeError:
         raise ValueError(f"controller {spec!r}: module {module_name!r} has no {attr!r}") from None
+    missing = [what for name, what in CONTRACT if not callable(getattr(cls, name, None))]
     level = getattr(cls, "information_level", None)
-    if level not in INFORMATION_LEVELS or not callable(getattr(cls, "act", None)):
+    if level not in INFORMATION_LEVELS:
+        missing.append(f"an information_level in {INFORMATION_LEVELS} (has {level!r})")
+    if missing:
         raise ValueError(
-            f"controller {spec!r}: needs an act(observation, state) method and an "
-            f"information_level in {INFORMATION_LEVELS} (see flockward.controller.Controller)"
+            f"controller {spec!r}: needs {'; '.join(missing)} "
+            "(subclass flockward.controller.Controller to inherit reset and parameters)"
         )
     return cls

@@ -44,9 +44,10 @@ from flockward.bench.results import (
 )
 from flockward.bench.suites import EpisodeSpec, Suite, suite_hash
 from flockward.config.hashing import scenario_hash
-from flockward.controller import INFORMATION_LEVELS, Controller
+from flockward.controller import INFORMATION_LEVELS, Controller, public_settings
 from flockward.sim.types import Scenario
 from flockward.task.env_config import EnvConfig
+from flockward.task.outcome import Outcome
 
 __all__ = [
     "RESULTS_FORMAT",
@@ -199,13 +200,10 @@ def _header(suite: Suite, controller_name: str, controller: Controller) -> dict[
             f"controller {controller_name!r}: information_level {level!r} must be one of "
             f"{', '.join(INFORMATION_LEVELS)}"
         )
-    params = controller.parameters() if callable(getattr(controller, "parameters", None)) else {}
-    try:
-        params = json.loads(json.dumps(params, allow_nan=False))
-    except (TypeError, ValueError) as error:
-        raise ValueError(
-            f"controller {controller_name!r}: parameters() must return JSON data ({error})"
-        ) from None
+    # A class without parameters() is described by its public attributes, so a rerun with other
+    # settings cannot silently resume its file.
+    method = getattr(controller, "parameters", None)
+    params = method() if callable(method) else public_settings(controller)
     return {
         "format": RESULTS_FORMAT,
         "suite": suite.name,
@@ -213,8 +211,18 @@ def _header(suite: Suite, controller_name: str, controller: Controller) -> dict[
         "suite_hash": suite_hash(suite),
         "controller": controller_name,
         "information_level": level,
-        "controller_parameters": params,
+        "controller_parameters": _json_data(params, controller_name, "parameters()"),
     }
+
+
+def _json_data(value: Any, controller_name: str, what: str = "arguments") -> Any:
+    """``value`` as plain JSON data, or a one-line error saying whose ``what`` it was."""
+    try:
+        return json.loads(json.dumps(value, allow_nan=False))
+    except (TypeError, ValueError) as error:
+        raise ValueError(
+            f"controller {controller_name!r}: {what} must be JSON data ({error})"
+        ) from None
 
 
 def _resume(path: Path, header: dict[str, Any], specs: list[EpisodeSpec]) -> dict[str, Any]:
@@ -227,6 +235,7 @@ def _resume(path: Path, header: dict[str, Any], specs: list[EpisodeSpec]) -> dic
         ("controller", "controller"),
         ("information_level", "information level"),
         ("controller_parameters", "controller parameters"),
+        ("controller_arguments", "controller arguments (--param)"),
         ("environment", "environment arguments"),
     ):
         if data.get(key) != header.get(key):
@@ -252,7 +261,42 @@ def _resume(path: Path, header: dict[str, Any], specs: list[EpisodeSpec]) -> dic
                 f"{path}: episode entry {row!r:.80} does not match the suite; {advice}"
             )
         seen.add(spec.index)
+    # Errors are not results: an episode that ended in an error is played again.
+    data["episodes"] = [row for row in episodes if row.get("outcome") != Outcome.ERROR]
+    data["replayed_errors"] = len(episodes) - len(data["episodes"])
     return data
+
+
+def _open_results(
+    suite: Suite,
+    controller_factory: ControllerFactory,
+    controller_name: str,
+    results_dir: str | Path,
+    slug: str | None,
+    env_options: dict[str, Any] | None,
+    progress: bool,
+) -> tuple[Path, dict[str, Any], dict[str, Any] | None]:
+    """The run's result file, its content so far (a new header, or the file it resumes less its
+    errored episodes) and the episodes' environment arguments."""
+    probe = controller_factory()
+    header = _header(suite, controller_name, probe)
+    arguments = getattr(controller_factory, "keywords", None)  # a functools.partial's arguments
+    if arguments:
+        header["controller_arguments"] = _json_data(dict(arguments), controller_name)
+    environment = _environment(controller_env_kwargs(probe, env_options))
+    if environment is not None:
+        header["environment"] = environment
+    path = result_path(results_dir, suite.name, slug or controller_slug(controller_name))
+    specs = suite.episodes()
+    if path.exists():
+        data = _resume(path, header, specs)
+        replayed = data.pop("replayed_errors")
+        if replayed and progress:
+            print(f"{path}: playing again {replayed} episode(s) that ended in an error",
+                  file=sys.stderr)  # fmt: skip
+    else:
+        data = {**header, "provenance": _provenance(suite), "episodes": []}
+    return path, data, environment
 
 
 def run_suite(
@@ -287,17 +331,10 @@ def run_suite(
         raise ValueError(f"workers = {workers} with a backend: the backend sets the parallelism")
     if limit is not None and limit < 0:
         raise ValueError(f"limit = {limit}: must be an integer >= 0")
-    probe = controller_factory()
-    header = _header(suite, controller_name, probe)
-    environment = _environment(controller_env_kwargs(probe, env_options))
-    if environment is not None:
-        header["environment"] = environment
-    path = result_path(results_dir, suite.name, slug or controller_slug(controller_name))
+    path, data, environment = _open_results(
+        suite, controller_factory, controller_name, results_dir, slug, env_options, progress
+    )
     specs = suite.episodes()
-    if path.exists():
-        data = _resume(path, header, specs)
-    else:
-        data = {**header, "provenance": _provenance(suite), "episodes": []}
     done = {row["index"] for row in data["episodes"]}
     pending = [spec for spec in specs if spec.index not in done]
     if limit is not None:
