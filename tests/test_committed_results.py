@@ -1,62 +1,42 @@
 """Committed standard-suite results replay episode for episode (a regression test).
 
 Refactors that change no behaviour must leave every committed episode bit for bit the same; this
-replays a sample of them (the first seed of every family for every committed controller) and
-compares each record field exactly. The expensive variant replays every episode of every file.
+replays a sample of them (the first seed of every family of every committed file, through the
+``flockward audit`` machinery) and compares each record field exactly. The expensive variant
+replays every episode of every file.
 """
 
 from __future__ import annotations
 
-import functools
 import json
-from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
 import pytest
 
-from flockward.bench.evaluation import _play, run_suite
+from flockward.bench.audit import audit_results
+from flockward.bench.evaluation import run_suite
 from flockward.bench.suites import load_suite
-from flockward.controller import Controller
-from flockward_baselines.controllers import make_controller
-from flockward_baselines.policy import PolicyController
+from flockward_baselines.replay import factory_from_results
 
 ROOT = Path(__file__).resolve().parents[1]
 RESULT_FILES = sorted((ROOT / "results" / "standard").glob("*.json"))
+MODELS = ROOT / "results" / "models"
 
 
-def _factory(data: dict[str, Any]) -> Callable[[], Controller]:
-    """A picklable zero-argument factory of the file's controller (for worker processes too)."""
-    params = data["controller_parameters"]
-    if "model_sha256" in params:
-        model = ROOT / "results" / "models" / Path(params["model"]).name
-        return functools.partial(PolicyController, model, params.get("algorithm", "ppo"))
-    return functools.partial(make_controller, data["controller"], **params)
-
-
-def _replay(path: Path, first_of_family_only: bool) -> list[tuple[int, str, Any, Any]]:
-    data = json.loads(path.read_text(encoding="utf-8"))
-    suite = load_suite(data["suite"])
-    scenarios = suite.scenarios
-    rows = {row["index"]: row for row in data["episodes"]}
-    seen: set[str] = set()
-    mismatches = []
-    factory = _factory(data)
-    for spec in suite.episodes():
-        if first_of_family_only and spec.family in seen:
-            continue
-        seen.add(spec.family)
-        fresh = _play(factory, scenarios[spec.scenario_name], spec)
-        committed = rows[spec.index]
-        for key, value in committed.items():
-            if fresh.get(key) != value:
-                mismatches.append((spec.index, key, value, fresh.get(key)))
-    return mismatches
+def _factory(data: dict[str, Any]) -> Any:
+    return factory_from_results(data, MODELS)
 
 
 @pytest.mark.parametrize("path", RESULT_FILES, ids=lambda p: p.stem)
 def test_first_episode_of_every_family_replays_bit_for_bit(path: Path) -> None:
-    assert _replay(path, first_of_family_only=True) == []
+    data = json.loads(path.read_text(encoding="utf-8"))
+    first: dict[str, int] = {}
+    for spec in load_suite(data["suite"]).episodes():
+        first.setdefault(spec.family, spec.index)
+    report = audit_results(path, _factory(data), indices=list(first.values()))
+    assert len(report.audited) == len(first) > 1
+    assert [m.text() for m in report.mismatches] == []
 
 
 @pytest.mark.expensive

@@ -12,6 +12,7 @@ from typing import Any
 import numpy as np
 import pytest
 
+from flockward.bench.audit import choose_episodes
 from flockward.bench.evaluation import (
     RESULTS_FORMAT,
     ResultsConflict,
@@ -391,3 +392,32 @@ def test_a_param_change_never_reuses_a_file(
     capsys.readouterr()
     assert main([*base, "--param", "gain=2.0"]) == 2
     assert "holds results of a different controller parameters" in capsys.readouterr().err
+
+
+# ---------------------------------------------------------------------------------------------
+# Audits: replaying a result file's episodes from its stored provenance.
+
+
+def test_audit_catches_an_edited_record(
+    tiny: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    args = ["run", "--suite", str(tiny), "--controller", "direct-pursuit", "--results"]
+    assert main([*args, str(tmp_path), "--param", "target=nearest"]) == 0
+    path = tmp_path / "tiny" / "direct-pursuit.json"
+    assert main(["audit", str(path), "--suite", str(tiny)]) == 0
+    assert "6 of 6 episodes replayed, all equal" in capsys.readouterr().out
+    data = json.loads(path.read_text())
+    data["episodes"][4]["steps"] += 1
+    path.write_text(json.dumps(data))
+    assert main(["audit", str(path), "--suite", str(tiny)]) == 1
+    err = capsys.readouterr().err
+    assert "1 of 6 replayed episodes differ" in err
+    assert "episode 4 (gulls seed 1): steps stored" in err
+    # A sample finds the edit only if it draws episode 4; without the suite file it cannot run.
+    sample = ["audit", str(path), "--suite", str(tiny), "--sample", "2"]
+    for seed in range(4):
+        drawn = choose_episodes(range(6), 2, seed)
+        assert len(drawn) == 2 and drawn == sorted(set(drawn)) and set(drawn) <= set(range(6))
+        assert main([*sample, "--seed", str(seed)]) == (1 if 4 in drawn else 0)
+    assert main(["audit", str(path)]) == 2
+    assert "cannot audit" in capsys.readouterr().err

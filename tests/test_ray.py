@@ -11,7 +11,7 @@ from typing import Any
 
 import pytest
 
-from flockward.bench.evaluation import _play, read_results, run_suite
+from flockward.bench.evaluation import play_row, read_results, run_suite
 from flockward.bench.ray_backend import ray_rows, ray_session
 from flockward.bench.suites import load_suite
 from flockward_baselines.cli import main
@@ -78,9 +78,9 @@ def test_a_failing_task_raises_its_own_error(local_ray: Any) -> None:
     broken = partial(make_controller, "no-such-controller")
     calls = [(broken, suite.scenarios[spec.scenario_name], spec) for spec in suite.episodes()[:2]]
     with pytest.raises(RuntimeError) as local:
-        _play(*calls[0])
+        play_row(*calls[0])
     with pytest.raises(RuntimeError) as remote:
-        list(ray_rows(_play, calls))
+        list(ray_rows(play_row, calls))
     assert str(remote.value) == str(local.value)
     assert "the controller factory raised ValueError" in str(remote.value)
 

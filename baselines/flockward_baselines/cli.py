@@ -154,6 +154,42 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     return _cmd_show(ns)
 
 
+EXIT_AUDIT_MISMATCH = 1  # flockward audit: a replayed episode differs from its record
+AUDIT_SHOWN = 10  # mismatches printed per file
+
+
+def _cmd_audit(args: argparse.Namespace) -> int:
+    """Replay a sample of each result file's episodes and report any that differ."""
+    from flockward.bench.audit import audit_results
+    from flockward.bench.evaluation import read_results
+    from flockward.bench.suites import load_suite
+    from flockward_baselines.replay import factory_from_results
+
+    status = EXIT_OK
+    for name in args.files:
+        try:
+            data = read_results(name)
+            suite = load_suite(args.suite) if args.suite else None
+            factory = factory_from_results(data, args.models)
+            report = audit_results(name, factory, suite, args.sample, args.seed)
+        except (ConfigError, ValueError, ImportError, TypeError, OSError, KeyError) as exc:
+            print(f"{name}: cannot audit: {' '.join(str(exc).split())}", file=sys.stderr)
+            status = EXIT_INVALID
+            continue
+        if report.ok:
+            print(
+                f"ok  {name}: {len(report.audited)} of {report.total} episodes replayed, all equal"
+            )
+            continue
+        bad = sorted({m.index for m in report.mismatches})
+        print(f"MISMATCH  {name}: {len(bad)} of {len(report.audited)} replayed episodes differ",
+              file=sys.stderr)  # fmt: skip
+        for mismatch in report.mismatches[:AUDIT_SHOWN]:
+            print(f"  {mismatch.text()}", file=sys.stderr)
+        status = max(status, EXIT_AUDIT_MISMATCH)  # a file that cannot be audited (2) wins
+    return status
+
+
 def _cmd_board(args: argparse.Namespace) -> int:
     """Score a suite's result files; print the table, write leaderboard.md and leaderboard.png."""
     from flockward.bench.leaderboard import LeaderboardError, build_leaderboard
@@ -453,6 +489,26 @@ def build_parser() -> argparse.ArgumentParser:
         "--reward", help="reward of the episodes: herding (default) or package.module:Name"
     )
     run.set_defaults(handler=_cmd_run)
+
+    audit = sub.add_parser(
+        "audit",
+        help="replay a sample of a result file's episodes and compare",
+        description="Replay episodes of result files from their stored provenance (suite hash, "
+        "controller and its settings, environment arguments) and compare every stored field "
+        "exactly. A difference means a file edited by hand, another package version or a "
+        "nondeterminism bug. Exit status 0 when all match, 1 when any episode differs, 2 when "
+        "a file cannot be audited.",
+    )
+    audit.add_argument("files", nargs="+", metavar="FILE", help="result file (.json)")
+    audit.add_argument(
+        "--sample", type=int, help="episodes drawn per file (default: every episode)"
+    )
+    audit.add_argument("--seed", type=int, default=0, help="seed of the draw (default 0)")
+    audit.add_argument("--suite", help="suite name or TOML path the files were run on")
+    audit.add_argument(
+        "--models", default="results/models", help="directory of saved models (default %(default)s)"
+    )
+    audit.set_defaults(handler=_cmd_audit)
 
     board = sub.add_parser(
         "board",

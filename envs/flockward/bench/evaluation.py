@@ -52,8 +52,10 @@ from flockward.task.outcome import Outcome
 __all__ = [
     "RESULTS_FORMAT",
     "Backend",
+    "ControllerFactory",
     "ResultsConflict",
     "controller_slug",
+    "play_row",
     "read_results",
     "result_path",
     "run_suite",
@@ -146,13 +148,14 @@ def _finite(value: object) -> object:
     return value
 
 
-def _play(
+def play_row(
     factory: ControllerFactory,
     scenario: Scenario,
     spec: EpisodeSpec,
     env_options: dict[str, Any] | None = None,
 ) -> dict[str, Any]:
-    """One episode as a result row; top-level so worker processes can run it."""
+    """One suite episode as a result row, exactly as a result file stores it; top-level so
+    worker processes can run it."""
     try:
         controller = factory()
     except Exception as error:  # a user's constructor may raise anything
@@ -350,7 +353,7 @@ def run_suite(
     calls = [
         (controller_factory, scenarios[spec.scenario_name], spec, environment) for spec in pending
     ]
-    rows = _rows(calls, workers) if backend is None else backend(_play, calls)
+    rows = _rows(calls, workers) if backend is None else backend(play_row, calls)
     try:
         for row in rows:
             data["episodes"].append(row)
@@ -370,17 +373,17 @@ def run_suite(
 
 
 def _rows(calls: list[tuple[Any, ...]], workers: int) -> Iterable[dict[str, Any]]:
-    """Rows of ``_play(*call)`` as they finish: in order with one worker, any order with more."""
+    """Rows of ``play_row(*call)`` as they finish: in order with one worker, any order with more."""
     if workers == 1 or len(calls) <= 1:
         for call in calls:
-            yield _play(*call)
+            yield play_row(*call)
         return
     context = multiprocessing.get_context("spawn")
     pool = ProcessPoolExecutor(max_workers=min(workers, len(calls)), mp_context=context)
     futures: set[Future[dict[str, Any]]] = set()
     try:
         for call in calls:
-            futures.add(pool.submit(_play, *call))
+            futures.add(pool.submit(play_row, *call))
         while futures:
             finished, futures = wait(futures, return_when=FIRST_COMPLETED)
             for future in finished:
