@@ -7,6 +7,7 @@ To add a subcommand, write ``_cmd_NAME(args) -> int`` and register its parser in
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
@@ -39,6 +40,7 @@ CAUTION = (
 
 EXIT_OK = 0
 EXIT_INVALID = 2  # a config is invalid (argparse also uses 2 for a bad command line)
+EXIT_BROKEN_PIPE = 141  # the reader of stdout closed it (128 + SIGPIPE, as shells report)
 EXIT_EPISODE_ERRORS = 3  # flockward run: at least one episode ended in a controller error
 
 
@@ -84,6 +86,14 @@ def _cmd_check(args: argparse.Namespace) -> int:
         elif not args.quiet:
             print(f"ok  {name}  ({line})")
     return status
+
+
+def _cmd_schema(args: argparse.Namespace) -> int:
+    """Print every scenario key with what it allows, its default and its meaning."""
+    from flockward.config.reference import reference_table
+
+    print(reference_table(markdown=args.markdown))
+    return EXIT_OK
 
 
 def _cmd_bench(args: argparse.Namespace) -> int:
@@ -404,6 +414,16 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("-q", "--quiet", action="store_true", help="print only the errors")
     check.set_defaults(handler=_cmd_check)
 
+    schema = sub.add_parser(
+        "schema",
+        help="print every config key: allowed values, default, meaning",
+        description="Print every key a scenario file may set (flock and drone-preset files set "
+        "the [flock] and [pursuer] keys at top level): what it allows (type, range, unit), its "
+        "default and its meaning, generated from the parameter records.",
+    )
+    schema.add_argument("--markdown", action="store_true", help="as a Markdown table")
+    schema.set_defaults(handler=_cmd_schema)
+
     bench = sub.add_parser(
         "bench",
         help="measure simulator and environment throughput",
@@ -564,7 +584,14 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``flockward`` console script; returns the exit status."""
     args = build_parser().parse_args(argv)
-    return int(args.handler(args))
+    try:
+        return int(args.handler(args))
+    except BrokenPipeError:
+        # The reader went away (`flockward schema | head`): stop quietly, as Python's docs advise
+        # (point stdout at devnull so the interpreter's final flush cannot fail again).
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return EXIT_BROKEN_PIPE
 
 
 if __name__ == "__main__":
