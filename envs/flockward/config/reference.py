@@ -15,7 +15,8 @@ from dataclasses import MISSING, fields
 from typing import Any
 
 from flockward.config.schema import FILE_SECTIONS, SECTION_FILE_KEY
-from flockward.sim.limits import RECORD_SECTIONS, spec_of, value_text
+from flockward.sim.limits import RECORD_SECTIONS, value_text
+from flockward.sim.spec import spec_of
 
 __all__ = ["field_notes", "reference_rows", "reference_table"]
 
