@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import importlib
 import json
+import os
 import sys
 from functools import partial
 from pathlib import Path
@@ -20,6 +21,7 @@ from flockward.bench.evaluation import (
     read_results,
     run_suite,
 )
+from flockward.bench.results import writer_lock
 from flockward.bench.suites import load_suite, suite_hash
 from flockward.config.scenarios import scenario_hash
 from flockward.controller import Controller
@@ -421,3 +423,37 @@ def test_audit_catches_an_edited_record(
         assert main([*sample, "--seed", str(seed)]) == (1 if 4 in drawn else 0)
     assert main(["audit", str(path)]) == 2
     assert "cannot audit" in capsys.readouterr().err
+
+
+def test_a_second_writer_is_refused_and_nothing_is_lost(
+    tiny: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    args = ["run", "--suite", str(tiny), "--controller", "idle", "--results", str(tmp_path)]
+    path = tmp_path / "tiny" / "idle.json"
+    assert main([*args, "--limit", "2"]) == 0
+    with writer_lock(path):  # another run holds the file
+        assert main(args) == 2
+        assert "another run is writing this result file" in capsys.readouterr().err
+        assert len(read_results(path)["episodes"]) == 2  # untouched
+    assert main(args) == 0
+    rows = read_results(path)["episodes"]
+    assert sorted(r["index"] for r in rows) == list(range(6))
+
+
+def test_two_concurrent_runs_on_one_file_lose_nothing(tiny: Path, tmp_path: Path) -> None:
+    # Two real processes at once: each either plays episodes or is refused; a final run then
+    # completes the file with every episode exactly once.
+    import subprocess
+
+    root = Path(__file__).resolve().parents[1]
+    env = {**os.environ, "PYTHONPATH": f"{root / 'envs'}{os.pathsep}{root / 'baselines'}"}
+    command = [sys.executable, "-m", "flockward_baselines.cli", "run", "--suite", str(tiny),
+               "--controller", "direct-pursuit", "--results", str(tmp_path)]  # fmt: skip
+    runs = [subprocess.Popen(command, env=env, stderr=subprocess.PIPE, text=True) for _ in "ab"]
+    outcomes = [(run.wait(timeout=300), run.stderr.read() if run.stderr else "") for run in runs]
+    for code, err in outcomes:
+        assert code == 0 or (code == 2 and "another run is writing" in err), (code, err)
+    assert main(["run", "--suite", str(tiny), "--controller", "direct-pursuit", "--results",
+                 str(tmp_path)]) == 0  # fmt: skip
+    rows = read_results(tmp_path / "tiny" / "direct-pursuit.json")["episodes"]
+    assert sorted(r["index"] for r in rows) == list(range(6))

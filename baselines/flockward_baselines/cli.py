@@ -293,6 +293,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
             name = args.controller
             factory = partial(make_controller, args.controller, **params)
+            factory()  # a controller that breaks its contract fails here, not in a worker
         env_options = {
             key: getattr(args, key) for key in ("observation", "reward") if getattr(args, key)
         }

@@ -37,10 +37,12 @@ import flockward
 from flockward.bench.episode import controller_env_kwargs, play_episode
 from flockward.bench.results import (
     RESULTS_FORMAT,
+    ResultsBusy,
     UnreadableResults,
     format_problem,
     read_json,
     write_results,
+    writer_lock,
 )
 from flockward.bench.suites import EpisodeSpec, Suite, suite_hash
 from flockward.config.hashing import scenario_hash
@@ -53,6 +55,7 @@ __all__ = [
     "RESULTS_FORMAT",
     "Backend",
     "ControllerFactory",
+    "ResultsBusy",
     "ResultsConflict",
     "controller_slug",
     "play_row",
@@ -271,17 +274,17 @@ def _resume(path: Path, header: dict[str, Any], specs: list[EpisodeSpec]) -> dic
 
 
 def _open_results(
+    path: Path,
     suite: Suite,
     controller_factory: ControllerFactory,
+    probe: Controller,
     controller_name: str,
-    results_dir: str | Path,
-    slug: str | None,
     env_options: dict[str, Any] | None,
     progress: bool,
-) -> tuple[Path, dict[str, Any], dict[str, Any] | None]:
-    """The run's result file, its content so far (a new header, or the file it resumes less its
-    errored episodes) and the episodes' environment arguments."""
-    probe = controller_factory()
+) -> tuple[dict[str, Any], dict[str, Any] | None]:
+    """The run's content so far (a new header, or the file at ``path`` it resumes, less its
+    errored episodes) and the episodes' environment arguments. ``probe`` is one controller
+    from ``controller_factory``, read for its settings."""
     header = _header(suite, controller_name, probe)
     arguments = getattr(controller_factory, "keywords", None)  # a functools.partial's arguments
     if arguments:
@@ -289,7 +292,6 @@ def _open_results(
     environment = _environment(controller_env_kwargs(probe, env_options))
     if environment is not None:
         header["environment"] = environment
-    path = result_path(results_dir, suite.name, slug or controller_slug(controller_name))
     specs = suite.episodes()
     if path.exists():
         data = _resume(path, header, specs)
@@ -299,7 +301,7 @@ def _open_results(
                   file=sys.stderr)  # fmt: skip
     else:
         data = {**header, "provenance": _provenance(suite), "episodes": []}
-    return path, data, environment
+    return data, environment
 
 
 def run_suite(
@@ -334,9 +336,29 @@ def run_suite(
         raise ValueError(f"workers = {workers} with a backend: the backend sets the parallelism")
     if limit is not None and limit < 0:
         raise ValueError(f"limit = {limit}: must be an integer >= 0")
-    path, data, environment = _open_results(
-        suite, controller_factory, controller_name, results_dir, slug, env_options, progress
-    )
+    probe = controller_factory()  # a broken controller fails here, before any file is touched
+    path = result_path(results_dir, suite.name, slug or controller_slug(controller_name))
+    with writer_lock(path):
+        data, environment = _open_results(
+            path, suite, controller_factory, probe, controller_name, env_options, progress
+        )
+        _play_pending(path, data, suite, controller_factory, environment, workers, limit, backend,
+                      progress)  # fmt: skip
+    return path
+
+
+def _play_pending(
+    path: Path,
+    data: dict[str, Any],
+    suite: Suite,
+    controller_factory: ControllerFactory,
+    environment: dict[str, Any] | None,
+    workers: int,
+    limit: int | None,
+    backend: Backend | None,
+    progress: bool,
+) -> None:
+    """Play the suite's episodes missing from ``data`` (at most ``limit``), saving as they come."""
     specs = suite.episodes()
     done = {row["index"] for row in data["episodes"]}
     pending = [spec for spec in specs if spec.index not in done]
@@ -369,7 +391,6 @@ def run_suite(
         close = getattr(rows, "close", None)
         if callable(close):
             close()  # stop the workers now, not whenever the generator is collected
-    return path
 
 
 def _rows(calls: list[tuple[Any, ...]], workers: int) -> Iterable[dict[str, Any]]:

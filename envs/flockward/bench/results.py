@@ -10,9 +10,12 @@ A result file ``<results>/<suite>/<controller-slug>.json`` is one strict JSON ob
 
 from __future__ import annotations
 
+import contextlib
+import fcntl
 import json
 import math
 import os
+from collections.abc import Iterator
 from pathlib import Path
 from typing import Any, TypeGuard
 
@@ -23,16 +26,62 @@ from flockward.task.outcome import Outcome
 __all__ = [
     "OUTCOMES",
     "RESULTS_FORMAT",
+    "ResultsBusy",
     "UnreadableResults",
     "episode_problem",
     "file_problem",
     "format_problem",
     "read_json",
     "write_results",
+    "writer_lock",
 ]
 
 RESULTS_FORMAT = "flockward-results/1"
 OUTCOMES = tuple(o.value for o in Outcome if o is not Outcome.RUNNING)  # how episodes end
+
+
+class ResultsBusy(ValueError):
+    """Another run is writing the same result file; this one stops before touching it."""
+
+
+@contextlib.contextmanager
+def writer_lock(path: str | os.PathLike[str]) -> Iterator[None]:
+    """Hold the right to write the result file ``path`` (an exclusive lock on ``PATH.lock``).
+
+    Two runs writing one file would each resume from what it held when they started and the
+    later save would drop the other's episodes, so the second run is refused at once with
+    ResultsBusy. The lock is the operating system's (flock): a run that dies releases it; the
+    lock file is removed when the run ends.
+    """
+    lock = Path(f"{path}.lock")
+    lock.parent.mkdir(parents=True, exist_ok=True)
+    handle = _locked(lock, path)
+    try:
+        yield
+    finally:
+        lock.unlink(missing_ok=True)  # unlinked while held: a waiting run retries on a new file
+        os.close(handle)  # closing releases the lock
+
+
+def _locked(lock: Path, path: str | os.PathLike[str]) -> int:
+    """An open descriptor holding the exclusive lock on the file now at ``lock``."""
+    while True:
+        handle = os.open(lock, os.O_CREAT | os.O_RDWR, 0o666)
+        try:
+            fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            os.close(handle)
+            raise ResultsBusy(
+                f"{path}: another run is writing this result file; wait for it to finish, or "
+                "write elsewhere with --results DIR"
+            ) from None
+        try:
+            current = os.stat(lock).st_ino
+        except FileNotFoundError:
+            current = -1
+        if current == os.fstat(handle).st_ino:
+            return handle
+        os.close(handle)  # the holder unlinked it as we locked: lock the new file instead
 
 
 class UnreadableResults(ValueError):
