@@ -457,3 +457,29 @@ def test_two_concurrent_runs_on_one_file_lose_nothing(tiny: Path, tmp_path: Path
                  str(tmp_path)]) == 0  # fmt: skip
     rows = read_results(tmp_path / "tiny" / "direct-pursuit.json")["episodes"]
     assert sorted(r["index"] for r in rows) == list(range(6))
+
+
+def test_show_replays_the_stored_suite_episode(
+    tiny: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    args = ["run", "--suite", str(tiny), "--controller", "direct-pursuit", "--results"]
+    assert main([*args, str(tmp_path), "--param", "target=nearest"]) == 0
+    row = next(
+        r
+        for r in read_results(tmp_path / "tiny" / "direct-pursuit.json")["episodes"]
+        if (r["family"], r["seed"]) == ("gulls", 1)
+    )
+    capsys.readouterr()
+    out = tmp_path / "replay.png"
+    show = ["show", "--suite", str(tiny), "--family", "gulls", "--seed", "1"]
+    assert main([*show, "--controller", "direct-pursuit", "--param", "target=nearest",
+                 "--out", str(out)]) == 0  # fmt: skip
+    line = capsys.readouterr().out
+    assert out.stat().st_size > 0
+    assert f"on {row['scenario']}, seed 1: {row['outcome']} after {row['steps']} steps, " in line
+    assert f"{row['breached_birds']} birds breached, {row['peak_components']} fragment" in line
+    # An episode the suite does not hold, or two controllers at once, is a one-line error.
+    assert main(["show", "--suite", str(tiny), "--family", "gulls", "--seed", "9"]) == 2
+    assert "no such episode; families: gulls, trio" in capsys.readouterr().err
+    assert main(["show", "--controller", "idle", "--model", "m.zip", "--out", str(out)]) == 2
+    assert "not both" in capsys.readouterr().err

@@ -195,3 +195,16 @@ def test_rendering_needs_no_display_and_leaves_pyplot_unloaded(tmp_path):
         [sys.executable, "-c", script], env=env, cwd=tmp_path, capture_output=True, text=True
     )
     assert done.returncode == 0, done.stderr
+
+
+def test_first_event_times_mark_the_first_split_and_breach() -> None:
+    from flockward.render import first_event_times
+
+    frames = [
+        {"step": 0, "n_components": 1, "breached_birds": 0},
+        {"step": 5, "n_components": 2, "breached_birds": 0},
+        {"step": 6, "n_components": 1, "breached_birds": 0},
+        {"step": 9, "n_components": 3, "breached_birds": 2},
+    ]
+    assert first_event_times(frames, 0.1) == pytest.approx({"split": 0.5, "breach": 0.9})
+    assert first_event_times(frames[:1], 0.1) == {}

@@ -26,7 +26,6 @@ from flockward.config.scenarios import (
 from flockward.sim.types import Randomisation, Scenario
 
 if TYPE_CHECKING:
-    from flockward.bench.episode import EpisodeRecord
     from flockward.bench.evaluation import Backend
     from flockward.controller import Controller
 
@@ -104,37 +103,66 @@ def _cmd_bench(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def _play(
-    scenario_name: str, controller_name: str, seed: int, frames: bool
-) -> tuple[Scenario, EpisodeRecord, list[dict[str, Any]]]:
-    """One episode of a built-in or imported controller: the scenario, its record and frames."""
-    from flockward.bench.episode import play_episode
-    from flockward_baselines.controllers import make_controller
+def _show_source(args: argparse.Namespace) -> tuple[Scenario, Controller, str]:
+    """The scenario, controller and its label that ``flockward show`` plays: a scenario by
+    name or path, or the exact episode of a suite's family; a controller or a saved model."""
+    params: dict[str, Any] = dict(_controller_param(item) for item in args.param)
+    if args.model is not None:
+        from flockward_baselines.policy import PolicyController
 
-    scenario = load_scenario(scenario_name)
-    return scenario, *play_episode(scenario, make_controller(controller_name), seed, frames)
+        controller: Controller = PolicyController(args.model, **params)
+        name = f"model-{Path(args.model).stem}"
+    else:
+        from flockward_baselines.controllers import make_controller
+
+        name = args.controller
+        controller = make_controller(args.controller, **params)
+    if args.suite is None:
+        if args.family is not None:
+            raise ValueError("--family needs --suite (the suite the family belongs to)")
+        return load_scenario(args.scenario), controller, name
+    from flockward.bench.suites import load_suite
+
+    suite = load_suite(args.suite)
+    families = sorted({entry.family for entry in suite.entries})
+    for entry in suite.entries:
+        if entry.family == args.family and entry.seeds[0] <= args.seed <= entry.seeds[1]:
+            return entry.scenario, controller, name
+    raise ValueError(
+        f"--suite {args.suite} --family {args.family} --seed {args.seed}: no such episode; "
+        f"families: {', '.join(families)} (each with its seed range)"
+    )
 
 
 def _cmd_show(args: argparse.Namespace) -> int:
     """Render one episode as a GIF animation or a PNG still."""
+    from flockward.bench.episode import play_episode
     from flockward.render import episode_animation, episode_still
 
     out = Path(args.out)
     if out.suffix.lower() not in (".gif", ".png"):
         print(f"--out {out}: must end in .gif (animation) or .png (still)", file=sys.stderr)
         return EXIT_INVALID
+    if args.controller is not None and args.model is not None:
+        print("give one of --controller NAME and --model FILE.zip, not both", file=sys.stderr)
+        return EXIT_INVALID
+    if args.model is None and args.controller is None:
+        args.controller = "boundary-arc"
     try:
-        scenario, record, frames = _play(args.scenario, args.controller, args.seed, True)
-    except (ConfigError, ValueError) as exc:
+        scenario, controller, name = _show_source(args)
+        record, frames = play_episode(scenario, controller, args.seed, True)
+    except (ConfigError, ValueError, ImportError, TypeError) as exc:
         print(" ".join(str(exc).split()), file=sys.stderr)
         return EXIT_INVALID
     out.parent.mkdir(parents=True, exist_ok=True)
+    label = f"{name}, seed {args.seed}"
+    print(f"drawing {out} ({len(frames)} frames)...", file=sys.stderr, flush=True)
     if out.suffix.lower() == ".gif":
-        episode_animation(scenario, frames, out)
+        episode_animation(scenario, frames, out, label=label)
     else:
-        episode_still(scenario, frames, out)
+        episode_still(scenario, frames, out, label=label)
     print(
-        f"{args.controller} on {scenario.name}, seed {args.seed}: {record.outcome} after "
+        f"{name} on {scenario.name}, seed {args.seed}: {record.outcome} after "
         f"{record.steps} steps, {record.breached_birds} birds breached, "
         f"{record.peak_components} fragment(s) at most -> {out}"
     )
@@ -160,7 +188,10 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     print()
     print(board.render("markdown"), end="")
     board.write(args.results)
-    ns = argparse.Namespace(scenario="headon", controller="boundary-arc", seed=0, out=args.gif)
+    ns = argparse.Namespace(
+        scenario="headon", controller="boundary-arc", model=None, param=[], suite=None,
+        family=None, seed=0, out=args.gif,
+    )  # fmt: skip
     return _cmd_show(ns)
 
 
@@ -441,7 +472,22 @@ def build_parser() -> argparse.ArgumentParser:
         epilog=CAUTION,
     )
     show.add_argument("--scenario", default="headon", help="shipped scenario name or TOML path")
-    show.add_argument("--controller", default="boundary-arc", help="controller name or module:Name")
+    show.add_argument(
+        "--suite", help="replay the exact episode of this suite's --family and --seed instead"
+    )
+    show.add_argument("--family", help="the suite family the episode belongs to")
+    show.add_argument(
+        "--controller",
+        help="controller name or module:Name (default boundary-arc, unless --model)",
+    )
+    show.add_argument("--model", help="a Stable-Baselines3 model .zip to play instead")
+    show.add_argument(
+        "--param",
+        action="append",
+        default=[],
+        metavar="KEY=VALUE",
+        help="controller constructor argument (repeatable)",
+    )
     show.add_argument("--seed", type=int, default=0, help="episode seed")
     show.add_argument("--out", default="episode.gif", help="output file, .gif or .png")
     show.set_defaults(handler=_cmd_show)

@@ -163,9 +163,10 @@ def velocity_ticks(pos: np.ndarray, vel: np.ndarray) -> np.ndarray:
     return np.stack([pos, pos + TICK_SECONDS * vel], axis=1)
 
 
-def status_line(scenario: Scenario, info: Mapping[str, Any]) -> str:
-    """The text printed on a frame: scenario, step and the INFO_LABELS entries in ``info``."""
-    parts = [scenario.name, f"step {info.get('steps', 0)}"]
+def status_line(scenario: Scenario, info: Mapping[str, Any], label: str = "") -> str:
+    """The text printed on a frame: scenario, ``label`` (such as the controller and seed), step
+    and the INFO_LABELS entries in ``info``."""
+    parts = [scenario.name, *([label] if label else []), f"step {info.get('steps', 0)}"]
     parts += [f"{label} {info[key]}".strip() for key, label in INFO_LABELS.items() if key in info]
     return "   ".join(parts)
 
@@ -184,8 +185,10 @@ class FrameRenderer:
         size_px: tuple[int, int] = (640, 640),
         fps: float = 20.0,
         dpi: int = 100,
+        label: str = "",
     ):
         width, height = size_px
+        self.label = label  # printed after the scenario name on every frame
         if width < 16 or height < 16:
             raise ValueError(f"size_px = {size_px}: give (width, height) of at least 16 pixels")
         self.scenario = scenario
@@ -260,7 +263,7 @@ class FrameRenderer:
         self.track.set_color(colours)  # type: ignore[arg-type]
         drones = np.asarray(state.pursuer_pos[index], dtype=np.float64)  # (P, 2)
         self.pursuer.set_data(drones[:, 0], drones[:, 1])
-        self.text.set_text(status_line(self.scenario, info))
+        self.text.set_text(status_line(self.scenario, info, self.label))
         canvas = self.fig.canvas
         canvas.draw()
         if not isinstance(canvas, FigureCanvasAgg):
@@ -304,14 +307,32 @@ def _check_frames(frames: Sequence[Mapping[str, Any]]) -> None:
         raise ValueError("frames is empty; record at least the reset state of the episode")
 
 
+def first_event_times(frames: Sequence[Mapping[str, Any]], dt: float) -> dict[str, float]:
+    """When the flock first split (more than one cluster) and when a bird first entered the
+    protected zone (``breached_birds`` > 0), in seconds; absent events are left out."""
+    events: dict[str, float] = {}
+    for frame in frames:
+        t = float(frame["step"]) * dt
+        if "split" not in events and int(frame.get("n_components", 1)) > 1:
+            events["split"] = t
+        if "breach" not in events and int(frame.get("breached_birds", 0)) > 0:
+            events["breach"] = t
+    return events
+
+
 def episode_still(
-    scenario: Scenario, frames: Sequence[Mapping[str, Any]], out_path: str | os.PathLike[str]
+    scenario: Scenario,
+    frames: Sequence[Mapping[str, Any]],
+    out_path: str | os.PathLike[str],
+    label: str = "",
 ) -> Path:
     """Write a PNG summary of one episode: a map of trails and three metrics over time.
 
     ``frames`` holds one dict per recorded step with ``bird_pos`` (n, 2), ``bird_vel`` (n, 2),
     ``pursuer_pos`` (P, 2) (or (2,) for one drone), ``step``, ``goal_distance`` (m), ``diameter``
-    (m) and ``n_components``.
+    (m) and ``n_components``; optional ``breached_birds`` and ``outcome``. ``label`` (such as
+    the controller and seed) joins the title; the first split and first breach are marked on
+    the time plots.
     """
     _check_frames(frames)
     birds = _stack_birds(frames)  # (T, n, 2)
@@ -374,11 +395,18 @@ def episode_still(
         ax.plot([], [], "-D", color=CRIMSON, markersize=5, label="drone")[0],
     ]
     ax.legend(handles=handles, loc="lower right", fontsize=8, framealpha=0.85)
+    outcome = str(last.get("outcome", ""))
+    heading = " | ".join(
+        part
+        for part in (scenario.name, label, f"{int(last['step'])} steps ({seconds[-1]:.1f} s)")
+        if part
+    )
     fig.suptitle(
-        f"{scenario.name}: {int(last['step'])} steps ({seconds[-1]:.1f} s)",
+        f"{heading}{': ' + outcome if outcome and outcome != 'running' else ''}",
         fontsize=12,
         color=INK,
     )
+    events = first_event_times(frames, scenario.episode.dt)
 
     series = (
         ("goal_distance", "distance to goal (m)", False),
@@ -394,6 +422,10 @@ def episode_still(
             panel.set_ylim(0, np.nanmax(values, initial=1.0) + 1)
         else:
             panel.plot(seconds, values, color=INK, linewidth=1.2)
+        for (event, when), colour in zip(events.items(), (PLUM, AMBER), strict=False):
+            panel.axvline(when, color=colour, linestyle="--", linewidth=1.0, label=event)
+        if events and row == 0:
+            panel.legend(loc="upper right", fontsize=7, framealpha=0.85)
         panel.set_title(title, fontsize=9, color=INK, loc="left")
         panel.tick_params(labelsize=8, colors=INK)
         panel.grid(True, color=SLATE, linewidth=0.6)
@@ -430,11 +462,13 @@ def episode_animation(
     fps: float = 20.0,
     stride: int = 2,
     size_px: tuple[int, int] = (480, 480),
+    label: str = "",
 ) -> Path:
     """Write a looping GIF of every ``stride``-th recorded frame, played at ``fps``.
 
-    ``frames`` is as for ``episode_still``; optional ``outcome`` and ``breached_birds`` entries are
-    printed too. Frames share one fixed palette (``blend_palette``) to keep the file small.
+    ``frames`` is as for ``episode_still``; optional ``outcome`` and ``breached_birds``
+    entries are printed too, after ``label`` (such as the controller and seed). Frames share
+    one fixed palette (``blend_palette``) to keep the file small.
     """
     from PIL import Image
 
@@ -444,7 +478,7 @@ def episode_animation(
     drones = _stack_drones(frames)  # (T, P, 2)
     palette = Image.new("P", (1, 1))
     palette.putpalette(blend_palette().ravel().tolist())
-    renderer = FrameRenderer(scenario, size_px=size_px)
+    renderer = FrameRenderer(scenario, size_px=size_px, label=label)
     images: list[Image.Image] = []
     try:
         for t in range(0, len(frames), stride):

@@ -212,6 +212,7 @@ def _frame(state: WorldState, step: int, info: dict[str, Any]) -> dict[str, Any]
         "goal_distance": info.get("goal_distance", math.nan),
         "diameter": info.get("diameter", math.nan),
         "n_components": info.get("n_components", 1),
+        "breached_birds": info.get("breached_birds", 0),
         "outcome": info.get("outcome", Outcome.RUNNING),
     }
 
