@@ -9,10 +9,13 @@ STAMP  := $(VENV)/.installed
 .PHONY: demo test soak lint type format bench results clean
 
 $(STAMP): pyproject.toml
+	@echo "== creating the virtual environment $(VENV) (a few minutes the first time)"
 	$(PYTHON) -m venv $(VENV)
-	$(BIN)/pip install --quiet --upgrade pip
-	$(BIN)/pip install --quiet "$(TORCH)"
-	$(BIN)/pip install --quiet -e ".[test]" "$(TORCH)"
+	$(BIN)/pip install --progress-bar off --upgrade pip
+	@echo "== installing $(TORCH) (CPU build)"
+	$(BIN)/pip install --progress-bar off "$(TORCH)"
+	@echo "== installing flockward and its test tools"
+	$(BIN)/pip install --progress-bar off -e ".[test]" "$(TORCH)"
 	touch $(STAMP)
 
 demo: $(STAMP)

@@ -148,3 +148,17 @@ def test_location_and_kind_flag_decide_the_kind(
     assert "(flock 'gulls': 50 birds" in capsys.readouterr().out  # a flock with two keys set
     assert main(["check", "--kind", "scenario", str(loose)]) == 2
     assert "unknown key 'max_speed'" in capsys.readouterr().err
+
+
+def test_first_run_announces_the_kernel_compile(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    import flockward_baselines.cli as cli
+
+    monkeypatch.setattr(cli, "kernels_cached", lambda: False)
+    assert (
+        main(["show", "--scenario", "trio", "--seed", "1", "--out", str(tmp_path / "a.png")]) == 0
+    )
+    assert "compiling the simulator's kernels on first use" in capsys.readouterr().err
+    assert main(["check", SHIPPED[0]]) == 0  # a command that simulates nothing stays quiet
+    assert capsys.readouterr().err == ""

@@ -425,7 +425,7 @@ def build_parser() -> argparse.ArgumentParser:
         description="Benchmark for drone controllers that herd bird flocks away from airfields.",
         epilog=CAUTION,
     )
-    sub = parser.add_subparsers(title="commands", metavar="COMMAND", required=True)
+    sub = parser.add_subparsers(title="commands", metavar="COMMAND", required=True, dest="command")
 
     check = sub.add_parser(
         "check",
@@ -628,9 +628,28 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+# Commands that step the simulator, and so compile its kernels on a first run.
+SIMULATING = frozenset({"run", "show", "demo", "train", "bench", "verify", "audit"})
+
+
+def kernels_cached() -> bool:
+    """Whether numba's on-disk cache holds a compiled step kernel (numba itself decides whether
+    it is still fresh; this only tells a first run from the others)."""
+    from importlib.util import find_spec
+
+    spec = find_spec("flockward.sim.dynamics")
+    if spec is None or spec.origin is None:
+        return False
+    cache = Path(spec.origin).parent / "__pycache__"
+    return any(cache.glob("dynamics._step_worlds-*.nbi"))
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``flockward`` console script; returns the exit status."""
     args = build_parser().parse_args(argv)
+    if args.command in SIMULATING and not kernels_cached():
+        print("compiling the simulator's kernels on first use (about half a minute; cached "
+              "afterwards)...", file=sys.stderr, flush=True)  # fmt: skip
     try:
         return int(args.handler(args))
     except BrokenPipeError:
