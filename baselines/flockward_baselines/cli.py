@@ -14,6 +14,7 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from flockward.config.atomic import write_atomic
 from flockward.config.checking import file_errors
 from flockward.config.scenarios import (
     CONFIG_KINDS,
@@ -195,6 +196,72 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     return _cmd_show(ns)
 
 
+def _cmd_sweep(args: argparse.Namespace) -> int:
+    """Play a controller over a grid of parameters; write the sweep file, table and figure."""
+    from functools import partial
+
+    from flockward.bench.results import read_json
+    from flockward.bench.sweep import SweepPlan, parse_axis, run_sweep, summarise
+    from flockward.bench.sweep_report import (
+        render_csv,
+        render_json,
+        render_markdown,
+        write_figure,
+    )
+    from flockward_baselines.controllers import make_controller
+
+    try:
+        axes = tuple(parse_axis(text) for text in args.axis)
+        params = dict(_controller_param(item) for item in args.param)
+        name = args.name or "-".join(a.key.replace(".", "_") for a in axes)
+        plan = SweepPlan(
+            name=_file_stem(name),
+            scenario=args.scenario,
+            controller=args.controller,
+            parameters=params,
+            axes=axes,
+            seeds=(args.first_seed, args.first_seed + args.seeds - 1),
+        )
+        out = Path(args.results) / f"{plan.name}.json"
+        with _backend(args) as (workers, backend):
+            run_sweep(
+                plan,
+                lambda cell_params: partial(make_controller, args.controller, **cell_params),
+                out,
+                workers,
+                backend,
+            )
+        data = read_json(out)
+        summaries = summarise(data)
+        scenario = load_scenario(args.scenario)
+    except KeyboardInterrupt:
+        print("interrupted: finished episodes are saved; rerun the command to resume",
+              file=sys.stderr)  # fmt: skip
+        return 130
+    except (ConfigError, ValueError, ImportError, TypeError, OSError) as exc:
+        print(" ".join(str(exc).split()), file=sys.stderr)
+        return EXIT_INVALID
+    table = {
+        "markdown": lambda: render_markdown(data, summaries),
+        "csv": lambda: render_csv(data, summaries),
+        "json": lambda: render_json(summaries),
+    }[args.format]()
+    print(table, end="")
+    write_atomic(out.with_suffix(".md"), render_markdown(data, summaries))
+    figures = args.figure or ["png"]
+    for suffix in figures:
+        write_figure(data, summaries, scenario, out.with_suffix(f".{suffix}"))
+    print(f"-> {out} (+ .md, {', '.join('.' + s for s in figures)})", file=sys.stderr)
+    return _report_episode_errors_in(data, out)
+
+
+def _file_stem(name: str) -> str:
+    """A sweep name as a file stem: lower-case letters, digits and '-'."""
+    from flockward.bench.evaluation import controller_slug
+
+    return controller_slug(name)
+
+
 EXIT_AUDIT_MISMATCH = 1  # flockward audit: a replayed episode differs from its record
 AUDIT_SHOWN = 10  # mismatches printed per file
 
@@ -359,13 +426,19 @@ def _report_episode_errors(path: Path) -> int:
     (EXIT_EPISODE_ERRORS if any episode errored, else EXIT_OK)."""
     from flockward.bench.evaluation import read_results
 
-    errored = [r for r in read_results(path)["episodes"] if r["outcome"] == "error"]
+    return _report_episode_errors_in(read_results(path), path)
+
+
+def _report_episode_errors_in(data: dict[str, Any], path: Path) -> int:
+    """As _report_episode_errors, for the already read content ``data`` of the file ``path``."""
+    errored = [r for r in data["episodes"] if r["outcome"] == "error"]
     if not errored:
         return EXIT_OK
     first = errored[0]
+    where = first.get("family", f"cell {first.get('cell')}")
     print(
-        f"error: {len(errored)} episode(s) ended in a controller error; the first, "
-        f"{first['family']} seed {first['seed']}: {' '.join(str(first['error']).split())[:300]}. "
+        f"error: {len(errored)} episode(s) of {path} ended in a controller error; the first, "
+        f"{where} seed {first['seed']}: {' '.join(str(first['error']).split())[:300]}. "
         "Errors are not results: fix the controller and rerun to play them again.",
         file=sys.stderr,
     )
@@ -556,6 +629,48 @@ def build_parser() -> argparse.ArgumentParser:
         "--reward", help="reward of the episodes: herding (default) or package.module:Name"
     )
     run.set_defaults(handler=_cmd_run)
+
+    sweep = sub.add_parser(
+        "sweep",
+        help="map a controller's outcomes over a grid of parameters",
+        description="Play one controller on one scenario over a grid of one or two axes, each "
+        "a controller parameter (push_distance) or a dotted scenario key (flock.count), the "
+        "same seeds in every cell. Writes RESULTS/NAME.json (resumable, like run), a per-cell "
+        "table NAME.md (success, split, spill and collision rates with Wilson 95 % intervals, "
+        "median time, clearance) and a figure. Exit status as for run.",
+        epilog=CAUTION,
+    )
+    sweep.add_argument(
+        "--axis",
+        action="append",
+        required=True,
+        metavar="KEY=VALUES",
+        help="an axis: KEY=a,b,c or KEY=lo:hi:n (n values, ends included); once or twice",
+    )
+    sweep.add_argument("--scenario", default="headon", help="shipped scenario name or TOML path")
+    sweep.add_argument(
+        "--controller", default="boundary-arc", help="controller name or module:Name"
+    )
+    sweep.add_argument(
+        "--param", action="append", default=[], metavar="KEY=VALUE",
+        help="a fixed controller argument (repeatable)",
+    )  # fmt: skip
+    sweep.add_argument("--seeds", type=int, default=20, help="episodes per cell (default 20)")
+    sweep.add_argument("--first-seed", type=int, default=5000, help="first seed (default 5000)")
+    sweep.add_argument("--name", help="file stem (default: from the axes)")
+    sweep.add_argument(
+        "--results", default="results/sweeps", help="directory (default %(default)s)"
+    )
+    sweep.add_argument("--workers", type=int, help="worker processes (default 1)")
+    sweep.add_argument("--ray", nargs="?", const="", default=None, help=argparse.SUPPRESS)
+    sweep.add_argument(
+        "--format", choices=("markdown", "csv", "json"), default="markdown", help="table format"
+    )
+    sweep.add_argument(
+        "--figure", action="append", choices=("png", "svg", "pdf"), default=None,
+        help="figure formats (default png; repeatable)",
+    )  # fmt: skip
+    sweep.set_defaults(handler=_cmd_sweep)
 
     audit = sub.add_parser(
         "audit",

@@ -59,6 +59,9 @@ __all__ = [
     "ResultsConflict",
     "controller_slug",
     "play_row",
+    "play_rows",
+    "progress_bar",
+    "provenance",
     "read_results",
     "result_path",
     "run_suite",
@@ -127,17 +130,20 @@ def _git_commit() -> str | None:
     return commit if out.returncode == 0 and re.fullmatch(r"[0-9a-f]{40}", commit) else None
 
 
-def _provenance(suite: Suite) -> dict[str, Any]:
-    """Where and with what a result file was made: versions, commit, scenario hashes, time."""
-    return {
+def provenance(suite: Suite | None = None) -> dict[str, Any]:
+    """Where and with what a result file was made: versions, commit, time, and the scenario
+    hashes of ``suite`` when given."""
+    made: dict[str, Any] = {
         "flockward_version": flockward.__version__,
         "git_commit": _git_commit(),
         "python": platform.python_version(),
         "numpy": np.__version__,
         "gymnasium": gymnasium.__version__,
-        "scenario_hashes": {name: scenario_hash(s) for name, s in suite.scenarios.items()},
         "created": datetime.now(UTC).isoformat(timespec="seconds"),
     }
+    if suite is not None:
+        made["scenario_hashes"] = {name: scenario_hash(s) for name, s in suite.scenarios.items()}
+    return made
 
 
 def _finite(value: object) -> object:
@@ -300,7 +306,7 @@ def _open_results(
             print(f"{path}: playing again {replayed} episode(s) that ended in an error",
                   file=sys.stderr)  # fmt: skip
     else:
-        data = {**header, "provenance": _provenance(suite), "episodes": []}
+        data = {**header, "provenance": provenance(suite), "episodes": []}
     return data, environment
 
 
@@ -370,12 +376,12 @@ def _play_pending(
         write_results(path, data)
 
     scenarios = suite.scenarios
-    bar = _progress_bar(len(specs), len(done), f"{suite.name}/{path.stem}", progress)
+    bar = progress_bar(len(specs), len(done), f"{suite.name}/{path.stem}", progress)
     unsaved, last_save = 0, time.monotonic()
     calls = [
         (controller_factory, scenarios[spec.scenario_name], spec, environment) for spec in pending
     ]
-    rows = _rows(calls, workers) if backend is None else backend(play_row, calls)
+    rows = play_rows(calls, workers) if backend is None else backend(play_row, calls)
     try:
         for row in rows:
             data["episodes"].append(row)
@@ -393,7 +399,7 @@ def _play_pending(
             close()  # stop the workers now, not whenever the generator is collected
 
 
-def _rows(calls: list[tuple[Any, ...]], workers: int) -> Iterable[dict[str, Any]]:
+def play_rows(calls: list[tuple[Any, ...]], workers: int) -> Iterable[dict[str, Any]]:
     """Rows of ``play_row(*call)`` as they finish: in order with one worker, any order with more."""
     if workers == 1 or len(calls) <= 1:
         for call in calls:
@@ -435,7 +441,7 @@ class _NoBar:
         """Nothing to close."""
 
 
-def _progress_bar(total: int, initial: int, label: str, enabled: bool) -> _ProgressBar:
+def progress_bar(total: int, initial: int, label: str, enabled: bool) -> _ProgressBar:
     """A tqdm bar on stderr when it is a terminal and progress is wanted, else a silent stand-in."""
     if not (enabled and sys.stderr.isatty()):
         return _NoBar()

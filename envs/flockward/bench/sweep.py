@@ -1,0 +1,342 @@
+"""Parameter sweeps: where a strategy works over its own parameters and the flock's.
+
+A sweep plays one controller on one scenario over a grid of one or two axes, each a controller
+parameter (``push_distance``) or a dotted scenario key (``flock.count``), with the same seeds in
+every cell. Episodes are played by the runner's machinery (workers or a backend, fresh controller
+per episode) and kept in one resumable result file, rewritten atomically, with one writer at a
+time. Each cell is then summarised: rates of success, split, spill (breach) and collision with
+Wilson 95 % intervals, median time to success and, where records carry it, the clearance.
+
+File layout (format "flockward-sweep/1")::
+
+    {"format", "name", "scenario", "controller", "controller_parameters", "axes": [{"key",
+     "values"}], "seeds": [first, last], "provenance": {...},
+     "episodes": [{"cell": [i, j], "seed", "index", **EpisodeRecord.as_dict()}, ...]}
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import time
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from scipy.stats import binomtest
+
+from flockward.bench.evaluation import (
+    SAVE_EVERY,
+    SAVE_INTERVAL,
+    Backend,
+    ControllerFactory,
+    play_row,
+    play_rows,
+    progress_bar,
+    provenance,
+)
+from flockward.bench.results import read_json, write_results, writer_lock
+from flockward.bench.suites import EpisodeSpec
+from flockward.config.files import ConfigError
+from flockward.config.hashing import scenario_hash
+from flockward.config.scenarios import load_scenario, parse_override
+from flockward.config.schema import SECTIONS
+from flockward.sim.types import Scenario
+
+__all__ = [
+    "SWEEP_FORMAT",
+    "Axis",
+    "CellSummary",
+    "SweepConflict",
+    "SweepPlan",
+    "parse_axis",
+    "run_sweep",
+    "summarise",
+]
+
+SWEEP_FORMAT = "flockward-sweep/1"
+MAX_CELLS = 400  # a grid larger than this is almost certainly a typo in a range
+WHOLE_FRACTION = 0.9  # a flock counts as split once its largest group held less than this share
+UNDECIDED_WIDTH = 0.5  # a cell whose leading rate's interval is wider than this is not called
+
+# Makes a zero-argument controller factory from one cell's controller parameters.
+FactoryMaker = Callable[[dict[str, Any]], ControllerFactory]
+
+
+class SweepConflict(ValueError):
+    """An existing sweep file belongs to another sweep; it is left untouched."""
+
+
+@dataclass(frozen=True)
+class Axis:
+    """One axis of the grid: a controller parameter or a dotted scenario key, and its values."""
+
+    key: str
+    values: tuple[Any, ...]
+
+    @property
+    def is_scenario_key(self) -> bool:
+        """True for a scenario key (``flock.count``), False for a controller parameter."""
+        section, dot, _ = self.key.partition(".")
+        return bool(dot) and (section in SECTIONS)
+
+
+def _number_list(key: str, text: str) -> tuple[Any, ...]:
+    """Values written ``a,b,c`` or ``lo:hi:n`` (n evenly spaced values, both ends included)."""
+    if text.count(":") == 2:
+        lo_text, hi_text, n_text = text.split(":")
+        try:
+            lo, hi, n = float(lo_text), float(hi_text), int(n_text)
+        except ValueError:
+            n = 0
+        if n < 2 or not (math.isfinite(lo) and math.isfinite(hi)):
+            raise ValueError(f"axis {key}={text}: a range is lo:hi:n with n >= 2 finite numbers")
+        return tuple(float(v) for v in np.linspace(lo, hi, n))
+    values = tuple(parse_override(f"{key}={item}")[1] for item in text.split(",") if item)
+    if not values:
+        raise ValueError(f"axis {key}={text}: give values a,b,c or a range lo:hi:n")
+    return values
+
+
+def parse_axis(text: str) -> Axis:
+    """An axis from ``KEY=a,b,c`` or ``KEY=lo:hi:n`` (numbers and TOML values are parsed)."""
+    key, sep, rest = text.partition("=")
+    if not sep or not key.strip():
+        raise ValueError(f"axis {text!r}: expected KEY=a,b,c or KEY=lo:hi:n")
+    return Axis(key.strip(), _number_list(key.strip(), rest.strip()))
+
+
+@dataclass(frozen=True)
+class SweepPlan:
+    """What a sweep plays: one controller on one scenario over the grid, the same seeds in
+    every cell."""
+
+    name: str
+    scenario: str  # shipped name or path
+    controller: str
+    parameters: Mapping[str, Any]  # the controller's fixed arguments, under the axes
+    axes: tuple[Axis, ...]
+    seeds: tuple[int, int]  # first, last (inclusive)
+
+    def __post_init__(self) -> None:
+        if not 1 <= len(self.axes) <= 2:
+            raise ValueError(f"a sweep has one or two axes, not {len(self.axes)}")
+        if len({a.key for a in self.axes}) != len(self.axes):
+            raise ValueError(f"axis {self.axes[0].key} given twice")
+        if not 0 <= self.seeds[0] <= self.seeds[1]:
+            raise ValueError(f"seeds {list(self.seeds)}: need 0 <= first <= last")
+        if len(self.cells()) > MAX_CELLS:
+            raise ValueError(f"{len(self.cells())} cells: at most {MAX_CELLS} per sweep")
+
+    def cells(self) -> list[tuple[int, ...]]:
+        """Every cell as its index along each axis, first axis slowest."""
+        grid = np.indices([len(a.values) for a in self.axes]).reshape(len(self.axes), -1).T
+        return [tuple(int(i) for i in cell) for cell in grid]
+
+    def values(self, cell: Sequence[int]) -> dict[str, Any]:
+        """The axis values of a cell, by key."""
+        return {axis.key: axis.values[i] for axis, i in zip(self.axes, cell, strict=True)}
+
+    def scenario_of(self, cell: Sequence[int]) -> Scenario:
+        """The cell's scenario: the base with the cell's scenario keys set (named by cell)."""
+        overrides = {k: v for k, v in self.values(cell).items() if Axis(k, ()).is_scenario_key}
+        base = load_scenario(self.scenario)
+        name = f"{base.name}-c{'-'.join(map(str, cell))}"[:40] if overrides else base.name
+        try:
+            return load_scenario(self.scenario, {**overrides, "name": name})
+        except ConfigError as error:
+            raise ValueError(f"cell {list(cell)}: {error}") from None
+
+    def parameters_of(self, cell: Sequence[int]) -> dict[str, Any]:
+        """The controller's arguments in a cell: the fixed ones, then the cell's."""
+        axis_values = self.values(cell)
+        own = {k: v for k, v in axis_values.items() if not Axis(k, ()).is_scenario_key}
+        return {**self.parameters, **own}
+
+    def header(self) -> dict[str, Any]:
+        """What identifies the sweep in its file (a rerun must match it to resume)."""
+        return {
+            "format": SWEEP_FORMAT,
+            "name": self.name,
+            "scenario": self.scenario,
+            "scenario_hash": scenario_hash(load_scenario(self.scenario)),
+            "controller": self.controller,
+            "controller_parameters": json.loads(json.dumps(dict(self.parameters))),
+            "axes": [{"key": a.key, "values": list(a.values)} for a in self.axes],
+            "seeds": list(self.seeds),
+        }
+
+
+def _resume(path: Path, header: dict[str, Any]) -> dict[str, Any]:
+    """The sweep file's content if it continues this sweep; SweepConflict otherwise."""
+    data = read_json(path)
+    if not isinstance(data, dict):
+        raise SweepConflict(f"{path}: not a sweep file; delete it or choose another --name")
+    for key, value in header.items():
+        if data.get(key) != value:
+            raise SweepConflict(
+                f"{path}: holds another sweep ({key} = {data.get(key)!r:.80}, this sweep "
+                f"{value!r:.80}); delete it or choose another --name"
+            )
+    episodes = data.get("episodes")
+    if not isinstance(episodes, list):
+        raise SweepConflict(f"{path}: has no 'episodes' list; delete it or choose another --name")
+    data["episodes"] = [row for row in episodes if row.get("outcome") != "error"]
+    return data
+
+
+def run_sweep(
+    plan: SweepPlan,
+    make_factory: FactoryMaker,
+    path: str | Path,
+    workers: int = 1,
+    backend: Backend | None = None,
+    progress: bool = True,
+) -> Path:
+    """Play every missing episode of the sweep into the file at ``path`` and return it.
+
+    ``make_factory(parameters)`` returns a picklable zero-argument factory of the controller
+    with those arguments. Episodes that ended in an error are played again on a rerun.
+    """
+    path = Path(path)
+    header = plan.header()
+    seeds = range(plan.seeds[0], plan.seeds[1] + 1)
+    calls: list[tuple[Any, ...]] = []
+    cell_of: dict[int, list[int]] = {}
+    with writer_lock(path):
+        data = (
+            _resume(path, header)
+            if path.exists()
+            else {**header, "provenance": provenance(), "episodes": []}
+        )
+        done = {row["index"] for row in data["episodes"]}
+        for c, cell in enumerate(plan.cells()):
+            scenario = plan.scenario_of(cell)
+            factory = make_factory(plan.parameters_of(cell))
+            factory()  # bad parameters fail here, not in a worker
+            for k, seed in enumerate(seeds):
+                index = c * len(seeds) + k
+                cell_of[index] = list(cell)
+                if index not in done:
+                    spec = EpisodeSpec(f"c{c}", scenario.name, seed, index)
+                    calls.append((factory, scenario, spec, None))
+        _play(calls, data, cell_of, path, workers, backend, progress)
+    return path
+
+
+def _play(
+    calls: list[tuple[Any, ...]],
+    data: dict[str, Any],
+    cell_of: dict[int, list[int]],
+    path: Path,
+    workers: int,
+    backend: Backend | None,
+    progress: bool,
+) -> None:
+    """Play ``calls``, adding each row (with its cell) to ``data``, saving as rows come."""
+
+    def save() -> None:
+        data["episodes"].sort(key=lambda row: row["index"])
+        write_results(path, data)
+
+    bar = progress_bar(len(calls), 0, f"sweep {path.stem}", progress)
+    rows = play_rows(calls, workers) if backend is None else backend(play_row, calls)
+    unsaved, last_save = 0, time.monotonic()
+    try:
+        for row in rows:
+            row.pop("family", None)
+            data["episodes"].append({"cell": cell_of[row["index"]], **row})
+            unsaved += 1
+            bar.update(1)
+            if unsaved >= SAVE_EVERY or time.monotonic() - last_save > SAVE_INTERVAL:
+                save()
+                unsaved, last_save = 0, time.monotonic()
+    finally:
+        bar.close()
+        if unsaved or not path.exists():
+            save()
+        close = getattr(rows, "close", None)
+        if callable(close):
+            close()
+
+
+# ---------------------------------------------------------------------------------------------
+# Per-cell summaries.
+
+
+@dataclass(frozen=True)
+class Rate:
+    """k of n with its Wilson 95 % interval."""
+
+    k: int
+    n: int
+    low: float
+    high: float
+
+    @classmethod
+    def of(cls, k: int, n: int) -> Rate:
+        """The rate and interval of k successes in n trials (n = 0 gives [0, 1])."""
+        if n == 0:
+            return cls(0, 0, 0.0, 1.0)
+        ci = binomtest(k, n).proportion_ci(method="wilson")
+        return cls(k, n, float(ci.low), float(ci.high))
+
+    @property
+    def value(self) -> float:
+        """k / n (NaN for no trials)."""
+        return self.k / self.n if self.n else math.nan
+
+
+@dataclass(frozen=True)
+class CellSummary:
+    """The outcomes of one cell's episodes."""
+
+    cell: tuple[int, ...]
+    values: dict[str, Any]
+    episodes: int
+    success: Rate
+    split: Rate
+    spill: Rate  # at least one bird entered the protected zone
+    collision: Rate  # at least one step with the drone inside its safety radius of a bird
+    median_time: float  # s, to success, over the successful episodes (NaN if none)
+    clearance: float  # m, median smallest bird distance to the zone (NaN if not recorded)
+
+    @property
+    def region(self) -> str:
+        """'split', 'spilled', 'diverted' or 'mixed' by the majority outcome; 'undecided' when
+        the leading rate's interval is wider than UNDECIDED_WIDTH."""
+        rates = {"split": self.split, "spilled": self.spill, "diverted": self.success}
+        name, rate = max(rates.items(), key=lambda item: item[1].value)
+        if rate.high - rate.low > UNDECIDED_WIDTH:
+            return "undecided"
+        return name if rate.value > 0.5 else "mixed"
+
+
+def summarise(data: Mapping[str, Any]) -> list[CellSummary]:
+    """One summary per cell of a sweep file's content, in cell order."""
+    axes = [Axis(a["key"], tuple(a["values"])) for a in data["axes"]]
+    by_cell: dict[tuple[int, ...], list[Mapping[str, Any]]] = {}
+    for row in data["episodes"]:
+        by_cell.setdefault(tuple(row["cell"]), []).append(row)
+    out = []
+    for cell in sorted(by_cell):
+        rows = [r for r in by_cell[cell] if r["outcome"] != "error"]
+        n = len(rows)
+        times = [r["time_to_success"] for r in rows if r["success"]]
+        clear = [r["min_zone_clearance"] for r in rows if r.get("min_zone_clearance") is not None]
+        out.append(
+            CellSummary(
+                cell=cell,
+                values={a.key: a.values[i] for a, i in zip(axes, cell, strict=True)},
+                episodes=n,
+                success=Rate.of(sum(bool(r["success"]) for r in rows), n),
+                split=Rate.of(sum(r["min_largest_fraction"] < WHOLE_FRACTION for r in rows), n),
+                spill=Rate.of(sum(r["breached_birds"] > 0 for r in rows), n),
+                collision=Rate.of(sum(r["collision_steps"] > 0 for r in rows), n),
+                median_time=float(np.median(times)) if times else math.nan,
+                clearance=float(np.median(clear)) if clear else math.nan,
+            )
+        )
+    return out

@@ -1,0 +1,179 @@
+"""A sweep's tables (Markdown, CSV, JSON) and its figure.
+
+The figure of a two-axis sweep is a heat map of the success rate with the split and spill
+regions drawn as contours (rate 0.5) and undecided cells hatched; a one-axis sweep is a plot of
+the four rates with their Wilson bands. Where an axis is a distance from the flock, the birds'
+dodge and alarm radii are drawn on it.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import os
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+from flockward.bench.sweep import CellSummary
+from flockward.config.atomic import atomic_path
+from flockward.sim.types import Scenario
+
+__all__ = ["RADIUS_AXES", "render_csv", "render_json", "render_markdown", "write_figure"]
+
+# Controller parameters measured as a distance from the flock, in metres.
+RADIUS_AXES = ("push_distance", "standoff")
+COLUMNS = ("episodes", "success", "split", "spill", "collision", "median time (s)",
+           "clearance (m)", "region")  # fmt: skip
+
+
+def _rate(rate: Any) -> str:
+    return f"{rate.k}/{rate.n} [{rate.low:.2f}, {rate.high:.2f}]"
+
+
+def _num(x: float) -> str:
+    return "-" if math.isnan(x) else f"{x:.1f}"
+
+
+def _rows(summaries: Sequence[CellSummary]) -> list[list[str]]:
+    rows = []
+    for s in summaries:
+        values = [f"{v:g}" if isinstance(v, float) else str(v) for v in s.values.values()]
+        rows.append(
+            [*values, str(s.episodes), _rate(s.success), _rate(s.split), _rate(s.spill),
+             _rate(s.collision), _num(s.median_time), _num(s.clearance), s.region]
+        )  # fmt: skip
+    return rows
+
+
+def render_markdown(data: Mapping[str, Any], summaries: Sequence[CellSummary]) -> str:
+    """The per-cell table with a heading naming the sweep."""
+    keys = [a["key"] for a in data["axes"]]
+    head = [*keys, *COLUMNS]
+    lines = [
+        f"# Sweep `{data['name']}`: {data['controller']} on {data['scenario']}",
+        "",
+        f"Seeds {data['seeds'][0]}-{data['seeds'][1]} in every cell. Rates are k/n with "
+        "Wilson 95 % intervals; split: the largest group fell below 90 % of the flock; spill: a "
+        "bird entered the protected zone; region: the majority outcome ('undecided' when its "
+        "interval is wider than 0.5).",
+        "",
+        "| " + " | ".join(head) + " |",
+        "|" + "|".join("---" for _ in head) + "|",
+    ]
+    lines += ["| " + " | ".join(row) + " |" for row in _rows(summaries)]
+    return "\n".join(lines) + "\n"
+
+
+def render_csv(data: Mapping[str, Any], summaries: Sequence[CellSummary]) -> str:
+    """The per-cell table as CSV (rates as k/n [low, high])."""
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow([*[a["key"] for a in data["axes"]], *COLUMNS])
+    writer.writerows(_rows(summaries))
+    return out.getvalue()
+
+
+def render_json(summaries: Sequence[CellSummary]) -> str:
+    """The per-cell summaries as JSON (rates as {k, n, low, high}; NaN as null)."""
+
+    def rate(r: Any) -> dict[str, Any]:
+        return {"k": r.k, "n": r.n, "low": r.low, "high": r.high}
+
+    def finite(x: float) -> float | None:
+        return None if math.isnan(x) else x
+
+    cells = [
+        {
+            "cell": list(s.cell),
+            "values": s.values,
+            "episodes": s.episodes,
+            "success": rate(s.success),
+            "split": rate(s.split),
+            "spill": rate(s.spill),
+            "collision": rate(s.collision),
+            "median_time": finite(s.median_time),
+            "clearance": finite(s.clearance),
+            "region": s.region,
+        }
+        for s in summaries
+    ]
+    return json.dumps(cells, indent=1) + "\n"
+
+
+def _radii(ax: Any, scenario: Scenario, vertical: bool) -> None:
+    """The flock's dodge and alarm radii as lines across a distance axis."""
+    for radius, label, style in (
+        (scenario.flock.dodge_radius, "dodge radius", ":"),
+        (scenario.flock.alarm_radius, "alarm radius", "--"),
+    ):
+        line = ax.axvline if vertical else ax.axhline
+        line(radius, color="0.25", linestyle=style, linewidth=1.0, label=label)
+
+
+def write_figure(
+    data: Mapping[str, Any],
+    summaries: Sequence[CellSummary],
+    scenario: Scenario,
+    out_path: str | os.PathLike[str],
+) -> Path:
+    """The sweep's figure as PNG, SVG or PDF (by the file's suffix)."""
+    axes = data["axes"]
+    fig = Figure(figsize=(7.5, 5.0), dpi=120)
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot(1, 1, 1)
+    title = f"{data['controller']} on {data['scenario']}: sweep '{data['name']}'"
+    if len(axes) == 1:
+        xs = np.array([float(s.values[axes[0]["key"]]) for s in summaries])
+        for name, colour in (("success", "tab:green"), ("split", "tab:purple"),
+                             ("spill", "tab:orange"), ("collision", "tab:red")):  # fmt: skip
+            rates = [getattr(s, name) for s in summaries]
+            ax.plot(xs, [r.value for r in rates], "o-", color=colour, label=name)
+            ax.fill_between(xs, [r.low for r in rates], [r.high for r in rates], color=colour,
+                            alpha=0.15, linewidth=0)  # fmt: skip
+        ax.set_xlabel(axes[0]["key"])
+        ax.set_ylabel("share of episodes (Wilson 95 % band)")
+        ax.set_ylim(-0.02, 1.02)
+        if axes[0]["key"] in RADIUS_AXES:
+            _radii(ax, scenario, vertical=True)
+    else:
+        xs = np.array([float(v) for v in axes[0]["values"]])
+        ys = np.array([float(v) for v in axes[1]["values"]])
+        grids = {
+            name: np.full((len(ys), len(xs)), np.nan) for name in ("success", "split", "spill")
+        }
+        undecided = np.zeros((len(ys), len(xs)), dtype=bool)
+        for s in summaries:
+            i, j = s.cell
+            for name, grid in grids.items():
+                grid[j, i] = getattr(s, name).value
+            undecided[j, i] = s.region == "undecided"
+        mesh = ax.pcolormesh(xs, ys, grids["success"], vmin=0.0, vmax=1.0, cmap="Greens",
+                             shading="nearest")  # fmt: skip
+        fig.colorbar(mesh, ax=ax, label="success rate")
+        if len(xs) > 1 and len(ys) > 1:
+            for name, colour in (("split", "tab:purple"), ("spill", "tab:orange")):
+                ax.contour(xs, ys, grids[name], levels=[0.5], colors=colour, linewidths=1.5)
+                ax.plot([], [], color=colour, label=f"{name} rate 0.5")
+        jj, ii = np.nonzero(undecided)
+        ax.scatter(xs[ii], ys[jj], marker="x", color="0.3", label="undecided")
+        ax.set_xlabel(axes[0]["key"])
+        ax.set_ylabel(axes[1]["key"])
+        if axes[0]["key"] in RADIUS_AXES:
+            _radii(ax, scenario, vertical=True)
+        if axes[1]["key"] in RADIUS_AXES:
+            _radii(ax, scenario, vertical=False)
+    ax.set_title(title, fontsize=10)
+    ax.legend(fontsize=8, loc="best")
+    ax.grid(True, alpha=0.3)
+    fig.tight_layout()
+    out = Path(out_path)
+    with atomic_path(out) as tmp:
+        fig.savefig(tmp, format=out.suffix.lstrip(".").lower() or "png")
+    return out
