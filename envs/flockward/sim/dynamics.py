@@ -34,7 +34,11 @@ slopes, no libm call in the pair loop):
   A_dodge rho(d/r_dodge) along n = unit(r - lam (r.e) e): r the drone-to-bird offset, e the
   drone's line of approach (its velocity relative to the bird, or over the ground), lam grows
   with the approach speed from 0 to ``DODGE_LAMBDA_MAX``. Each bird dodges to its own side of the
-  drone's path; a hovering drone sends each bird along its own bearing.
+  drone's path; a hovering drone sends each bird along its own bearing. Option
+  ``escape_thrust`` = "power-limited" (default "free"): the forward part of both (along the
+  bird's velocity) is scaled by clip((v_burst - s)/(v_burst - cruise), 0, 1), as the power margin
+  for speeding up vanishes at the top speed (Pennycuick's power curve, from memory); with "free"
+  a closely chased bird reaches the max_speed safety net.
 
 The requests share the steering budget ``max_accel`` in priority order (separation, dodge, flee,
 alignment, cohesion, destination; Reynolds 1987 allocates by priority too). Each request of
@@ -120,6 +124,7 @@ _C_AFLEE = K["flee_accel"]
 _C_RDGE = K["dodge_radius"]
 _C_ADGE = K["dodge_accel"]
 _C_DFRAME = K["dodge_frame"]
+_C_THRUST = K["escape_thrust"]
 _C_NMODEL = K["noise_model"]
 _C_NOISE = K["noise_std"]
 _C_TOPK = K["neighbours"]
@@ -177,9 +182,13 @@ def _fear_requests(
     a_flee: float,
     a_dodge: float,
     relative: bool,
+    cruise: float,
+    burst: float,
+    power_limited: bool,
 ) -> tuple[float, float, float, float, float]:
     """One bird's flight and dodge requests from the nearest drone (the first on a tie), and its
-    fear level in [0, 1]; all zero without drones."""
+    fear level in [0, 1]; all zero without drones. ``power_limited``: their forward parts fade
+    with airspeed from full at ``cruise`` to none at ``burst`` (``_power_limited``)."""
     fx = fy = ox = oy = fear = 0.0
     n_drones = drones.shape[0]
     if n_drones == 0:
@@ -216,7 +225,31 @@ def _fear_requests(
             m = a_dodge * bump(d / r_dodge, BUMP_PLATEAU) / nn
             ox = m * nx
             oy = m * ny
+    if power_limited:
+        fx, fy = _power_limited(fx, fy, vxi, vyi, cruise, burst)
+        ox, oy = _power_limited(ox, oy, vxi, vyi, cruise, burst)
     return fx, fy, ox, oy, fear
+
+
+@compiled_inline
+def _power_limited(
+    qx: float, qy: float, vx: float, vy: float, cruise: float, burst: float
+) -> tuple[float, float]:
+    """A fear request whose forward part (along the velocity, speeding up) is scaled by
+    w = clip((burst - s) / (burst - cruise), 0, 1): the power margin above what flight at speed s
+    needs shrinks to nothing at the top speed, so fright can turn a bird at any speed but cannot
+    drive it past burst speed. The sideways and braking parts pass unchanged."""
+    s = math.sqrt(vx * vx + vy * vy)
+    if s <= _TINY:
+        return qx, qy
+    ux = vx / s
+    uy = vy / s
+    ahead = qx * ux + qy * uy
+    if ahead <= 0.0:
+        return qx, qy
+    w = min(1.0, max(0.0, (burst - s) / (burst - cruise))) if burst > cruise else 0.0
+    cut = (1.0 - w) * ahead
+    return qx - cut * ux, qy - cut * uy
 
 
 @compiled_inline
@@ -429,6 +462,7 @@ def flock_acceleration(
     a_flee = prm[_C_AFLEE]
     a_dodge = prm[_C_ADGE]
     relative = prm[_C_DFRAME] == 0.0
+    power_limited = prm[_C_THRUST] == 1.0
     k_top = int(prm[_C_TOPK])
     reach = prm[_C_TOPC]
     limit2 = (r_coh / reach) * (r_coh / reach)
@@ -490,8 +524,9 @@ def flock_acceleration(
         speed, ux, uy = _heading(vxi, vyi)
         tx, ty = _destination_request(i, informed, destination, xi, yi, ux, uy, k_dst, cruise)
         fx, fy, ox, oy, fear = _fear_requests(
-            xi, yi, vxi, vyi, drones, drone_vel, r_alarm, r_dodge, a_flee, a_dodge, relative
-        )
+            xi, yi, vxi, vyi, drones, drone_vel, r_alarm, r_dodge, a_flee, a_dodge, relative,
+            cruise, burst, power_limited,
+        )  # fmt: skip
         ax, ay = _allocate(sx, sy, ox, oy, fx, fy, alx, aly, cx, cy, tx, ty, a_max)
         preferred = cruise + (burst - cruise) * fear
         out[i, 0] = ax + k_v * (preferred - speed) * ux

@@ -30,6 +30,7 @@ if TYPE_CHECKING:
 FORMATIONS = ("disc", "hex", "line", "cluster")
 ALIGNMENT_MODELS = ("motsch-tadmor", "cucker-smale")
 DODGE_FRAMES = ("relative", "ground")
+ESCAPE_THRUSTS = ("free", "power-limited")
 NOISE_MODELS = ("heading", "vector")
 # Most topological neighbours a bird can follow (the kernel keeps their distances sorted per bird).
 MAX_NEIGHBOURS = 16
@@ -113,6 +114,9 @@ class FlockParams:
     dodge_accel: float = param(12.0, number(0.0, 1000.0, "m/s^2"))
     # line of approach: the drone's velocity relative to the bird, or over the ground
     dodge_frame: str = param("relative", Spec("choice", choices=DODGE_FRAMES))
+    # free: flight and dodge may speed a bird up at any airspeed (the max_speed clamp stops it);
+    # power-limited: their forward push fades from full at cruise to none at burst speed
+    escape_thrust: str = param("free", Spec("choice", choices=ESCAPE_THRUSTS))
     # heading: rotational diffusion (rad/s^0.5); vector: white-noise acceleration (m/s^1.5)
     noise_model: str = param("heading", Spec("choice", choices=NOISE_MODELS))
     noise_std: float = param(0.05, number(0.0, 40.0, "rad/s^0.5 or m/s^1.5"))
@@ -161,6 +165,7 @@ KERNEL_FIELDS = (
     "dodge_radius",
     "dodge_accel",
     "dodge_frame",
+    "escape_thrust",
     "noise_model",
     "noise_std",
     "neighbours",
@@ -170,6 +175,7 @@ KERNEL_FIELDS = (
 _KERNEL_CHOICES = {
     "alignment_model": ALIGNMENT_MODELS,
     "dodge_frame": DODGE_FRAMES,
+    "escape_thrust": ESCAPE_THRUSTS,
     "noise_model": NOISE_MODELS,
 }
 
