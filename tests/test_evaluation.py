@@ -371,7 +371,7 @@ def test_episode_errors_exit_non_zero_and_are_played_again(
     args = ["run", "--suite", str(tiny), "--controller", "mine:Bare", "--results", "r"]
     assert main(args) == 3
     err = capsys.readouterr().err
-    assert "6 episode(s) ended in a controller error" in err
+    assert "6 episode(s) of r/tiny/mine-bare.json ended in a controller error" in err
     assert "trio seed 3: reset raised RuntimeError: not ready" in err
     # Fixed: the rerun plays every errored episode again and exits 0.
     _module(work, RESET)

@@ -34,8 +34,8 @@ slopes, no libm call in the pair loop):
   A_dodge rho(d/r_dodge) along n = unit(r - lam (r.e) e): r the drone-to-bird offset, e the
   drone's line of approach (its velocity relative to the bird, or over the ground), lam grows
   with the approach speed from 0 to ``DODGE_LAMBDA_MAX``. Each bird dodges to its own side of the
-  drone's path; a hovering drone sends each bird along its own bearing. Option
-  ``escape_thrust`` = "power-limited" (default "free"): the forward part of both (along the
+  drone's path; a hovering drone sends each bird along its own bearing. With ``escape_thrust``
+  = "power-limited" (the default; "free" is the option) the forward part of both (along the
   bird's velocity) is scaled by clip((v_burst - s)/(v_burst - cruise), 0, 1), as the power margin
   for speeding up vanishes at the top speed (Pennycuick's power curve, from memory); with "free"
   a closely chased bird reaches the max_speed safety net.

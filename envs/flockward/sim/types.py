@@ -114,9 +114,10 @@ class FlockParams:
     dodge_accel: float = param(12.0, number(0.0, 1000.0, "m/s^2"))
     # line of approach: the drone's velocity relative to the bird, or over the ground
     dodge_frame: str = param("relative", Spec("choice", choices=DODGE_FRAMES))
-    # free: flight and dodge may speed a bird up at any airspeed (the max_speed clamp stops it);
-    # power-limited: their forward push fades from full at cruise to none at burst speed
-    escape_thrust: str = param("free", Spec("choice", choices=ESCAPE_THRUSTS))
+    # power-limited: the forward push of flight and dodge fades from full at cruise to none at
+    # burst speed (no power margin at top speed); free: fright may speed a bird up at any
+    # airspeed, until the max_speed safety net stops it (the behaviour before this option)
+    escape_thrust: str = param("power-limited", Spec("choice", choices=ESCAPE_THRUSTS))
     # heading: rotational diffusion (rad/s^0.5); vector: white-noise acceleration (m/s^1.5)
     noise_model: str = param("heading", Spec("choice", choices=NOISE_MODELS))
     noise_std: float = param(0.05, number(0.0, 40.0, "rad/s^0.5 or m/s^1.5"))
