@@ -22,8 +22,8 @@ demo: $(STAMP)
 	$(BIN)/flockward demo
 
 test: $(STAMP)
-	$(BIN)/ruff check envs baselines tests
-	$(BIN)/ruff format --check envs baselines tests
+	$(BIN)/ruff check envs baselines tests examples
+	$(BIN)/ruff format --check envs baselines tests examples
 	$(BIN)/mypy
 	$(BIN)/python -m pytest -q
 
@@ -32,14 +32,14 @@ soak: $(STAMP)
 	$(BIN)/python -m pytest -q -m expensive
 
 lint: $(STAMP)
-	$(BIN)/ruff check envs baselines tests
+	$(BIN)/ruff check envs baselines tests examples
 
 type: $(STAMP)
 	$(BIN)/mypy
 
 format: $(STAMP)
-	$(BIN)/ruff format envs baselines tests
-	$(BIN)/ruff check --fix envs baselines tests
+	$(BIN)/ruff format envs baselines tests examples
+	$(BIN)/ruff check --fix envs baselines tests examples
 
 bench: $(STAMP)
 	$(BIN)/flockward bench

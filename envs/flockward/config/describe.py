@@ -19,7 +19,8 @@ def describe(scenario: Scenario) -> str:
         f"  birds:     {f.count} {f.name} in a {f.formation} formation, "
         f"spacing {n(f.spacing)} m, heading {heading}",
         f"  speeds:    start {n(f.speed)}, cruise {n(f.cruise_speed)}, "
-        f"range {n(f.min_speed)}-{n(f.max_speed)} m/s; noise {n(f.noise_std)} m/s^2",
+        f"range {n(f.min_speed)}-{n(f.max_speed)} m/s; noise {n(f.noise_std)} "
+        f"{'rad/s^0.5 (heading)' if f.noise_model == 'heading' else 'm/s^1.5 (acceleration)'}",
         f"  source:    {f.source}",
         f"  protected: {zone_text(site.protected)}",
         f"  goal:      {zone_text(site.goal)}",
