@@ -217,6 +217,18 @@ def _header(suite: Suite, controller_name: str, controller: Controller) -> dict[
     }
 
 
+def _variant(label: str | None, default_parameters: dict[str, Any] | None) -> dict[str, Any]:
+    """Header entries naming a run variant: its label and the controller's default parameters."""
+    entries: dict[str, Any] = {}
+    if label is not None:
+        if not label.strip():
+            raise ValueError(f"label {label!r}: must contain letters or digits")
+        entries["label"] = label
+    if default_parameters is not None:
+        entries["default_parameters"] = json.loads(json.dumps(default_parameters, allow_nan=False))
+    return entries
+
+
 def _resume(path: Path, header: dict[str, Any], specs: list[EpisodeSpec]) -> dict[str, Any]:
     """The existing file's content if it continues this exact run; ResultsConflict otherwise."""
     data = read_results(path)
@@ -228,6 +240,7 @@ def _resume(path: Path, header: dict[str, Any], specs: list[EpisodeSpec]) -> dic
         ("information_level", "information level"),
         ("controller_parameters", "controller parameters"),
         ("environment", "environment arguments"),
+        ("label", "label"),
     ):
         if data.get(key) != header.get(key):
             raise ResultsConflict(
@@ -266,6 +279,8 @@ def run_suite(
     slug: str | None = None,
     backend: Backend | None = None,
     env_options: dict[str, Any] | None = None,
+    label: str | None = None,
+    default_parameters: dict[str, Any] | None = None,
 ) -> Path:
     """Play the suite's missing episodes with fresh controllers and return the result file.
 
@@ -279,7 +294,9 @@ def run_suite(
     file keeps the provenance of the session that created it. ``env_options`` are environment
     arguments for every episode (EnvConfig fields other than scenario, overrides and
     render_mode, e.g. ``{"observation": "pkg.mod:MyObs"}``), recorded in the file's header
-    under "environment" when given.
+    under "environment" when given. ``label`` names the run on the leaderboard (a variant of a
+    controller, e.g. other parameters) and by default the file; ``default_parameters``, the
+    controller's parameters() without overrides, lets the leaderboard show what was changed.
     """
     if workers < 1:
         raise ValueError(f"workers = {workers}: must be an integer >= 1")
@@ -292,7 +309,9 @@ def run_suite(
     environment = _environment(controller_env_kwargs(probe, env_options))
     if environment is not None:
         header["environment"] = environment
-    path = result_path(results_dir, suite.name, slug or controller_slug(controller_name))
+    header.update(_variant(label, default_parameters))
+    default_slug = controller_slug(label if label is not None else controller_name)
+    path = result_path(results_dir, suite.name, slug or default_slug)
     specs = suite.episodes()
     if path.exists():
         data = _resume(path, header, specs)
