@@ -109,6 +109,8 @@ def test_compare_errors_are_one_line(results: Path, capsys: Any) -> None:
     assert len(err) == 1 and "gamma" in err[0] and "available: alpha, beta" in err[0]
     assert main(["compare", "alpha", "alpha", *base]) == 2
     assert "itself" in capsys.readouterr().err
+    assert main(["compare", "alpha", "beta", *base, "--reps", "0"]) == 2
+    assert "--reps 0" in capsys.readouterr().err
 
 
 def test_render_notes_unpaired_episodes() -> None:

@@ -164,7 +164,7 @@ def _cmd_board(args: argparse.Namespace) -> int:
     """Score a suite's result files; print the pooled and per-family tables, write
     leaderboard.md and the charts (and performance profiles with --profiles)."""
     from flockward.bench.charts import write_profiles
-    from flockward.bench.leaderboard import LeaderboardError, build_leaderboard
+    from flockward.bench.leaderboard import LeaderboardError, build_leaderboard, row_name
 
     try:
         board = build_leaderboard(args.results, args.suite)
@@ -175,29 +175,25 @@ def _cmd_board(args: argparse.Namespace) -> int:
     written = board.write(args.results)
     if args.profiles:
         names = [r["controller"] for r in board.rows]
-        by_name = {_row_name(r): r for r in board.results}
+        by_name = {row_name(r): r for r in board.results}
         written += (write_profiles([by_name[n] for n in names], names, args.profiles),)
     print(f"wrote {', '.join(str(p) for p in written)}", file=sys.stderr)
     return EXIT_OK
-
-
-def _row_name(result: dict[str, Any]) -> str:
-    from flockward.bench.leaderboard import row_name
-
-    return row_name(result)
 
 
 def _cmd_compare(args: argparse.Namespace) -> int:
     """Compare two controllers' result files on the same suite, paired by episode."""
     from flockward.bench.charts import write_profiles
     from flockward.bench.compare import compare_results, render_comparison
-    from flockward.bench.leaderboard import LeaderboardError, load_suite_results
+    from flockward.bench.leaderboard import LeaderboardError, load_suite_results, row_name
 
     try:
         if args.a == args.b:
             raise LeaderboardError(f"compare {args.a} with another controller, not itself")
+        if args.reps < 1:
+            raise LeaderboardError(f"--reps {args.reps}: must be an integer >= 1")
         name, results = load_suite_results(args.results, args.suite)
-        by_name = {_row_name(r): r for r in results}
+        by_name = {row_name(r): r for r in results}
         missing = [c for c in (args.a, args.b) if c not in by_name]
         if missing:
             raise LeaderboardError(

@@ -122,6 +122,8 @@ def paired_bootstrap(
     ]
     if not tasks or any(a.size == 0 or a.size != b.size for a, b in tasks):
         raise ValueError("paired_bootstrap needs tasks with the same non-zero number of pairs")
+    if reps < 1:
+        raise ValueError(f"reps = {reps}: must be an integer >= 1")
     rng = np.random.default_rng(seed)
     total = sum(a.size for a, _ in tasks)
     sums = np.zeros(reps)
@@ -155,6 +157,8 @@ def performance_profile(
     tasks = [np.asarray(t, dtype=float).reshape(-1) for t in scores_by_task]
     if not tasks or any(t.size == 0 for t in tasks):
         raise ValueError("performance_profile needs at least one task, each with scores")
+    if reps < 1:
+        raise ValueError(f"reps = {reps}: must be an integer >= 1")
     pooled = np.concatenate(tasks)
     profile = (pooled[:, None] > tau[None, :]).mean(axis=0)
     rng = np.random.default_rng(seed)
