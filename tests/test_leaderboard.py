@@ -504,7 +504,7 @@ def test_markdown_has_pooled_and_family_tables(results: Path, capsys: Any) -> No
     assert main(["board", "--suite", "standard", "--results", str(results)]) == 0
     out = capsys.readouterr().out
     assert "## Per family" in out
-    assert "| headon | alpha | 3 | 2/3 |" in out
+    assert "| headon | alpha | 3 | 2/3 |" in out and "| 120.0 m |" in out
     assert (results / "standard" / "leaderboard-families.png").read_bytes().startswith(PNG_MAGIC)
     assert main(["board", "--suite", "standard", "--results", str(results), "--format", "csv",
                  "--families"]) == 0  # fmt: skip
@@ -552,4 +552,19 @@ def test_board_takes_a_suite_file(tmp_path: Path, capsys: Any) -> None:
 def test_board_profiles_chart(results: Path, tmp_path: Path, capsys: Any) -> None:
     out = tmp_path / "profiles.png"
     assert main(["board", "--results", str(results), "--profiles", str(out)]) == 0
+    assert out.read_bytes().startswith(PNG_MAGIC)
+
+
+@pytest.mark.parametrize("outcome", ["success", "timeout"])
+def test_family_chart_at_all_or_no_successes(tmp_path: Path, outcome: str) -> None:
+    # Regression: at 30/30 the Wilson bound rounded a hair below the rate and the chart crashed.
+    eps = [_ep("f", outcome, t=40.0, seed=i) for i in range(30)]
+    rows = lb.build_family_rows([_result("a", "state", eps)])
+    if outcome == "success":
+        assert rows[0]["success_ci_high"] == 1.0
+    else:
+        assert rows[0]["success_ci_low"] == 0.0
+    from flockward.bench.charts import write_family_chart
+
+    out = write_family_chart(rows, tmp_path / "f.png", "standard")
     assert out.read_bytes().startswith(PNG_MAGIC)

@@ -40,7 +40,8 @@ def write_family_chart(
         f, c = families.index(r["family"]), names.index(r["controller"])
         y = (len(families) - 1 - f) * step + (len(names) - 1 - c)
         mid = r["success_rate"]
-        err = [[mid - r["success_ci_low"]], [r["success_ci_high"] - mid]]
+        # Clamped at 0: at 0 % and 100 % rounding may put the bound a hair inside the rate.
+        err = [[max(0.0, mid - r["success_ci_low"])], [max(0.0, r["success_ci_high"] - mid)]]
         ax.errorbar([mid], [y], xerr=err, fmt="o", ms=5, color=PALETTE[c % len(PALETTE)],
                     elinewidth=2, capsize=3)  # fmt: skip
     centres = [(len(families) - 1 - f) * step + (len(names) - 1) / 2 for f in range(len(families))]

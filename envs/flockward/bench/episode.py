@@ -28,9 +28,7 @@ class EpisodeRecord:
     outcome: str  # success | breach | timeout | error
     steps: int
     time_to_success: float | None  # s, None unless success
-    time_limit: float  # s, the longest the episode could last: step budget * dt
     breached_birds: int  # distinct birds that entered the protected zone
-    min_zone_clearance: float  # m, least signed distance of any bird to the zone (< 0: inside)
     peak_components: int  # most flock fragments at any step
     min_largest_fraction: float  # lowest share of birds in the largest fragment
     collision_steps: int  # steps with a drone inside its safety radius of a bird
@@ -39,6 +37,8 @@ class EpisodeRecord:
     path_length: float  # m, drone track lengths summed over the drones
     energy: float  # (m/s^2)^2 s, integral of the commanded acceleration squared, over the drones
     episode_return: float
+    min_zone_clearance: float  # m, least signed distance of any bird to the zone (< 0: inside)
+    time_limit: float  # s, the longest the episode could last: step budget * dt
     error: str | None = None  # why the controller failed the episode, if it did
 
     def as_dict(self) -> dict[str, Any]:

@@ -386,7 +386,7 @@ def _seconds(t: float | None) -> str:
 
 
 def _metres(d: float | None) -> str:
-    return "-" if d is None else f"{d:.0f} m"
+    return "-" if d is None else f"{d:.1f} m"
 
 
 def _params(changed: Mapping[str, Any]) -> str:
@@ -501,7 +501,8 @@ def write_chart(
     for y, r in enumerate(reversed(rows)):  # best at the top
         colour, marker = _LEVEL_STYLE.get(r["information_level"], ("#555555", "s"))
         mid = r["score_iqm"]
-        whiskers = [[mid - r["score_ci_low"]], [r["score_ci_high"] - mid]]
+        # A percentile interval need not contain the IQM itself; a whisker cannot be negative.
+        whiskers = [[max(0.0, mid - r["score_ci_low"])], [max(0.0, r["score_ci_high"] - mid)]]
         ax.errorbar([mid], [y], xerr=whiskers, fmt=marker, ms=8, color=colour, mec="#222222",
                     elinewidth=2.5, capsize=5, capthick=2)  # fmt: skip
     ax.set_yticks(range(len(rows)), [r["controller"] for r in reversed(rows)])

@@ -52,7 +52,10 @@ def wilson_interval(successes: int, n: int, confidence: float = 0.95) -> tuple[f
     p = successes / n
     centre = (p + z * z / (2 * n)) / (1 + z * z / n)
     half = z / (1 + z * z / n) * np.sqrt(p * (1 - p) / n + z * z / (4 * n * n))
-    return max(0.0, float(centre - half)), min(1.0, float(centre + half))
+    # At 0 and n successes the bound is exactly 0 or 1; rounding would leave it a hair inside.
+    low = 0.0 if successes == 0 else max(0.0, float(centre - half))
+    high = 1.0 if successes == n else min(1.0, float(centre + half))
+    return low, high
 
 
 def mcnemar_exact(success_a: Any, success_b: Any) -> PairedTest:
