@@ -483,3 +483,35 @@ def test_show_replays_the_stored_suite_episode(
     assert "no such episode; families: gulls, trio" in capsys.readouterr().err
     assert main(["show", "--controller", "idle", "--model", "m.zip", "--out", str(out)]) == 2
     assert "not both" in capsys.readouterr().err
+
+
+def test_label_gives_a_variant_its_own_file_and_row(
+    tiny: Path, tmp_path: Path, capsys: Any
+) -> None:
+    base = ["run", "--suite", str(tiny), "--controller", "boundary-arc", "--results", str(tmp_path)]
+    assert main(base) == 0
+    assert main([*base, "--param", "arc_span_deg=90", "--label", "arc 90"]) == 0
+    variant = read_results(tmp_path / "tiny" / "arc-90.json")
+    assert variant["label"] == "arc 90" and variant["controller"] == "boundary-arc"
+    assert variant["default_parameters"]["arc_span_deg"] == 60.0
+    assert variant["controller_parameters"]["arc_span_deg"] == 90.0
+    # Resuming under another label is refused, never mixed into the file.
+    assert main([*base, "--param", "arc_span_deg=90", "--label", "arc-90"]) == 2
+    capsys.readouterr()
+    assert main(["board", "--suite", str(tiny), "--results", str(tmp_path)]) == 0
+    table = capsys.readouterr().out
+    assert "| arc 90 | state | arc_span_deg=90 |" in table
+    assert "| boundary-arc | state | defaults |" in table
+
+
+def test_records_carry_zone_clearance_and_time_limit(tiny: Path, tmp_path: Path) -> None:
+    path = run_suite(load_suite(tiny), IDLE, "idle", tmp_path, progress=False)
+    for ep in read_results(path)["episodes"]:
+        assert ep["time_limit"] == pytest.approx({"trio": 6.0, "headon": 4.0}[ep["scenario"]])
+        # headon starts the flock 600 m west of a 150 m circle, +-40 m jitter, a 12-bird disc
+        # some tens of metres wide, and 4 s of flight cannot close the gap: clearance < 450 m but
+        # far from the zone.
+        if ep["scenario"] == "headon":
+            assert 250.0 < ep["min_zone_clearance"] < 450.0
+        if ep["breached_birds"] > 0:
+            assert ep["min_zone_clearance"] < 0.0

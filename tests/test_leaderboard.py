@@ -45,7 +45,10 @@ PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
 
 
 def _ep(family: str, outcome: str, birds: int = 10, breached: int = 0, mlf: float = 1.0,
-        collisions: int = 0, t: float | None = None, seed: int = 0) -> dict[str, Any]:  # fmt: skip
+        collisions: int = 0, t: float | None = None, seed: int = 0,
+        clearance: float | None = None, limit: float = 150.0) -> dict[str, Any]:  # fmt: skip
+    if clearance is None:
+        clearance = -5.0 if breached else 120.0
     return {
         "family": family,
         "scenario": family,
@@ -56,7 +59,9 @@ def _ep(family: str, outcome: str, birds: int = 10, breached: int = 0, mlf: floa
         "outcome": outcome,
         "steps": 100,
         "time_to_success": t if outcome == "success" else None,
+        "time_limit": limit,
         "breached_birds": breached,
+        "min_zone_clearance": clearance,
         "peak_components": 1 if mlf == 1.0 else 2,
         "min_largest_fraction": mlf,
         "collision_steps": collisions,
@@ -111,30 +116,81 @@ def _write(folder: Path, name: str, data: dict) -> Path:
 
 
 def test_episode_score_known_cases() -> None:
-    assert episode_score(_ep("f", "success", t=1.0)) == pytest.approx(1.0)
+    # Hand-worked from the weights 0.50 / 0.20 / 0.15 / 0.10 / 0.05 (regression of the definition).
+    # Success at 30 s of 150 s, 120 m clear (capped), no contact, whole flock:
+    # 0.5 + 0.2 * 0.8 + 0.15 + 0.1 + 0.05.
+    assert episode_score(_ep("f", "success", t=30.0)) == pytest.approx(0.96)
     assert episode_score(_ep("f", "error")) == 0.0
-    # Failed with breaches, largest group held half the birds: 0 + 0 + 0.2*0.5.
-    assert episode_score(_ep("f", "breach", breached=5, mlf=0.5)) == pytest.approx(0.1)
-    # Timeout with a whole, unbreached flock keeps the breach and cohesion terms.
-    assert episode_score(_ep("f", "timeout")) == pytest.approx(0.5)
-    # A single breaching bird forfeits the whole breach term.
-    assert episode_score(_ep("f", "timeout", birds=50, breached=1, mlf=1.0)) == pytest.approx(0.2)
+    # Breach, largest group held half the birds: only contact and cohesion terms remain.
+    assert episode_score(_ep("f", "breach", breached=5, mlf=0.5)) == pytest.approx(0.125)
+    # Timeout, flock 40 m from the zone, 3 contact steps, whole flock: 0.5 + 0.15 * 0.4 + 0.05.
+    assert episode_score(_ep("f", "timeout", clearance=40.0, collisions=3)) == pytest.approx(0.61)
+    # A single breaching bird forfeits the breach and clearance terms.
+    assert episode_score(_ep("f", "timeout", birds=50, breached=1)) == pytest.approx(0.15)
+    terms = lb.score_terms(_ep("f", "success", t=75.0, clearance=50.0, mlf=0.6))
+    assert terms == pytest.approx(
+        {"breach_free": 1.0, "success_speed": 0.5, "clearance": 0.5, "contact_free": 1.0,
+         "cohesion": 0.6}
+    )  # fmt: skip
 
 
-@given(
+def test_weights_sum_to_one() -> None:
+    assert sum(lb.WEIGHTS.values()) == pytest.approx(1.0)
+
+
+_EPISODES = st.builds(
+    lambda outcome, birds, frac, mlf, t, clearance, collisions: _ep(
+        "f", outcome, birds=birds, mlf=mlf, collisions=collisions, t=t * 150.0,
+        breached=max(1, int(frac * birds)) if outcome == "breach" else int(frac * birds),
+        clearance=clearance if not frac * birds >= 1 else -abs(clearance),
+    ),
     outcome=st.sampled_from(["success", "breach", "timeout", "error"]),
     birds=st.integers(1, 500),
     frac=st.floats(0.0, 1.0),
     mlf=st.floats(0.0, 1.0),
-)
-def test_episode_score_bounds(outcome: str, birds: int, frac: float, mlf: float) -> None:
-    ep = _ep("f", outcome, birds=birds, breached=int(frac * birds), mlf=mlf, t=1.0)
-    score = episode_score(ep)
-    assert 0.0 <= score <= 1.0
-    if outcome == "success":
-        assert score >= 0.5
-    else:
-        assert score <= 0.5
+    t=st.floats(0.0, 1.0),
+    clearance=st.floats(-500.0, 2000.0),
+    collisions=st.integers(0, 1000),
+)  # fmt: skip
+
+
+@given(ep=_EPISODES)
+def test_episode_score_and_terms_lie_in_unit_interval(ep: dict[str, Any]) -> None:
+    assert 0.0 <= episode_score(ep) <= 1.0
+    if ep["outcome"] != "error":
+        assert all(0.0 <= v <= 1.0 for v in lb.score_terms(ep).values())
+
+
+@given(a=_EPISODES, b=_EPISODES)
+def test_any_breach_scores_below_any_breach_free_episode(a: dict, b: dict) -> None:
+    errors = {a["outcome"], b["outcome"]} & {"error"}
+    breached = [e for e in (a, b) if e["breached_birds"] > 0]
+    kept = [e for e in (a, b) if e["breached_birds"] == 0]
+    if errors or len(breached) != 1:
+        return
+    assert episode_score(breached[0]) < episode_score(kept[0])
+
+
+def test_breach_ordering_extreme_hand_built_records() -> None:
+    # The best breached episode imaginable (a success in no time with a tolerated breach, no
+    # contact, whole flock) against the worst breach-free one (timeout on the zone edge, contact,
+    # flock shattered to one bird in 500).
+    best_breach = _ep("f", "success", birds=500, breached=1, t=0.0, clearance=-0.01)
+    worst_kept = _ep("f", "timeout", birds=500, mlf=1 / 500, collisions=999, clearance=0.0)
+    assert episode_score(best_breach) == pytest.approx(0.35)
+    assert episode_score(worst_kept) == pytest.approx(0.5 + 0.05 / 500)
+    assert episode_score(best_breach) < episode_score(worst_kept)
+
+
+def test_faster_success_scores_higher_and_saturation_breaks() -> None:
+    # Two controllers that both succeed everywhere, one 20 s faster: the old score gave both 1.0;
+    # the headline must now tell them apart (a saturation check on hand-built records).
+    fast = [_ep("f", "success", t=40.0 + i % 5, seed=i) for i in range(40)]
+    slow = [_ep("f", "success", t=60.0 + i % 5, seed=i) for i in range(40)]
+    rows = build_rows([_result("fast", "state", fast), _result("slow", "state", slow)], reps=200)
+    assert [r["controller"] for r in rows] == ["fast", "slow"]
+    assert rows[0]["score_iqm"] - rows[1]["score_iqm"] == pytest.approx(0.2 * 20 / 150)
+    assert rows[0]["score_ci_high"] > rows[0]["score_ci_low"]
 
 
 # --------------------------------------------------------------------------------------------
@@ -331,6 +387,10 @@ def test_wrong_hash_is_refused_with_one_line(tmp_path: Path, capsys: Any) -> Non
         (lambda d: d["episodes"][0].update(success=False), "success"),
         (lambda d: d["episodes"][1].update(min_largest_fraction=1.5), "min_largest_fraction"),
         (lambda d: d.update(information_level="oracle"), "information_level"),
+        (lambda d: d["episodes"][1].pop("min_zone_clearance"), "'min_zone_clearance'"),
+        (lambda d: d["episodes"][0].pop("time_limit"), "'time_limit'"),
+        (lambda d: d["episodes"][0].update(time_to_success=151.0), "time_to_success"),
+        (lambda d: d.update(label=""), "label"),
     ],
 )
 def test_malformed_file_is_refused(tmp_path: Path, capsys: Any, mutate: Any, needle: str) -> None:
@@ -390,7 +450,7 @@ def test_board_json(results: Path, capsys: Any) -> None:
     assert png.read_bytes().startswith(PNG_MAGIC)
     assert str(md) in err
     assert sorted(p.name for p in (results / "standard").iterdir()) == [
-        "alpha.json", "beta.json", "leaderboard.md", "leaderboard.png"
+        "alpha.json", "beta.json", "leaderboard-families.png", "leaderboard.md", "leaderboard.png"
     ]  # fmt: skip
 
 
@@ -416,3 +476,95 @@ def test_board_no_results(tmp_path: Path, monkeypatch: pytest.MonkeyPatch, capsy
     out, err = capsys.readouterr()
     assert out == "" and len(err.splitlines()) == 1 and "no result files" in err
     assert not (tmp_path / "standard" / "leaderboard.md").exists()
+
+
+# --------------------------------------------------------------------------------------------
+# Per-family rows, labels and suite files.
+
+
+def test_family_rows_wilson_against_scipy() -> None:
+    rows = lb.build_family_rows([ALPHA, BETA])
+    assert [(r["family"], r["controller"]) for r in rows] == [
+        ("headon", "alpha"), ("headon", "beta"), ("oblique", "alpha"), ("oblique", "beta")
+    ]  # fmt: skip
+    for r in rows:
+        assert tuple(r) == lb.FAMILY_KEYS
+        # scipy's Wilson interval (BinomTestResult.proportion_ci, method "wilson").
+        ci = scipy.stats.binomtest(r["successes"], r["episodes"]).proportion_ci(method="wilson")
+        assert (r["success_ci_low"], r["success_ci_high"]) == pytest.approx((ci.low, ci.high))
+    # Hand-counted from ALPHA: headon 2/3 succeed (times 40, 60 s), clearances 120, 120, -5 m.
+    headon = rows[0]
+    assert (headon["successes"], headon["median_time_to_success"]) == (2, 50.0)
+    assert headon["median_zone_clearance"] == 120.0
+    assert headon["collision_rate"] == pytest.approx(1 / 3)
+    assert rows[1]["median_time_to_success"] is None
+
+
+def test_markdown_has_pooled_and_family_tables(results: Path, capsys: Any) -> None:
+    assert main(["board", "--suite", "standard", "--results", str(results)]) == 0
+    out = capsys.readouterr().out
+    assert "## Per family" in out
+    assert "| headon | alpha | 3 | 2/3 |" in out and "| 120.0 m |" in out
+    assert (results / "standard" / "leaderboard-families.png").read_bytes().startswith(PNG_MAGIC)
+    assert main(["board", "--suite", "standard", "--results", str(results), "--format", "csv",
+                 "--families"]) == 0  # fmt: skip
+    lines = capsys.readouterr().out.splitlines()
+    assert lines[0].split(",") == list(lb.FAMILY_KEYS) and len(lines) == 5
+
+
+def test_labelled_run_gets_its_own_row_with_changed_parameters(tmp_path: Path) -> None:
+    wide = copy.deepcopy(ALPHA)
+    wide.update(
+        label="alpha-wide",
+        controller_parameters={"span": 90.0, "speed": 6.0},
+        default_parameters={"span": 60.0, "speed": 6.0},
+    )
+    _write(tmp_path / "standard", "alpha.json", ALPHA)
+    _write(tmp_path / "standard", "alpha-wide.json", wide)
+    board = build_leaderboard(tmp_path, "standard", expected_hash=HASH, reps=100)
+    by_name = {r["controller"]: r for r in board.rows}
+    assert set(by_name) == {"alpha", "alpha-wide"}
+    assert by_name["alpha-wide"]["changed_parameters"] == {"span": 90.0}
+    assert by_name["alpha"]["changed_parameters"] == {}
+    md = board.render("markdown")
+    assert "| alpha-wide | observation | span=90.0 |" in md and "| defaults |" in md
+
+
+def test_board_takes_a_suite_file(tmp_path: Path, capsys: Any) -> None:
+    from flockward.bench.suites import load_suite, suite_hash
+
+    suite_file = tmp_path / "mine.toml"
+    suite_file.write_text(
+        'name = "mine"\nversion = 1\n[[entry]]\nscenario = "trio"\nseeds = [0, 1]\n',
+        encoding="utf-8",
+    )
+    data = copy.deepcopy(ALPHA)
+    data.update(suite="mine", suite_hash=suite_hash(load_suite(suite_file)))
+    _write(tmp_path / "res" / "mine", "alpha.json", data)
+    assert main(["board", "--suite", str(suite_file), "--results", str(tmp_path / "res")]) == 0
+    assert "suite `mine`" in capsys.readouterr().out
+    assert (tmp_path / "res" / "mine" / "leaderboard.md").exists()
+    assert main(["board", "--suite", str(tmp_path / "none.toml"), "--results", "x"]) == 2
+    err = capsys.readouterr().err.splitlines()
+    assert len(err) == 1 and "none.toml" in err[0]
+
+
+def test_board_profiles_chart(results: Path, tmp_path: Path, capsys: Any) -> None:
+    out = tmp_path / "profiles.png"
+    assert main(["board", "--results", str(results), "--profiles", str(out)]) == 0
+    assert out.read_bytes().startswith(PNG_MAGIC)
+
+
+@pytest.mark.parametrize("outcome", ["success", "timeout"])
+def test_family_chart_at_all_or_no_successes(tmp_path: Path, outcome: str) -> None:
+    # Regression: at 30/30 the Wilson bound rounded a hair below the rate and the chart crashed.
+    eps = [_ep("f", outcome, t=40.0, seed=i) for i in range(30)]
+    rows = lb.build_family_rows([_result("a", "state", eps)])
+    if outcome == "success":
+        assert rows[0]["success_ci_high"] == 1.0
+    else:
+        assert rows[0]["success_ci_low"] == 0.0
+    from flockward.bench.charts import write_family_chart
+
+    out = write_family_chart(rows, tmp_path / "f.png", "standard")
+    assert out.read_bytes().startswith(PNG_MAGIC)

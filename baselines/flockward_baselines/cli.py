@@ -38,6 +38,14 @@ CAUTION = (
     "practitioners."
 )
 
+SMOKE_NOTE = (
+    "This is the smoke suite: 8 shortened episodes that check every controller runs end to "
+    "end. Its scores say nothing about a controller's quality; for that see the standard "
+    "suite's leaderboard (results/standard/leaderboard.md, or `flockward board --suite "
+    "standard`)."
+)
+SMOKE_CHART_NOTE = "smoke suite: checks that controllers run; says nothing about quality"
+
 EXIT_OK = 0
 EXIT_INVALID = 2  # a config is invalid (argparse also uses 2 for a bad command line)
 EXIT_BROKEN_PIPE = 141  # the reader of stdout closed it (128 + SIGPIPE, as shells report)
@@ -181,14 +189,18 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     from flockward_baselines.controllers import BUILTIN, make_controller
 
     print(CAUTION, "\n")
+    print(SMOKE_NOTE, "\n")
     suite = load_suite("smoke")
     for name in BUILTIN:
         run_suite(suite, partial(make_controller, name), name, args.results, progress=False)
         print(_run_summary(Path(args.results) / suite.name / f"{name}.json", len(suite.episodes())))
-    board = build_leaderboard(args.results, suite.name)
+    board = build_leaderboard(
+        args.results, suite.name, preface=SMOKE_NOTE, chart_note=SMOKE_CHART_NOTE
+    )
     print()
     print(board.render("markdown"), end="")
     board.write(args.results)
+    print(f"\n{SMOKE_NOTE}")
     ns = argparse.Namespace(
         scenario="headon", controller="boundary-arc", model=None, param=[], suite=None,
         family=None, seed=0, out=args.gif,
@@ -299,17 +311,54 @@ def _cmd_audit(args: argparse.Namespace) -> int:
 
 
 def _cmd_board(args: argparse.Namespace) -> int:
-    """Score a suite's result files; print the table, write leaderboard.md and leaderboard.png."""
-    from flockward.bench.leaderboard import LeaderboardError, build_leaderboard
+    """Score a suite's result files; print the pooled and per-family tables, write
+    leaderboard.md and the charts (and performance profiles with --profiles)."""
+    from flockward.bench.charts import write_profiles
+    from flockward.bench.leaderboard import LeaderboardError, build_leaderboard, row_name
 
     try:
         board = build_leaderboard(args.results, args.suite)
     except LeaderboardError as exc:
         print(exc, file=sys.stderr)
         return EXIT_INVALID
-    print(board.render(args.format), end="")
-    md, png = board.write(args.results)
-    print(f"wrote {md} and {png}", file=sys.stderr)
+    print(board.render(args.format, families=args.families), end="")
+    written = board.write(args.results)
+    if args.profiles:
+        names = [r["controller"] for r in board.rows]
+        by_name = {row_name(r): r for r in board.results}
+        written += (write_profiles([by_name[n] for n in names], names, args.profiles),)
+    print(f"wrote {', '.join(str(p) for p in written)}", file=sys.stderr)
+    return EXIT_OK
+
+
+def _cmd_compare(args: argparse.Namespace) -> int:
+    """Compare two controllers' result files on the same suite, paired by episode."""
+    from flockward.bench.charts import write_profiles
+    from flockward.bench.compare import compare_results, render_comparison
+    from flockward.bench.leaderboard import LeaderboardError, load_suite_results, row_name
+
+    try:
+        if args.a == args.b:
+            raise LeaderboardError(f"compare {args.a} with another controller, not itself")
+        if args.reps < 1:
+            raise LeaderboardError(f"--reps {args.reps}: must be an integer >= 1")
+        name, results = load_suite_results(args.results, args.suite)
+        by_name = {row_name(r): r for r in results}
+        missing = [c for c in (args.a, args.b) if c not in by_name]
+        if missing:
+            raise LeaderboardError(
+                f"no valid result file for {', '.join(missing)} in {Path(args.results) / name}; "
+                f"available: {', '.join(by_name)}"
+            )
+        comparison = compare_results(by_name[args.a], by_name[args.b], reps=args.reps)
+    except LeaderboardError as exc:
+        print(exc, file=sys.stderr)
+        return EXIT_INVALID
+    print(render_comparison(comparison), end="")
+    if args.profiles:
+        pair = [by_name[args.a], by_name[args.b]]
+        out = write_profiles(pair, [args.a, args.b], args.profiles)
+        print(f"wrote {out}", file=sys.stderr)
     return EXIT_OK
 
 
@@ -386,12 +435,14 @@ def _cmd_run(args: argparse.Namespace) -> int:
             name = f"model-{Path(args.model).stem}"
             factory = partial(PolicyController, args.model, **params)
             PolicyController(args.model, **params)  # fail here, not in a worker
+            defaults = _parameters(PolicyController(args.model))
         else:
             from flockward_baselines.controllers import make_controller
 
             name = args.controller
             factory = partial(make_controller, args.controller, **params)
             factory()  # a controller that breaks its contract fails here, not in a worker
+            defaults = _parameters(make_controller(args.controller))
         env_options = {
             key: getattr(args, key) for key in ("observation", "reward") if getattr(args, key)
         }
@@ -403,9 +454,11 @@ def _cmd_run(args: argparse.Namespace) -> int:
                 args.results,
                 workers=workers,
                 limit=args.limit,
-                slug=controller_slug(name),
+                slug=controller_slug(args.label if args.label is not None else name),
                 backend=backend,
                 env_options=env_options,
+                label=args.label,
+                default_parameters=defaults,
             )
     except KeyboardInterrupt:
         print("interrupted: finished episodes are saved; rerun the command to resume",
@@ -443,6 +496,12 @@ def _report_episode_errors_in(data: dict[str, Any], path: Path) -> int:
         file=sys.stderr,
     )
     return EXIT_EPISODE_ERRORS
+
+
+def _parameters(controller: Controller) -> dict[str, Any] | None:
+    """A controller's parameters() (its defaults when built without overrides), or None."""
+    method = getattr(controller, "parameters", None)
+    return dict(method()) if callable(method) else None
 
 
 def _cmd_train(args: argparse.Namespace) -> int:
@@ -619,6 +678,11 @@ def build_parser() -> argparse.ArgumentParser:
         help="controller constructor argument; numbers and true/false are parsed (repeatable)",
     )
     run.add_argument(
+        "--label",
+        help="name of this run on the leaderboard and of its result file (e.g. a controller "
+        "with other --param values), so variants sit side by side",
+    )
+    run.add_argument(
         "--limit", type=int, help="stop after this many new episodes (a rerun continues)"
     )
     run.add_argument(
@@ -696,15 +760,42 @@ def build_parser() -> argparse.ArgumentParser:
         "board",
         help="score a suite's result files into a leaderboard",
         description="Score every result file of a suite (episode score IQM with a 95 % "
-        "stratified bootstrap CI), print the table and write <results>/<suite>/leaderboard.md "
-        "and leaderboard.png. Files run on another version of the suite are skipped.",
+        "stratified bootstrap CI), print the pooled table and the per-family table, and write "
+        "<results>/<suite>/leaderboard.md, leaderboard.png and leaderboard-families.png. Files "
+        "run on another version of the suite are skipped.",
     )
-    board.add_argument("--suite", default="standard", help="shipped suite name")
+    board.add_argument("--suite", default="standard", help="shipped suite name or TOML path")
     board.add_argument("--results", default="results", help="results directory")
     board.add_argument(
         "--format", choices=("markdown", "csv", "json"), default="markdown", help="table format"
     )
+    board.add_argument(
+        "--families", action="store_true", help="csv/json: print the per-family rows instead"
+    )
+    board.add_argument(
+        "--profiles", metavar="PNG", help="also draw every row's performance profile to PNG"
+    )
     board.set_defaults(handler=_cmd_board)
+
+    compare = sub.add_parser(
+        "compare",
+        help="compare two controllers on the same episodes",
+        description="Pair two result files of a suite by (family, seed) and report, pooled and "
+        "per family, the mean score difference with a 95 % stratified bootstrap CI, the "
+        "probability of improvement, McNemar's exact test on success and Wilcoxon's "
+        "signed-rank test on time to success, with a one-line verdict.",
+    )
+    compare.add_argument("a", metavar="A", help="controller name or run label (A)")
+    compare.add_argument("b", metavar="B", help="controller name or run label (B)")
+    compare.add_argument("--suite", default="standard", help="shipped suite name or TOML path")
+    compare.add_argument("--results", default="results", help="results directory")
+    compare.add_argument(
+        "--reps", type=int, default=2000, help="bootstrap replicates (default 2000)"
+    )
+    compare.add_argument(
+        "--profiles", metavar="PNG", help="also draw both performance profiles to PNG"
+    )
+    compare.set_defaults(handler=_cmd_compare)
 
     train = sub.add_parser(
         "train",

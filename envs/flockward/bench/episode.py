@@ -10,7 +10,9 @@ from typing import Any
 import numpy as np
 
 from flockward.controller import Controller, InformationLevel, StateView
+from flockward.sim.geometry import signed_distance
 from flockward.sim.types import Scenario, WorldState
+from flockward.task.batched import DivertTask
 from flockward.task.env import DivertEnv
 from flockward.task.outcome import Outcome
 
@@ -35,6 +37,8 @@ class EpisodeRecord:
     path_length: float  # m, drone track lengths summed over the drones
     energy: float  # (m/s^2)^2 s, integral of the commanded acceleration squared, over the drones
     episode_return: float
+    min_zone_clearance: float  # m, least signed distance of any bird to the zone (< 0: inside)
+    time_limit: float  # s, the longest the episode could last: step budget * dt
     error: str | None = None  # why the controller failed the episode, if it did
 
     def as_dict(self) -> dict[str, Any]:
@@ -65,6 +69,14 @@ def _command_energy(action: np.ndarray, max_accel: np.ndarray, dt: float) -> flo
 def _track_length(before: np.ndarray, after: np.ndarray) -> float:
     """Distance flown in one step, summed over the drones of (P, 2) positions, m."""
     return sum(float(np.hypot(*(a - b))) for a, b in zip(after, before, strict=True))
+
+
+def _zone_clearance(task: DivertTask) -> float:
+    """Signed distance (m) of world 0's bird nearest the protected zone: negative once inside."""
+    n = int(task.state.count[0])
+    if n == 0:
+        return math.inf
+    return float(signed_distance(task.setting.protected_arr, task.state.bird_pos[0, :n]).min())
 
 
 def _checked_action(raw: object) -> np.ndarray:
@@ -135,6 +147,7 @@ def play_episode(
     error: str | None = None
     success_time: float | None = None
     breached = int(task.ever_inside[0].sum())
+    clearance = _zone_clearance(task)
     if record_frames:
         frames.append(_frame(state, 0, info))
     while True:
@@ -172,6 +185,7 @@ def play_episode(
         closest = min(closest, info["nearest_distance"])
         collisions += int(info["collision"])
         breached = info["breached_birds"]
+        clearance = min(clearance, _zone_clearance(task))
         if record_frames:
             frames.append(_frame(state, step, info))
         if terminated or truncated:
@@ -187,7 +201,9 @@ def play_episode(
         outcome=outcome,
         steps=step,
         time_to_success=success_time,
+        time_limit=task.max_steps * dt,
         breached_birds=int(breached),
+        min_zone_clearance=clearance,
         peak_components=int(peak_components),
         min_largest_fraction=float(min_largest),
         collision_steps=collisions,
@@ -227,7 +243,9 @@ def _failed(scenario: Scenario, seed: int, env: DivertEnv, error: str) -> Episod
         outcome=Outcome.ERROR,
         steps=0,
         time_to_success=None,
+        time_limit=env.task.max_steps * scenario.episode.dt,
         breached_birds=0,
+        min_zone_clearance=_zone_clearance(env.task),
         peak_components=1,
         min_largest_fraction=1.0,
         collision_steps=0,

@@ -237,6 +237,18 @@ def _json_data(value: Any, controller_name: str, what: str = "arguments") -> Any
         ) from None
 
 
+def _variant(label: str | None, default_parameters: dict[str, Any] | None) -> dict[str, Any]:
+    """Header entries naming a run variant: its label and the controller's default parameters."""
+    entries: dict[str, Any] = {}
+    if label is not None:
+        if not label.strip():
+            raise ValueError(f"label {label!r}: must contain letters or digits")
+        entries["label"] = label
+    if default_parameters is not None:
+        entries["default_parameters"] = json.loads(json.dumps(default_parameters, allow_nan=False))
+    return entries
+
+
 def _resume(path: Path, header: dict[str, Any], specs: list[EpisodeSpec]) -> dict[str, Any]:
     """The existing file's content if it continues this exact run; ResultsConflict otherwise."""
     data = read_results(path)
@@ -249,6 +261,7 @@ def _resume(path: Path, header: dict[str, Any], specs: list[EpisodeSpec]) -> dic
         ("controller_parameters", "controller parameters"),
         ("controller_arguments", "controller arguments (--param)"),
         ("environment", "environment arguments"),
+        ("label", "label"),
     ):
         if data.get(key) != header.get(key):
             raise ResultsConflict(
@@ -287,10 +300,11 @@ def _open_results(
     controller_name: str,
     env_options: dict[str, Any] | None,
     progress: bool,
+    variant: dict[str, Any],
 ) -> tuple[dict[str, Any], dict[str, Any] | None]:
     """The run's content so far (a new header, or the file at ``path`` it resumes, less its
     errored episodes) and the episodes' environment arguments. ``probe`` is one controller
-    from ``controller_factory``, read for its settings."""
+    from ``controller_factory``, read for its settings; ``variant`` names a labelled run."""
     header = _header(suite, controller_name, probe)
     arguments = getattr(controller_factory, "keywords", None)  # a functools.partial's arguments
     if arguments:
@@ -298,6 +312,7 @@ def _open_results(
     environment = _environment(controller_env_kwargs(probe, env_options))
     if environment is not None:
         header["environment"] = environment
+    header.update(variant)
     specs = suite.episodes()
     if path.exists():
         data = _resume(path, header, specs)
@@ -321,6 +336,8 @@ def run_suite(
     slug: str | None = None,
     backend: Backend | None = None,
     env_options: dict[str, Any] | None = None,
+    label: str | None = None,
+    default_parameters: dict[str, Any] | None = None,
 ) -> Path:
     """Play the suite's missing episodes with fresh controllers and return the result file.
 
@@ -334,7 +351,9 @@ def run_suite(
     file keeps the provenance of the session that created it. ``env_options`` are environment
     arguments for every episode (EnvConfig fields other than scenario, overrides and
     render_mode, e.g. ``{"observation": "pkg.mod:MyObs"}``), recorded in the file's header
-    under "environment" when given.
+    under "environment" when given. ``label`` names the run on the leaderboard (a variant of a
+    controller, e.g. other parameters) and by default the file; ``default_parameters``, the
+    controller's parameters() without overrides, lets the leaderboard show what was changed.
     """
     if workers < 1:
         raise ValueError(f"workers = {workers}: must be an integer >= 1")
@@ -343,10 +362,12 @@ def run_suite(
     if limit is not None and limit < 0:
         raise ValueError(f"limit = {limit}: must be an integer >= 0")
     probe = controller_factory()  # a broken controller fails here, before any file is touched
-    path = result_path(results_dir, suite.name, slug or controller_slug(controller_name))
+    default_slug = controller_slug(label if label is not None else controller_name)
+    path = result_path(results_dir, suite.name, slug or default_slug)
+    variant = _variant(label, default_parameters)
     with writer_lock(path):
         data, environment = _open_results(
-            path, suite, controller_factory, probe, controller_name, env_options, progress
+            path, suite, controller_factory, probe, controller_name, env_options, progress, variant
         )
         _play_pending(path, data, suite, controller_factory, environment, workers, limit, backend,
                       progress)  # fmt: skip

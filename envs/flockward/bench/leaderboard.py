@@ -1,21 +1,34 @@
-"""The leaderboard: per-episode scores, their interquartile mean and a stratified bootstrap CI.
+"""The leaderboard: per-episode scores, their interquartile mean and a stratified bootstrap CI,
+pooled and per scenario family.
 
 Episode score
 -------------
-Every episode gets one score in [0, 1]::
+Every episode gets one score in [0, 1], a weighted sum of five terms, each in [0, 1]::
 
-    score = 0.5 * success
-          + 0.3 * breach_free
-          + 0.2 * min_largest_fraction
+    score = 0.50 * breach_free        no bird entered the protected zone
+          + 0.20 * success * (1 - t / T)   the flock reached the goal, sooner is better
+          + 0.15 * clearance          min(1, max(0, d_min / 100 m)), 0 after a breach
+          + 0.10 * contact_free       no step with the drone inside its safety radius of a bird
+          + 0.05 * cohesion           lowest share of the flock in its largest group
 
-``success`` is 1 when the flock was turned away (outcome "success") and 0 otherwise;
-``breach_free`` is 1 when no bird entered the protected zone and 0 otherwise (an all-or-nothing
-term: an episode stops at its first breaches beyond the scenario's tolerance, so the share of
-birds that got in says little about how bad the failure was);
-``min_largest_fraction`` is the smallest share of the flock held by its largest group during the
-episode (1 = never split). An episode that ended in an error scores 0. The weights say what
-matters: success is the job, breaches are the hazard, and fragmentation harms the flock and leaves
-several groups to herd next.
+``t`` is the time to success and ``T`` the episode's time limit (both s, in the record);
+``d_min`` is the record's ``min_zone_clearance``: the smallest signed distance of any bird to the
+protected zone over the episode (m). An episode that ended in an error scores 0.
+
+Why these terms and weights. A bird in the protected zone is the hazard the whole task exists to
+prevent, so ``breach_free`` carries half the weight: a breached episode has no clearance and can
+collect at most 0.20 + 0.10 + 0.05 = 0.35, below the 0.50 that every breach-free episode starts
+from, so any breach ranks below any breach-free episode. Turning the flock is the job, and doing
+it sooner leaves less time for something to go wrong, so success is weighted by the share of the
+time limit left (a success in the last step is worth almost nothing more than holding the flock
+off until the end). How close the flock came measures risk that a yes/no breach hides; 100 m is
+about 7 s of a gull's cruise (15 m/s), the time a drone has to correct a turn that goes wrong,
+and a flock kept further away earns no more. Drone-bird contact risks both, but is rarer than
+breaches and partly self-inflicted by aggressive pursuit, so it weighs 0.10; fragmentation
+harms the flock and leaves several groups to herd, but its cost already shows in time and
+clearance, so it weighs least. Unlike a score of success and breach counts alone, every term but
+the breach is continuous, so controllers that both succeed still differ by how fast and how
+safely.
 
 Aggregate and interval
 ----------------------
@@ -24,10 +37,15 @@ mean of the middle 50 %, robust to a few outlying episodes yet using more of the
 median. Its 95 % confidence interval is a stratified percentile bootstrap: episodes are resampled
 with replacement within each task (scenario family), the task set stays fixed, and the IQM of each
 resample gives the bootstrap distribution. Both follow Agarwal et al., "Deep Reinforcement
-Learning at the Edge of the Statistical Precipice", NeurIPS 2021.
+Learning at the Edge of the Statistical Precipice", NeurIPS 2021. Per family, success rates
+carry Wilson 95 % intervals (``flockward.bench.statistics``).
 
-Result files ``<results>/<suite>/<controller>.json`` (format "flockward-results/1") are read only
-when their suite hash matches the suite as shipped; others are refused with a warning.
+Result files ``<results>/<suite>/<name>.json`` (format "flockward-results/1") are read only
+when their suite hash matches the suite as loaded; others are refused with a one-line warning,
+as are files whose episodes lack a field the score needs (``min_zone_clearance`` and
+``time_limit`` were added after the first result files were written). A run with a ``label``
+gets its own row under that label, and each row lists the parameters that differ from the
+controller's defaults.
 """
 
 from __future__ import annotations
@@ -45,26 +63,50 @@ from typing import Any
 import numpy as np
 
 from flockward.bench.results import UnreadableResults, file_problem, read_json
+from flockward.bench.statistics import wilson_interval
 from flockward.config.atomic import write_atomic
 from flockward.task.outcome import Outcome
 
-OUTPUT_STEM = "leaderboard"  # leaderboard.md / .png (and any leaderboard.*) are never inputs
+OUTPUT_STEM = "leaderboard"  # leaderboard.md / .png (and any leaderboard*) are never inputs
 ROW_KEYS = (
     "controller",
     "information_level",
+    "changed_parameters",
     "episodes",
     "success_rate",
     "breach_free_rate",
     "collision_rate",
     "mean_peak_fragmentation",
     "median_time_to_success",
+    "median_zone_clearance",
     "score_iqm",
     "score_ci_low",
     "score_ci_high",
 )
+FAMILY_KEYS = (
+    "controller",
+    "family",
+    "episodes",
+    "successes",
+    "success_rate",
+    "success_ci_low",
+    "success_ci_high",
+    "median_time_to_success",
+    "median_zone_clearance",
+    "collision_rate",
+    "score_iqm",
+)
 FORMATS = ("markdown", "csv", "json")
 
-W_SUCCESS, W_BREACH, W_COHESION = 0.5, 0.3, 0.2
+# Weights of the score's terms (see the module docstring); they sum to 1.
+WEIGHTS = {
+    "breach_free": 0.50,
+    "success_speed": 0.20,
+    "clearance": 0.15,
+    "contact_free": 0.10,
+    "cohesion": 0.05,
+}
+CLEARANCE_SCALE = 100.0  # m, the zone clearance that earns the full clearance term
 
 Statistic = Callable[..., Any]  # statistic(x, axis=-1) reduces along axis, like np.mean
 
@@ -77,13 +119,31 @@ class LeaderboardError(ValueError):
 # Scores and statistics.
 
 
+def _unit(x: float) -> float:
+    return min(1.0, max(0.0, x))
+
+
+def score_terms(ep: Mapping[str, Any]) -> dict[str, float]:
+    """The score's terms of one non-error episode record, each in [0, 1] (keys of ``WEIGHTS``)."""
+    kept = ep["breached_birds"] == 0
+    speed = 0.0
+    if ep["success"]:
+        speed = _unit(1.0 - float(ep["time_to_success"]) / float(ep["time_limit"]))
+    return {
+        "breach_free": float(kept),
+        "success_speed": speed,
+        "clearance": _unit(float(ep["min_zone_clearance"]) / CLEARANCE_SCALE) if kept else 0.0,
+        "contact_free": float(ep["collision_steps"] == 0),
+        "cohesion": _unit(float(ep["min_largest_fraction"])),
+    }
+
+
 def episode_score(ep: Mapping[str, Any]) -> float:
     """The headline score in [0, 1] of one episode record (see the module docstring)."""
     if ep["outcome"] == Outcome.ERROR:
         return 0.0
-    kept = float(ep["breached_birds"] == 0)
-    cohesion = min(1.0, max(0.0, float(ep["min_largest_fraction"])))
-    return W_SUCCESS * float(bool(ep["success"])) + W_BREACH * kept + W_COHESION * cohesion
+    terms = score_terms(ep)
+    return float(sum(WEIGHTS[k] * terms[k] for k in WEIGHTS))
 
 
 def iqm(scores: Any, axis: int | None = None) -> Any:
@@ -150,19 +210,36 @@ def _is_int(v: Any) -> bool:
     return isinstance(v, int) and not isinstance(v, bool)
 
 
+def row_name(result: Mapping[str, Any]) -> str:
+    """The name a result file's row goes by: its run label if it has one, else the controller."""
+    label = result.get("label")
+    return label if isinstance(label, str) and label else str(result["controller"])
+
+
+def changed_parameters(result: Mapping[str, Any]) -> dict[str, Any]:
+    """The controller parameters of a run that differ from the controller's defaults (both as
+    recorded in the file); empty when the file records no defaults."""
+    defaults = result.get("default_parameters")
+    params = result.get("controller_parameters")
+    if not isinstance(defaults, dict) or not isinstance(params, dict):
+        return {}
+    return {k: v for k, v in params.items() if k not in defaults or defaults[k] != v}
+
+
 def load_results(
     results_dir: str | os.PathLike[str], suite: str, expected_hash: str
 ) -> list[dict[str, Any]]:
     """Every acceptable result file under ``<results_dir>/<suite>/``, in file-name order.
 
-    A file that is not valid JSON, has another format, another suite hash, malformed episodes or a
-    controller name already seen is skipped with a one-line warning on stderr.
+    A file that is not valid JSON, has another format, another suite hash, malformed episodes, a
+    label that is not a non-empty string, or a row name (label or controller) already seen is
+    skipped with a one-line warning on stderr.
     """
     folder = Path(results_dir) / suite
     accepted: list[dict[str, Any]] = []
     seen: dict[str, Path] = {}
     for path in sorted(folder.glob("*.json")):
-        if path.stem == OUTPUT_STEM:
+        if path.stem.startswith(OUTPUT_STEM):
             continue
         try:
             data = read_json(path)
@@ -170,42 +247,66 @@ def load_results(
             _warn(f"skipping {path}: not a readable JSON file ({exc})")
             continue
         problem = file_problem(data, suite, expected_hash)
-        if problem is None and data["controller"] in seen:
-            problem = f"repeats controller {data['controller']!r} of {seen[data['controller']]}"
+        if problem is None and "label" in data:
+            if not (isinstance(data["label"], str) and data["label"].strip()):
+                problem = f"has label {data['label']!r}; a label must be a non-empty string"
+        if problem is None and row_name(data) in seen:
+            name = row_name(data)
+            problem = f"repeats row name {name!r} of {seen[name]}; give one run a --label"
         if problem:
             _warn(f"skipping {path}: {problem}")
             continue
-        seen[data["controller"]] = path
+        seen[row_name(data)] = path
         accepted.append(data)
     return accepted
+
+
+def scores_by_family(result: Mapping[str, Any]) -> dict[str, list[float]]:
+    """Episode scores grouped by family, families in order of first appearance."""
+    by_task: dict[str, list[float]] = {}
+    for ep in result["episodes"]:
+        by_task.setdefault(ep["family"], []).append(episode_score(ep))
+    return by_task
 
 
 # --------------------------------------------------------------------------------------------
 # Rows.
 
 
+def _median(values: Sequence[float]) -> float | None:
+    return float(np.median(values)) if values else None
+
+
+def _clearances(eps: Sequence[Mapping[str, Any]]) -> list[float]:
+    """Zone clearances (m) of the episodes that did not end in an error."""
+    return [float(ep["min_zone_clearance"]) for ep in eps if ep["outcome"] != Outcome.ERROR]
+
+
+def _collided(ep: Mapping[str, Any]) -> bool:
+    return _is_int(ep.get("collision_steps")) and ep["collision_steps"] > 0
+
+
 def _row(result: Mapping[str, Any], reps: int, seed: int) -> dict[str, Any]:
     eps = result["episodes"]
     ok = [ep for ep in eps if ep["outcome"] != Outcome.ERROR]
     n = len(eps)
-    by_task: dict[str, list[float]] = {}
-    for ep in eps:
-        by_task.setdefault(ep["family"], []).append(episode_score(ep))
+    by_task = scores_by_family(result)
     pooled = np.concatenate([np.asarray(v) for v in by_task.values()])
     lo, hi = stratified_bootstrap_ci(list(by_task.values()), iqm, reps=reps, seed=seed)
     times = [float(ep["time_to_success"]) for ep in eps if ep["success"]]
     # An error episode counts as the worst case: not breach-free, fully fragmented.
     fragmentation = sum(1.0 - float(ep["min_largest_fraction"]) for ep in ok) + (n - len(ok))
-    collided = sum(1 for ep in eps if _is_int(ep.get("collision_steps")) and ep["collision_steps"])
     return {
-        "controller": result["controller"],
+        "controller": row_name(result),
         "information_level": result["information_level"],
+        "changed_parameters": changed_parameters(result),
         "episodes": n,
         "success_rate": sum(1 for ep in eps if ep["success"]) / n,
         "breach_free_rate": sum(1 for ep in ok if ep["breached_birds"] == 0) / n,
-        "collision_rate": collided / n,
+        "collision_rate": sum(1 for ep in eps if _collided(ep)) / n,
         "mean_peak_fragmentation": fragmentation / n,
-        "median_time_to_success": float(np.median(times)) if times else None,
+        "median_time_to_success": _median(times),
+        "median_zone_clearance": _median(_clearances(eps)),
         "score_iqm": float(iqm(pooled)),
         "score_ci_low": lo,
         "score_ci_high": hi,
@@ -215,15 +316,60 @@ def _row(result: Mapping[str, Any], reps: int, seed: int) -> dict[str, Any]:
 def build_rows(
     results: Sequence[Mapping[str, Any]], reps: int = 2000, seed: int = 0
 ) -> list[dict[str, Any]]:
-    """One row per controller (keys ``ROW_KEYS``), best ``score_iqm`` first.
+    """One row per result file (keys ``ROW_KEYS``), best ``score_iqm`` first.
 
     Rates are shares of all episodes: success, no bird breached, at least one collision step.
     ``mean_peak_fragmentation`` is the mean over episodes of 1 - min_largest_fraction (0 = the
     flock never split; an error counts as 1). ``median_time_to_success`` (s) is over successful
-    episodes, None when there are none.
+    episodes, None when there are none; ``median_zone_clearance`` (m) over episodes that did not
+    error (negative: a bird got inside).
     """
     rows = [_row(r, reps, seed) for r in results]
     rows.sort(key=lambda r: (-r["score_iqm"], r["controller"]))
+    return rows
+
+
+def build_family_rows(
+    results: Sequence[Mapping[str, Any]], order: Sequence[str] | None = None
+) -> list[dict[str, Any]]:
+    """One row per (family, controller) (keys ``FAMILY_KEYS``): families in suite order, then
+    controllers in ``order`` (default: as given).
+
+    Success rates carry Wilson 95 % intervals; times are medians over successes (s), clearances
+    medians over episodes that did not error (m).
+    """
+    by_name = {row_name(r): r for r in results}
+    names = list(order) if order is not None else list(by_name)
+    families: list[str] = []
+    for r in results:
+        for ep in r["episodes"]:
+            if ep["family"] not in families:
+                families.append(ep["family"])
+    rows = []
+    for family in families:
+        for name in names:
+            eps = [ep for ep in by_name[name]["episodes"] if ep["family"] == family]
+            if not eps:
+                continue
+            k = sum(1 for ep in eps if ep["success"])
+            lo, hi = wilson_interval(k, len(eps))
+            rows.append(
+                {
+                    "controller": name,
+                    "family": family,
+                    "episodes": len(eps),
+                    "successes": k,
+                    "success_rate": k / len(eps),
+                    "success_ci_low": lo,
+                    "success_ci_high": hi,
+                    "median_time_to_success": _median(
+                        [float(ep["time_to_success"]) for ep in eps if ep["success"]]
+                    ),
+                    "median_zone_clearance": _median(_clearances(eps)),
+                    "collision_rate": sum(1 for ep in eps if _collided(ep)) / len(eps),
+                    "score_iqm": float(iqm([episode_score(ep) for ep in eps])),
+                }
+            )
     return rows
 
 
@@ -235,44 +381,103 @@ def _pct(v: float) -> str:
     return f"{100.0 * v:.1f} %"
 
 
-def render_markdown(rows: Sequence[Mapping[str, Any]], suite: str, version: int) -> str:
-    """The leaderboard as a Markdown document: heading, one-line method note and table."""
-    lines = [
-        f"# flockward leaderboard: suite `{suite}` (version {version})",
+def _seconds(t: float | None) -> str:
+    return "-" if t is None else f"{t:.1f} s"
+
+
+def _metres(d: float | None) -> str:
+    return "-" if d is None else f"{d:.1f} m"
+
+
+def _params(changed: Mapping[str, Any]) -> str:
+    return ", ".join(f"{k}={v}" for k, v in changed.items()) if changed else "defaults"
+
+
+SCORE_NOTE = (
+    "Score per episode = 0.50 breach-free + 0.20 success x (1 - t/T) + 0.15 zone clearance "
+    f"(min(1, d/{CLEARANCE_SCALE:g} m), 0 after a breach) + 0.10 no drone-bird contact + 0.05 "
+    "lowest largest-group share; an error scores 0. IQM of all episodes with a 95 % stratified "
+    "bootstrap CI (episodes resampled within each scenario family)."
+)
+
+
+def render_markdown(
+    rows: Sequence[Mapping[str, Any]],
+    suite: str,
+    version: int,
+    family_rows: Sequence[Mapping[str, Any]] = (),
+    preface: str = "",
+) -> str:
+    """The leaderboard as a Markdown document: heading, method note, pooled table and, when
+    given, the per-family table. ``preface`` is a paragraph placed under the heading."""
+    lines = [f"# flockward leaderboard: suite `{suite}` (version {version})", ""]
+    if preface:
+        lines += [preface, ""]
+    lines += [
+        SCORE_NOTE,
         "",
-        "Score per episode = 0.5 success + 0.3 breach-free + 0.2 min largest-group "
-        "share; an error scores 0. IQM of all episodes with a 95 % stratified bootstrap CI "
-        "(episodes resampled within each scenario family).",
-        "",
-        "| rank | controller | information | episodes | score IQM | 95 % CI | success | "
-        "breach-free | collision | fragmentation | median time to success |",
-        "|---:|---|---|---:|---:|---|---:|---:|---:|---:|---:|",
+        "| rank | controller | information | parameters | episodes | score IQM | 95 % CI | "
+        "success | breach-free | collision | fragmentation | median time to success | "
+        "median zone clearance |",
+        "|---:|---|---|---|---:|---:|---|---:|---:|---:|---:|---:|---:|",
     ]
     for rank, r in enumerate(rows, 1):
-        t = r["median_time_to_success"]
         lines.append(
-            f"| {rank} | {r['controller']} | {r['information_level']} | {r['episodes']} | "
+            f"| {rank} | {r['controller']} | {r['information_level']} | "
+            f"{_params(r['changed_parameters'])} | {r['episodes']} | "
             f"{r['score_iqm']:.3f} | [{r['score_ci_low']:.3f}, {r['score_ci_high']:.3f}] | "
             f"{_pct(r['success_rate'])} | {_pct(r['breach_free_rate'])} | "
             f"{_pct(r['collision_rate'])} | {r['mean_peak_fragmentation']:.3f} | "
-            f"{'-' if t is None else f'{t:.1f} s'} |"
+            f"{_seconds(r['median_time_to_success'])} | {_metres(r['median_zone_clearance'])} |"
         )
+    if family_rows:
+        lines += [
+            "",
+            "## Per family",
+            "",
+            "Success with a Wilson 95 % interval; median time over successes; median zone "
+            "clearance (smallest bird distance to the protected zone, negative once a bird got "
+            "in) over episodes that did not error; collision = share of episodes with any "
+            "drone-bird contact; score IQM within the family.",
+            "",
+            "| family | controller | episodes | success | 95 % CI | median time to success | "
+            "median zone clearance | collision | score IQM |",
+            "|---|---|---:|---:|---|---:|---:|---:|---:|",
+        ]
+        for f in family_rows:
+            lines.append(
+                f"| {f['family']} | {f['controller']} | {f['episodes']} | "
+                f"{f['successes']}/{f['episodes']} | "
+                f"[{_pct(f['success_ci_low'])}, {_pct(f['success_ci_high'])}] | "
+                f"{_seconds(f['median_time_to_success'])} | "
+                f"{_metres(f['median_zone_clearance'])} | {_pct(f['collision_rate'])} | "
+                f"{f['score_iqm']:.3f} |"
+            )
     return "\n".join(lines) + "\n"
 
 
-def render_csv(rows: Sequence[Mapping[str, Any]]) -> str:
-    """The rows as CSV with a ``ROW_KEYS`` header; a missing time is an empty field."""
+def _csv_value(v: Any) -> Any:
+    if v is None:
+        return ""
+    if isinstance(v, dict):
+        return _params(v) if v else ""
+    return v
+
+
+def render_csv(rows: Sequence[Mapping[str, Any]], keys: Sequence[str] = ROW_KEYS) -> str:
+    """The rows as CSV with a ``keys`` header; a missing value is an empty field, changed
+    parameters are ``k=v`` pairs joined by ", "."""
     buf = io.StringIO()
-    writer = csv.DictWriter(buf, fieldnames=ROW_KEYS, lineterminator="\n")
+    writer = csv.DictWriter(buf, fieldnames=keys, lineterminator="\n")
     writer.writeheader()
     for r in rows:
-        writer.writerow({k: "" if r[k] is None else r[k] for k in ROW_KEYS})
+        writer.writerow({k: _csv_value(r[k]) for k in keys})
     return buf.getvalue()
 
 
-def render_json(rows: Sequence[Mapping[str, Any]]) -> str:
-    """The rows as a JSON list of objects with the ``ROW_KEYS`` keys."""
-    return json.dumps([{k: r[k] for k in ROW_KEYS} for r in rows], indent=2) + "\n"
+def render_json(rows: Sequence[Mapping[str, Any]], keys: Sequence[str] = ROW_KEYS) -> str:
+    """The rows as a JSON list of objects with the ``keys`` keys."""
+    return json.dumps([{k: r[k] for k in keys} for r in rows], indent=2) + "\n"
 
 
 _LEVEL_STYLE = {  # information level -> (colour, marker)
@@ -281,7 +486,9 @@ _LEVEL_STYLE = {  # information level -> (colour, marker)
 }
 
 
-def write_chart(rows: Sequence[Mapping[str, Any]], path: str | os.PathLike[str]) -> Path:
+def write_chart(
+    rows: Sequence[Mapping[str, Any]], path: str | os.PathLike[str], title: str = ""
+) -> Path:
     """A PNG of each controller's score IQM with CI whiskers; colour and marker show the input."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
@@ -294,13 +501,16 @@ def write_chart(rows: Sequence[Mapping[str, Any]], path: str | os.PathLike[str])
     for y, r in enumerate(reversed(rows)):  # best at the top
         colour, marker = _LEVEL_STYLE.get(r["information_level"], ("#555555", "s"))
         mid = r["score_iqm"]
-        whiskers = [[mid - r["score_ci_low"]], [r["score_ci_high"] - mid]]
+        # A percentile interval need not contain the IQM itself; a whisker cannot be negative.
+        whiskers = [[max(0.0, mid - r["score_ci_low"])], [max(0.0, r["score_ci_high"] - mid)]]
         ax.errorbar([mid], [y], xerr=whiskers, fmt=marker, ms=8, color=colour, mec="#222222",
                     elinewidth=2.5, capsize=5, capthick=2)  # fmt: skip
     ax.set_yticks(range(len(rows)), [r["controller"] for r in reversed(rows)])
     ax.set_xlim(-0.02, 1.02)  # room for markers at the ends of [0, 1]
     ax.set_ylim(-0.7, max(0, len(rows) - 1) + 0.7)
     ax.set_xlabel("episode score: IQM with 95 % stratified bootstrap CI")
+    if title:
+        fig.suptitle(title, fontsize=9, color="#aa0000")
     ax.grid(axis="x", color="#dddddd", lw=0.8)
     ax.set_axisbelow(True)
     handles = [
@@ -310,6 +520,11 @@ def write_chart(rows: Sequence[Mapping[str, Any]], path: str | os.PathLike[str])
     ax.legend(handles=handles, loc="lower center", bbox_to_anchor=(0.5, 1.0), ncol=2,
               fontsize=8, frameon=False)  # fmt: skip
     fig.tight_layout()
+    return save_png(fig, out)
+
+
+def save_png(fig: Any, out: Path) -> Path:
+    """Write a matplotlib figure to ``out`` as PNG, atomically."""
     buf = io.BytesIO()
     fig.savefig(buf, format="png")
     write_atomic(out, buf.getvalue())
@@ -322,67 +537,129 @@ def write_chart(rows: Sequence[Mapping[str, Any]], path: str | os.PathLike[str])
 
 @dataclass(frozen=True)
 class Leaderboard:
-    """The scored rows of one suite, with the suite version the result files were run on."""
+    """The scored rows of one suite, with the suite version the result files were run on.
+
+    ``results`` are the accepted result files (for charts); ``preface`` is a paragraph printed
+    under the heading and ``chart_note`` a line over each chart (e.g. that the smoke suite says
+    nothing about quality).
+    """
 
     suite: str
     version: int
     rows: list[dict[str, Any]]
+    family_rows: list[dict[str, Any]]
+    results: list[dict[str, Any]]
+    preface: str = ""
+    chart_note: str = ""
 
-    def render(self, fmt: str) -> str:
-        """The table in ``fmt``: one of ``FORMATS``."""
+    def render(self, fmt: str, families: bool = False) -> str:
+        """The board in ``fmt``, one of ``FORMATS``. Markdown holds the pooled table and the
+        per-family table; CSV and JSON hold the pooled rows, or the family rows with
+        ``families``."""
         if fmt == "markdown":
-            return render_markdown(self.rows, self.suite, self.version)
+            return render_markdown(
+                self.rows, self.suite, self.version, self.family_rows, self.preface
+            )
+        keys, rows = (FAMILY_KEYS, self.family_rows) if families else (ROW_KEYS, self.rows)
         if fmt == "csv":
-            return render_csv(self.rows)
+            return render_csv(rows, keys)
         if fmt == "json":
-            return render_json(self.rows)
+            return render_json(rows, keys)
         raise LeaderboardError(f"unknown format {fmt!r}; use one of: {', '.join(FORMATS)}")
 
-    def write(self, results_dir: str | os.PathLike[str]) -> tuple[Path, Path]:
-        """Write ``<results_dir>/<suite>/leaderboard.md`` and ``.png`` atomically; return both."""
+    def write(self, results_dir: str | os.PathLike[str]) -> tuple[Path, ...]:
+        """Write ``<results_dir>/<suite>/leaderboard.md``, ``leaderboard.png`` (pooled) and
+        ``leaderboard-families.png`` atomically; return the paths."""
+        from flockward.bench.charts import write_family_chart
+
         folder = Path(results_dir) / self.suite
         md = folder / f"{OUTPUT_STEM}.md"
         write_atomic(md, self.render("markdown"))
-        return md, write_chart(self.rows, folder / f"{OUTPUT_STEM}.png")
+        png = write_chart(self.rows, folder / f"{OUTPUT_STEM}.png", self.chart_note)
+        fam = write_family_chart(
+            self.family_rows, folder / f"{OUTPUT_STEM}-families.png", self.suite, self.chart_note
+        )
+        return md, png, fam
+
+
+def resolve_suite(suite: str | os.PathLike[str]) -> tuple[str, int, str]:
+    """(name, version, hash) of a shipped suite name or a suite file path; LeaderboardError for
+    an unknown or invalid suite."""
+    from flockward.bench.suites import list_suites, load_suite, suite_hash
+    from flockward.config.files import looks_like_path
+    from flockward.config.scenarios import ConfigError
+
+    text = str(suite)
+    if not looks_like_path(text) and text not in list_suites():
+        names = list_suites()
+        valid = ", ".join(names) if names else "none are shipped"
+        raise LeaderboardError(
+            f"unknown suite {text!r}; valid suites: {valid}, or a suite file path (.toml)"
+        )
+    try:
+        loaded = load_suite(text)
+    except ConfigError as exc:
+        raise LeaderboardError(" ".join(str(exc).split())) from None
+    except OSError as exc:
+        raise LeaderboardError(f"suite {text!r}: {exc.strerror or exc}") from None
+    return loaded.name, loaded.version, suite_hash(loaded)
 
 
 def suite_reference(suite: str) -> str:
-    """The hash of ``suite`` as shipped; LeaderboardError for an unknown or invalid suite."""
-    from flockward.bench.suites import list_suites, load_suite, suite_hash
-    from flockward.config.scenarios import ConfigError
-
-    names = list_suites()
-    if suite not in names:
-        valid = ", ".join(names) if names else "none are shipped"
-        raise LeaderboardError(f"unknown suite {suite!r}; valid suites: {valid}")
-    try:
-        return suite_hash(load_suite(suite))
-    except ConfigError as exc:
-        raise LeaderboardError(" ".join(str(exc).split())) from None
+    """The hash of ``suite`` (a shipped name or a file path); LeaderboardError if it is unknown
+    or invalid."""
+    return resolve_suite(suite)[2]
 
 
-def build_leaderboard(
+def load_suite_results(
     results_dir: str | os.PathLike[str],
-    suite: str,
+    suite: str | os.PathLike[str],
     expected_hash: str | None = None,
-    reps: int = 2000,
-    seed: int = 0,
-) -> Leaderboard:
-    """Load, check and score every result file of ``suite``; LeaderboardError if none is usable.
+) -> tuple[str, list[dict[str, Any]]]:
+    """(suite name, accepted result files) of ``suite`` under ``results_dir``; LeaderboardError
+    if there are none. ``expected_hash`` defaults to the hash of the suite as loaded."""
+    from flockward.config.files import looks_like_path
 
-    ``expected_hash`` defaults to the hash of the shipped suite.
-    """
+    name = str(suite)
     if expected_hash is None:
-        expected_hash = suite_reference(suite)
-    folder = Path(results_dir) / suite
-    candidates = [p for p in folder.glob("*.json") if p.stem != OUTPUT_STEM]
+        expected_hash = suite_reference(name)
+        if looks_like_path(name):
+            name = resolve_suite(name)[0]
+    folder = Path(results_dir) / name
+    candidates = [p for p in folder.glob("*.json") if not p.stem.startswith(OUTPUT_STEM)]
     if not candidates:
         raise LeaderboardError(
-            f"no result files in {folder}; write them with `flockward run` for suite {suite!r}"
+            f"no result files in {folder}; write them with `flockward run` for suite {name!r}"
         )
-    results = load_results(results_dir, suite, expected_hash)
+    results = load_results(results_dir, name, expected_hash)
     if not results:
         raise LeaderboardError(
             f"no valid result files in {folder}: all {len(candidates)} were refused (see above)"
         )
-    return Leaderboard(suite, results[0]["suite_version"], build_rows(results, reps, seed))
+    return name, results
+
+
+def build_leaderboard(
+    results_dir: str | os.PathLike[str],
+    suite: str | os.PathLike[str],
+    expected_hash: str | None = None,
+    reps: int = 2000,
+    seed: int = 0,
+    preface: str = "",
+    chart_note: str = "",
+) -> Leaderboard:
+    """Load, check and score every result file of ``suite`` (a shipped name or a suite file;
+    with ``expected_hash`` given, ``suite`` is taken as the suite's name); LeaderboardError if
+    none is usable."""
+    name, results = load_suite_results(results_dir, suite, expected_hash)
+    rows = build_rows(results, reps, seed)
+    order = [r["controller"] for r in rows]
+    return Leaderboard(
+        name,
+        results[0]["suite_version"],
+        rows,
+        build_family_rows(results, order),
+        results,
+        preface,
+        chart_note,
+    )

@@ -120,6 +120,18 @@ def _is_num(v: object) -> TypeGuard[int | float]:
     return (_is_int(v) or isinstance(v, float)) and math.isfinite(v)
 
 
+def _score_fields_problem(ep: dict[str, Any]) -> str | None:
+    """Why the fields the score added after the first result files are missing or bad, or None."""
+    for key in ("min_zone_clearance", "time_limit"):
+        if key not in ep:
+            return f"has no {key!r} (written before the score used it); re-run the controller"
+    if not _is_num(ep["min_zone_clearance"]):
+        return "has 'min_zone_clearance' that is not a finite number (m)"
+    if not (_is_num(ep["time_limit"]) and ep["time_limit"] > 0):
+        return "has 'time_limit' that is not a positive number (s)"
+    return None
+
+
 def episode_problem(ep: Any) -> str | None:
     """Why an episode record cannot be scored, or None when it can."""
     if not isinstance(ep, dict):
@@ -140,12 +152,15 @@ def episode_problem(ep: Any) -> str | None:
         return "has 'breached_birds' that is not an integer in [0, birds]"
     if not (_is_int(ep.get("collision_steps")) and ep["collision_steps"] >= 0):
         return "has 'collision_steps' that is not a non-negative integer"
+    problem = _score_fields_problem(ep)
+    if problem:
+        return problem
     mlf = ep.get("min_largest_fraction")
     if not (_is_num(mlf) and 0.0 <= mlf <= 1.0):
         return "has 'min_largest_fraction' that is not a number in [0, 1]"
     t = ep.get("time_to_success")
-    if outcome == "success" and not (_is_num(t) and t >= 0):
-        return "is a success without a non-negative 'time_to_success'"
+    if outcome == "success" and not (_is_num(t) and 0 <= t <= ep["time_limit"]):
+        return "is a success without a 'time_to_success' in [0, time_limit]"
     return None
 
 
