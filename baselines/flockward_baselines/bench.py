@@ -22,6 +22,7 @@ import numpy as np
 from flockward.task.registration import ENV_ID
 
 if TYPE_CHECKING:
+    from flockward.sim.types import WorldState
     from flockward.sim.world import World
 
 # Rough floating-point operations per interacting pair (distance, three terms, both birds'
@@ -88,6 +89,125 @@ def simulator_rate(
         return worlds * birds * steps
 
     return _median_rate(run, repeats)
+
+
+def _restore(world: World, start: WorldState) -> None:
+    """Put ``world`` back into state ``start`` (arrays copied in place)."""
+    for name in ("bird_pos", "bird_vel", "pursuer_pos", "pursuer_vel", "count"):
+        np.copyto(getattr(world.state, name), getattr(start, name))
+
+
+def kernel_comparison(
+    worlds: int, birds: int, steps: int, repeats: int = 5, seconds: float = 0.3
+) -> dict[str, float]:
+    """Seconds per control step of today's kernel and of the scalar kernel it replaced
+    (flockward_baselines.scalar_kernel), each run from the same state, timed in turns."""
+    from flockward_baselines.scalar_kernel import scalar_step_worlds
+
+    world = _world(worlds, birds)
+    world.step(np.zeros((worlds, world.n_drones, 2)))  # draws the first noise block
+    start = world.state.copy()
+    old = start.copy()
+    action = np.zeros((worlds, world.n_drones, 2))
+    rows = np.zeros(worlds, dtype=np.int64)
+
+    def run_new() -> None:
+        _restore(world, start)
+        for _ in range(steps):
+            world.step(action)
+
+    def run_old() -> None:
+        for name in ("bird_pos", "bird_vel", "pursuer_pos", "pursuer_vel"):
+            np.copyto(getattr(old, name), getattr(start, name))
+        for _ in range(steps):
+            scalar_step_worlds(
+                old.bird_pos, old.bird_vel, old.pursuer_pos, old.pursuer_vel, old.count,
+                world.destination, world.params, world.pursuer_limits, action, world._noise,
+                rows, world.dt, world.substeps, world.use_grid, world.clamps,
+            )  # fmt: skip
+
+    t = _timed_together({"today": run_new, "scalar": run_old}, repeats, seconds)
+    return {"today": t["today"] / steps, "scalar": t["scalar"] / steps}
+
+
+def thread_scaling(
+    worlds: int, birds: int, steps: int, threads: int = 2, repeats: int = 5, seconds: float = 0.3
+) -> dict[int, float]:
+    """Seconds per control step on 1 and on ``threads`` threads, from the same state, in turns."""
+    runs: dict[str, Callable[[], object]] = {}
+    for count in (1, threads):
+        world = _world(worlds, birds)
+        world.threads = count
+        start = world.state.copy()
+        action = np.zeros((worlds, world.n_drones, 2))
+
+        def run(world: World = world, start: WorldState = start, action: Any = action) -> None:
+            _restore(world, start)
+            for _ in range(steps):
+                world.step(action)
+
+        runs[str(count)] = run
+    t = _timed_together(runs, repeats, seconds)
+    return {int(k): v / steps for k, v in t.items()}
+
+
+def step_split(birds: int = 2000, repeats: int = 5, seconds: float = 0.3) -> dict[str, float]:
+    """Seconds per environment step of one murmuration world of ``birds`` birds: the whole
+    vector-env step, the simulator kernel and the flock metrics; the rest (observation, reward,
+    bookkeeping) is the difference."""
+    from flockward.task.vector_env import DivertVectorEnv
+
+    overrides = {"flock.count": birds, "episode.max_steps": 10**6}
+    env = DivertVectorEnv(1, "murmuration", overrides=overrides)
+    env.reset(seed=0)
+    action = np.zeros((1, 2))
+    for _ in range(SCALING_WARMUP):
+        env.step(action)
+    task = env.task
+    kernel_world = _murmuration_world(birds, "auto")
+    kernel_action = np.zeros((1, kernel_world.n_drones, 2))
+    kernel_start = kernel_world.state.copy()
+
+    def kernel() -> None:
+        _restore(kernel_world, kernel_start)
+        kernel_world.step(kernel_action)
+
+    t = _timed_together(
+        {"env step": partial(env.step, action), "kernel": kernel, "metrics": task.measure},
+        repeats,
+        seconds,
+    )
+    t["observation, reward, rest"] = max(t["env step"] - t["kernel"] - t["metrics"], 0.0)
+    return t
+
+
+def per_decision_rate(world_steps_per_s: float, control_steps_per_decision: int = 1) -> float:
+    """Decisions per second when the policy acts every ``control_steps_per_decision`` control
+    steps (the hook for a decision interval: pass the environment's default when it has one)."""
+    return world_steps_per_s / control_steps_per_decision
+
+
+def grid_exponent(
+    sizes: tuple[int, ...] = SCALING_SIZES, repeats: int = 5, seconds: float = 0.2
+) -> dict[str, Any]:
+    """Seconds per step with the grid forced for the headon flock (a disc at 3 m spacing whose
+    separation holds, so neighbour counts stay bounded) and the fitted exponent over ``sizes``."""
+    runs: dict[str, Callable[[], object]] = {}
+    for birds in sizes:
+        world = _world(1, birds, "grid")
+        for _ in range(SCALING_WARMUP):
+            world.step(np.zeros((1, world.n_drones, 2)))
+        start = world.state.copy()
+        action = np.zeros((1, world.n_drones, 2))
+
+        def run(world: World = world, start: WorldState = start, action: Any = action) -> None:
+            _restore(world, start)
+            world.step(action)
+
+        runs[str(birds)] = run
+    t = _timed_together(runs, repeats, seconds)
+    times = [t[str(birds)] for birds in sizes]
+    return {"N": list(sizes), "seconds": times, "exponent": _slope(list(sizes), times)}
 
 
 def interpreted_rate() -> float:

@@ -31,6 +31,29 @@ def compiled_fastmath(flags: set[str]) -> Callable[[Callable[P, R]], Callable[P,
     return decorate
 
 
+def compiled_kernel(flags: set[str]) -> Callable[[Callable[P, R]], Callable[P, R]]:
+    """Like ``compiled_fastmath``, with numba's ``error_model="numpy"``: a division by zero gives
+    inf or NaN instead of raising, so no exception exit sits in a loop and LLVM can vectorise it."""
+
+    def decorate(fn: Callable[P, R]) -> Callable[P, R]:
+        return cast(
+            "Callable[P, R]", numba.njit(cache=True, fastmath=flags, error_model="numpy")(fn)
+        )
+
+    return decorate
+
+
+def compiled_parallel(flags: set[str]) -> Callable[[Callable[P, R]], Callable[P, R]]:
+    """Like ``compiled_kernel``, with numba's ``parallel=True``: its ``prange`` loops run on
+    numba's worker threads (``numba.set_num_threads`` sets how many)."""
+
+    def decorate(fn: Callable[P, R]) -> Callable[P, R]:
+        jit = numba.njit(cache=True, parallel=True, fastmath=flags, error_model="numpy")
+        return cast("Callable[P, R]", jit(fn))
+
+    return decorate
+
+
 def compiled_inline(fn: Callable[P, R]) -> Callable[P, R]:
     """Like ``compiled``, inlined into its callers by numba (a small helper of a hot loop)."""
     return cast("Callable[P, R]", numba.njit(cache=True, inline="always")(fn))
