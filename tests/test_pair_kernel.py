@@ -172,3 +172,10 @@ def test_threads_setting_is_checked(monkeypatch: pytest.MonkeyPatch) -> None:
         World(scenario, 2)
     with pytest.raises(ValueError, match="threads = 0: must be at least 1"):
         World(scenario, 2, threads=0)
+
+
+def test_four_threads_are_available_to_the_thread_checks() -> None:
+    # tests/conftest.py raises numba's cap, so the 4-thread runs above do use 4 threads.
+    from flockward.sim.dynamics import max_threads
+
+    assert max_threads() >= 4

@@ -34,6 +34,10 @@ FLOPS_PER_BIRD = 70
 SIM_SIZES = ((1, 50), (64, 50), (16, 300), (1, 2000))
 SCALING_SIZES = (250, 500, 1000, 2000)  # birds in one murmuration world
 SCALING_WARMUP = 5  # steps before timing, so the flock has left its initial formation
+BENCH_THREADS = 2  # the thread count the scaling figure compares with one thread
+# Control steps per policy decision for the per-decision figure; 1 until the environment holds
+# actions for several steps (then pass its default decision interval here).
+CONTROL_STEPS_PER_DECISION = 1
 NEIGHBOUR_SEARCHES = ("auto", "all-pairs", "grid")
 
 # What scaling_table returns. Its "table" holds one list per column: "N" (flock sizes), one per
@@ -504,6 +508,31 @@ def _emit_scaling(scaling: Scaling, emit: Callable[[str], None]) -> None:
         )
 
 
+def threading_layer() -> str:
+    """The threading layer numba runs parallel code on (starting it if need be)."""
+    import numba
+
+    from flockward.sim import jit
+
+    jit.start_threads()
+    return str(numba.threading_layer())
+
+
+def to_json(results: dict[str, object]) -> str:
+    """The bench's figures as one JSON object (dictionary keys as strings)."""
+
+    def plain(value: object) -> object:
+        if isinstance(value, dict):
+            return {str(k): plain(v) for k, v in value.items()}
+        if isinstance(value, (list, tuple)):
+            return [plain(v) for v in value]
+        if isinstance(value, np.generic):
+            return value.item()
+        return value
+
+    return json.dumps(plain(results), indent=1)
+
+
 def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[str, object]:
     """Measure and print everything; return the figures (also useful to tests)."""
     repeats = 3 if quick else 5
@@ -523,6 +552,29 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
         pairs = simulator_rate(1, birds, 5, repeats, "all-pairs")
         grid = simulator_rate(1, birds, 5, repeats, "grid")
         emit(f"  N = {birds}: grid / all-pairs = {grid / pairs:5.2f}x")
+    emit("  today's kernel against the scalar kernel it replaced, same state, in turns (ms/step):")
+    versus: dict[str, dict[str, float]] = {}
+    for worlds, birds in SIM_SIZES[1:]:
+        steps = max(2, int(20_000 / (worlds * birds)))
+        t = kernel_comparison(worlds, birds, steps, repeats, 0.1 if quick else 0.3)
+        versus[f"{worlds}x{birds}"] = t
+        emit(
+            f"    (B, N) = ({worlds:>2}, {birds:>4}): today {t['today'] * 1e3:7.3f}"
+            f"   scalar {t['scalar'] * 1e3:7.3f}   speed-up x{t['scalar'] / t['today']:.2f}"
+        )
+    results["versus_scalar"] = versus
+    emit(f"  threads, 1 against {BENCH_THREADS} (numba layer {threading_layer()}), ms/step:")
+    threads: dict[str, dict[int, float]] = {}
+    for worlds, birds in ((64, 50), (1, 2000)):
+        steps = max(2, int(20_000 / (worlds * birds)))
+        t2 = thread_scaling(worlds, birds, steps, BENCH_THREADS, repeats, 0.1 if quick else 0.3)
+        threads[f"{worlds}x{birds}"] = t2
+        emit(
+            f"    (B, N) = ({worlds:>2}, {birds:>4}): 1 thread {t2[1] * 1e3:7.3f}"
+            f"   {BENCH_THREADS} threads {t2[BENCH_THREADS] * 1e3:7.3f}"
+            f"   speed-up x{t2[1] / t2[BENCH_THREADS]:.2f}"
+        )
+    results["threads"] = threads
     python_rate = interpreted_rate()
     mm = matmul_gflops()
     emit(
@@ -541,7 +593,13 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
     emit(f"  vector env / bare kernel:  {envs['vector env'] / envs['bare kernel']:6.2f}")
     emit(f"  SB3 adapter / vector env:  {envs['SB3 adapter'] / envs['vector env']:6.2f}")
     emit(f"  vector env / single env:   {envs['vector env'] / envs['single env']:6.1f}")
+    per_decision = per_decision_rate(envs["vector env"], CONTROL_STEPS_PER_DECISION)
+    emit(
+        f"  vector env decisions/s ({CONTROL_STEPS_PER_DECISION} control step per decision):"
+        f" {per_decision:,.0f}"
+    )
     results["environments"] = envs
+    results["decisions_per_s"] = per_decision
 
     emit("\nRunner, smoke suite, every scripted baseline (wall seconds, one run each):")
     runner = runner_times()
@@ -555,6 +613,19 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
     scaling = scaling_table(repeats=repeats, seconds=0.05 if quick else 0.2)
     _emit_scaling(scaling, emit)
     results["scaling"] = scaling
+    headon = grid_exponent(repeats=repeats, seconds=0.05 if quick else 0.2)
+    sizes = zip(headon["N"], headon["seconds"], strict=True)
+    emit(
+        "  grid, headon flock (separation holds), ms per step: "
+        + ", ".join(f"N = {n} {t * 1e3:.2f}" for n, t in sizes)
+    )
+    emit(f"  grid fitted exponent, headon flock: k = {headon['exponent']:.2f}")
+    results["grid_headon"] = headon
+    split = step_split(seconds=0.1 if quick else 0.3, repeats=repeats)
+    emit("  one environment step at N = 2000 (murmuration), ms: " + ", ".join(
+        f"{name} {t * 1e3:.2f}" for name, t in split.items()
+    ))  # fmt: skip
+    results["step_split_2000"] = split
 
     if not quick:
         emit("\nPPO (MlpPolicy, CPU, 16 worlds, same hyperparameters), steps/s:")

@@ -8,10 +8,18 @@ loads the machine code instead of compiling it again.
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable
 from typing import ParamSpec, TypeVar, cast
 
 import numba
+import numpy as np
+
+# numba's threading layer for parallel code, unless NUMBA_THREADING_LAYER says otherwise: chosen
+# by measurement with another process holding a core (see `flockward bench` and the speed notes).
+THREADING_LAYER = "workqueue"
+if "NUMBA_THREADING_LAYER" not in os.environ:
+    numba.config.THREADING_LAYER = THREADING_LAYER  # type: ignore[attr-defined]
 
 P = ParamSpec("P")
 R = TypeVar("R")
@@ -63,3 +71,14 @@ def compiled_uncached(fn: Callable[P, R]) -> Callable[P, R]:
     """Like ``compiled`` without the on-disk cache: for functions that take another compiled
     function as an argument, which numba's cache cannot tell apart."""
     return cast("Callable[P, R]", numba.njit(fn))
+
+
+@numba.njit(parallel=True)
+def _touch_threads(out: np.ndarray) -> None:
+    for k in numba.prange(out.shape[0]):
+        out[k] = k
+
+
+def start_threads() -> None:
+    """Start numba's thread pool (a tiny parallel loop), so its threading layer can be read."""
+    _touch_threads(np.zeros(4))
