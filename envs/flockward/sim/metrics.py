@@ -26,7 +26,9 @@ from flockward.sim.geometry import (
 )
 from flockward.sim.jit import compiled
 
-GRID_MIN_BIRDS = 2500  # the search over unreached birds beats the grid below this (flockward bench)
+# The search over unreached birds beats the union-find grid below this: measured crossovers near
+# N = 410 (murmuration) and 335 (headon disc); `flockward bench` re-checks it.
+GRID_MIN_BIRDS = 400
 _AUTO, _PAIRS, _GRID = 0, 1, 2  # neighbour-search method codes for the kernels
 _METHODS = {"auto": _AUTO, "pairs": _PAIRS, "grid": _GRID}
 # Beyond this many cells from the origin a bird's cell could be off by rounding by more than the
@@ -451,8 +453,9 @@ def components(
     """Connected components of the graph linking birds closer than radius (strictly), per world.
 
     Returns labels (B, N) int64 (-1 for padding), n_components (B,) int64 and largest_fraction
-    (B,). "auto" searches over unreached birds below GRID_MIN_BIRDS active birds and links
-    through a cell grid from there on; both give the same partition.
+    (B,). "auto" searches over unreached birds below GRID_MIN_BIRDS active birds (O(N) for one
+    compact flock, O(N^2) for a scattered one) and joins cells of a grid by union-find from
+    there on (O(N log N) whatever the layout); both give the same partition.
     """
     if method not in _METHODS:
         raise ValueError(f"method must be one of {sorted(_METHODS)}, got {method!r}")
