@@ -25,10 +25,11 @@ if TYPE_CHECKING:
     from flockward.sim.types import WorldState
     from flockward.sim.world import World
 
-# Rough floating-point operations per interacting pair (distance, three terms, both birds'
-# accumulators) and per bird (steering sum, fear, clamps, integration): counted by hand from the
-# kernel source, so the GFLOP/s figure is an estimate, not a hardware count.
-FLOPS_PER_PAIR = 40
+# Rough floating-point operations per unordered pair of birds (the kernel sums ordered pairs, each
+# about 50 operations: distance, three cut-offs and terms) and per bird (steering sum, fear,
+# clamps, integration): counted by hand from the kernel source, so the GFLOP/s figure is an
+# estimate, not a hardware count.
+FLOPS_PER_PAIR = 100
 FLOPS_PER_BIRD = 70
 
 SIM_SIZES = ((1, 50), (64, 50), (16, 300), (1, 2000))
