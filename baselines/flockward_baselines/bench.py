@@ -196,13 +196,21 @@ def grid_exponent(
     sizes: tuple[int, ...] = SCALING_SIZES, repeats: int = 5, seconds: float = 0.2
 ) -> dict[str, Any]:
     """Seconds per step with the grid forced for the headon flock (a disc at 3 m spacing whose
-    separation holds, so neighbour counts stay bounded) and the fitted exponent over ``sizes``."""
+    separation holds) and the fitted exponent over ``sizes``; also the mean number of birds within
+    the interaction cut-off per bird (it still grows while the disc is not much wider than the
+    cut-off: edge birds have fewer) and the exponent against the number of neighbour pairs."""
+    from scipy.spatial import cKDTree
+
     runs: dict[str, Callable[[], object]] = {}
+    neighbours = []
     for birds in sizes:
         world = _world(1, birds, "grid")
         for _ in range(SCALING_WARMUP):
             world.step(np.zeros((1, world.n_drones, 2)))
         start = world.state.copy()
+        tree = cKDTree(start.bird_pos[0, :birds])
+        pairs = tree.query_pairs(world.scenario.flock.interaction_radius, output_type="ndarray")
+        neighbours.append(2 * len(pairs) / birds)
         action = np.zeros((1, world.n_drones, 2))
 
         def run(world: World = world, start: WorldState = start, action: Any = action) -> None:
@@ -212,7 +220,14 @@ def grid_exponent(
         runs[str(birds)] = run
     t = _timed_together(runs, repeats, seconds)
     times = [t[str(birds)] for birds in sizes]
-    return {"N": list(sizes), "seconds": times, "exponent": _slope(list(sizes), times)}
+    pair_counts = [birds * k for birds, k in zip(sizes, neighbours, strict=True)]
+    return {
+        "N": list(sizes),
+        "seconds": times,
+        "exponent": _slope(list(sizes), times),
+        "neighbours": neighbours,
+        "exponent per pair": _slope(pair_counts, times),
+    }
 
 
 def interpreted_rate() -> float:
@@ -356,7 +371,7 @@ def runner_times(suite_name: str = "smoke") -> dict[int, float]:
     return out
 
 
-def _slope(sizes: list[int], seconds: list[float]) -> float:
+def _slope(sizes: list[int] | list[float], seconds: list[float]) -> float:
     """Least-squares slope of log(seconds) against log(size): the empirical scaling exponent."""
     return float(np.polyfit(np.log(sizes), np.log(seconds), 1)[0])
 
@@ -620,7 +635,12 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
         "  grid, headon flock (separation holds), ms per step: "
         + ", ".join(f"N = {n} {t * 1e3:.2f}" for n, t in sizes)
     )
-    emit(f"  grid fitted exponent, headon flock: k = {headon['exponent']:.2f}")
+    emit(
+        f"  grid fitted exponent, headon flock: k = {headon['exponent']:.2f} in N; neighbours"
+        " within the cut-off per bird "
+        + ", ".join(f"{k:.0f}" for k in headon["neighbours"])
+        + f"; k = {headon['exponent per pair']:.2f} in neighbour pairs"
+    )
     results["grid_headon"] = headon
     split = step_split(seconds=0.1 if quick else 0.3, repeats=repeats)
     emit("  one environment step at N = 2000 (murmuration), ms: " + ", ".join(
