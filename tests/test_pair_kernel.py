@@ -179,3 +179,22 @@ def test_four_threads_are_available_to_the_thread_checks() -> None:
     from flockward.sim.dynamics import max_threads
 
     assert max_threads() >= 4
+
+
+def test_pair_loop_compiles_to_packed_vector_instructions() -> None:
+    # Guards the vectorisation: a branch or an exception exit added to _pair_sums would leave
+    # only scalar code (sqrtsd) and the kernel would fall back to half its speed. The function is
+    # compiled afresh with the kernel's options, since cached code cannot be inspected.
+    import numba
+
+    from flockward.sim import dynamics
+
+    fresh = numba.njit(fastmath=dynamics._FAST, error_model="numpy")(
+        dynamics._flock_slots.py_func
+    )
+    x, v = _flock_state(40, seed=1)
+    ctx = flock_context(FlockParams().kernel_vector(), np.array(FAR), NO_DRONE, NO_DRONE, 40)
+    runs = dynamics._sort_into_slots(x, v, 40, 25.0, False, ctx[5], ctx[6])
+    fresh(0, 40, 40, ctx, runs, np.empty(16), np.zeros_like(x))
+    asm = "".join(fresh.inspect_asm(sig) for sig in fresh.signatures)
+    assert "sqrtpd" in asm  # packed square roots (x86: SSE2 xmm or AVX ymm/zmm)
