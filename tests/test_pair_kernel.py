@@ -189,9 +189,7 @@ def test_pair_loop_compiles_to_packed_vector_instructions() -> None:
 
     from flockward.sim import dynamics
 
-    fresh = numba.njit(fastmath=dynamics._FAST, error_model="numpy")(
-        dynamics._flock_slots.py_func
-    )
+    fresh = numba.njit(fastmath=dynamics._FAST, error_model="numpy")(dynamics._flock_slots.py_func)
     x, v = _flock_state(40, seed=1)
     ctx = flock_context(FlockParams().kernel_vector(), np.array(FAR), NO_DRONE, NO_DRONE, 40)
     runs = dynamics._sort_into_slots(x, v, 40, 25.0, False, ctx[5], ctx[6])
