@@ -23,6 +23,7 @@ from scipy.spatial import cKDTree
 from flockward.config.scenarios import load_flock, load_scenario
 from flockward.sim.dynamics import (
     GRID_MIN_BIRDS,
+    StepWork,
     choose_grid,
     flock_acceleration,
     flock_context,
@@ -65,12 +66,11 @@ def run(flock, x, v, steps, *, drones=NO_DRONE, drone_vel=None, action=None,
     pv = np.zeros_like(p) if drone_vel is None else np.array(drone_vel, np.float64).reshape(p.shape)
     act = np.zeros_like(p) if action is None else np.array(action, np.float64).reshape(p.shape)
     lim = np.broadcast_to(np.asarray(limits, np.float64), p.shape).copy()
-    m = max(n, 1)
-    args = (np.zeros((m, 2)), np.zeros((m, 2)), np.zeros((2, m), np.int64))
+    work = StepWork(1, n)
     for _ in range(steps):
         step_worlds(x, v, p, pv, np.array([n]), np.array([destination], np.float64),
                     flock.kernel_vector()[None], lim, act, np.zeros((1, 0, 0, 2)),
-                    np.zeros(1, np.int64), dt, substeps, grid, np.ones(1, np.bool_), *args,
+                    np.zeros(1, np.int64), dt, substeps, grid, np.ones(1, np.bool_), work,
                     np.zeros(1, np.int64))  # fmt: skip
     return x[0], v[0], p[0], pv[0]
 

@@ -157,8 +157,14 @@ def _rollout_single(seeds, actions, overrides):
     return out
 
 
-def test_vector_env_equals_single_envs():
+# The threaded kernel must give the serial result bit for bit (FLOCKWARD_THREADS sets the default).
+THREAD_COUNTS = [1, 2, 4]
+
+
+@pytest.mark.parametrize("threads", THREAD_COUNTS)
+def test_vector_env_equals_single_envs(threads, monkeypatch):
     # The native vector env must reproduce B single environments bit for bit, autoresets included.
+    monkeypatch.setenv("FLOCKWARD_THREADS", str(threads))
     seeds = [11, 12, 13, 14]
     overrides = {"episode.max_steps": 25, "flock.noise_std": 0.5}
     actions = np.random.default_rng(0).uniform(-1.5, 1.5, (70, 4, 2))
@@ -174,7 +180,9 @@ def test_vector_env_equals_single_envs():
             assert reward[w] == singles[w][t + 1][1]
 
 
-def test_sb3_adapter_equals_single_envs():
+@pytest.mark.parametrize("threads", THREAD_COUNTS)
+def test_sb3_adapter_equals_single_envs(threads, monkeypatch):
+    monkeypatch.setenv("FLOCKWARD_THREADS", str(threads))
     # Same-step autoreset: a finished world's terminal observation is in the info and the
     # returned observation is already the next episode's first.
     overrides = {"episode.max_steps": 25}

@@ -82,7 +82,10 @@ def test_custom_parts_pass_the_checkers():
     sb3_check_env(DivertEnv("headon", overrides=SHORT, observation=OBS_PATH), warn=True)
 
 
-def test_custom_parts_through_make_vec_match_single_envs():
+@pytest.mark.parametrize("threads", [1, 2, 4])
+def test_custom_parts_through_make_vec_match_single_envs(threads, monkeypatch):
+    # Whatever the thread count (FLOCKWARD_THREADS), bit for bit.
+    monkeypatch.setenv("FLOCKWARD_THREADS", str(threads))
     venv = gym.make_vec(
         ENV_ID,
         num_envs=3,

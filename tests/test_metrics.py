@@ -189,6 +189,22 @@ def test_components_grid_equals_all_pairs(birds: int) -> None:
     assert 1 < k < birds
 
 
+@pytest.mark.parametrize("spacing", [1.0, 1.0 - 1e-9, 1.0 / math.sqrt(2.0), 0.1])
+def test_components_grid_on_lattices_at_the_link_radius(spacing: float) -> None:
+    # Square lattices of radius 1 at spacings on either side of the strict link (no links at
+    # exactly 1, all linked just below) and at the grid's own cell size and a tenth of it, where
+    # many birds share a cell: the union-find grid must find scipy's partition each time.
+    side = 25
+    ij = np.stack(np.meshgrid(np.arange(side), np.arange(side)), axis=-1).reshape(-1, 2)
+    pos = (ij * spacing + 1000.0)[None].astype(np.float64)
+    count = np.array([side * side])
+    labels, n_comp, _ = components(pos, count, 1.0, "grid")
+    # Reference: scipy.sparse.csgraph.connected_components on cKDTree neighbour pairs.
+    k, ref = scipy_components(pos[0], 1.0)
+    assert n_comp[0] == k == (side * side if spacing == 1.0 else 1)
+    assert same_partition(labels[0], ref)
+
+
 def test_components_degenerate_radii() -> None:
     pos, _, count = random_batch(3)
     assert (components(pos, count, 0.0)[1] == count).all()  # no links: every bird alone

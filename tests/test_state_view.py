@@ -47,7 +47,10 @@ def test_state_follows_the_episode():
     assert info["nearest_distance"] == pytest.approx(gaps.min())
 
 
-def test_vector_env_state_per_world_matches_single_envs():
+@pytest.mark.parametrize("threads", [1, 2, 4])
+def test_vector_env_state_per_world_matches_single_envs(threads, monkeypatch):
+    # Whatever the thread count (FLOCKWARD_THREADS), bit for bit.
+    monkeypatch.setenv("FLOCKWARD_THREADS", str(threads))
     venv = gym.make_vec(ENV_ID, num_envs=3, vectorization_mode="vector_entry_point",
                         scenario="trio")  # fmt: skip
     venv.reset(seed=20)

@@ -160,8 +160,11 @@ def _episode(worlds: int, seed: int, steps: int = 30) -> np.ndarray:
     return world.state.bird_pos.copy()
 
 
-def test_topological_flock_is_deterministic_alone_and_in_a_batch():
-    # Same seed, same trajectory: twice on its own, and as the first world of a batch of three.
+@pytest.mark.parametrize("threads", [1, 2, 4])
+def test_topological_flock_is_deterministic_alone_and_in_a_batch(threads, monkeypatch):
+    # Same seed, same trajectory: twice on its own, and as the first world of a batch of three,
+    # whatever the thread count (FLOCKWARD_THREADS).
+    monkeypatch.setenv("FLOCKWARD_THREADS", str(threads))
     alone = _episode(1, 11)
     np.testing.assert_array_equal(alone, _episode(1, 11))
     np.testing.assert_array_equal(alone[0], _episode(3, 11)[0])

@@ -22,17 +22,23 @@ import numpy as np
 from flockward.task.registration import ENV_ID
 
 if TYPE_CHECKING:
+    from flockward.sim.types import WorldState
     from flockward.sim.world import World
 
-# Rough floating-point operations per interacting pair (distance, three terms, both birds'
-# accumulators) and per bird (steering sum, fear, clamps, integration): counted by hand from the
-# kernel source, so the GFLOP/s figure is an estimate, not a hardware count.
-FLOPS_PER_PAIR = 40
+# Rough floating-point operations per unordered pair of birds (the kernel sums ordered pairs, each
+# about 50 operations: distance, three cut-offs and terms) and per bird (steering sum, fear,
+# clamps, integration): counted by hand from the kernel source, so the GFLOP/s figure is an
+# estimate, not a hardware count.
+FLOPS_PER_PAIR = 100
 FLOPS_PER_BIRD = 70
 
 SIM_SIZES = ((1, 50), (64, 50), (16, 300), (1, 2000))
 SCALING_SIZES = (250, 500, 1000, 2000)  # birds in one murmuration world
 SCALING_WARMUP = 5  # steps before timing, so the flock has left its initial formation
+BENCH_THREADS = 2  # the thread count the scaling figure compares with one thread
+# Control steps per policy decision for the per-decision figure; 1 until the environment holds
+# actions for several steps (then pass its default decision interval here).
+CONTROL_STEPS_PER_DECISION = 1
 NEIGHBOUR_SEARCHES = ("auto", "all-pairs", "grid")
 
 # What scaling_table returns. Its "table" holds one list per column: "N" (flock sizes), one per
@@ -88,6 +94,140 @@ def simulator_rate(
         return worlds * birds * steps
 
     return _median_rate(run, repeats)
+
+
+def _restore(world: World, start: WorldState) -> None:
+    """Put ``world`` back into state ``start`` (arrays copied in place)."""
+    for name in ("bird_pos", "bird_vel", "pursuer_pos", "pursuer_vel", "count"):
+        np.copyto(getattr(world.state, name), getattr(start, name))
+
+
+def kernel_comparison(
+    worlds: int, birds: int, steps: int, repeats: int = 5, seconds: float = 0.3
+) -> dict[str, float]:
+    """Seconds per control step of today's kernel and of the scalar kernel it replaced
+    (flockward_baselines.scalar_kernel), each run from the same state, timed in turns."""
+    from flockward_baselines.scalar_kernel import scalar_step_worlds
+
+    world = _world(worlds, birds)
+    world.step(np.zeros((worlds, world.n_drones, 2)))  # draws the first noise block
+    start = world.state.copy()
+    old = start.copy()
+    action = np.zeros((worlds, world.n_drones, 2))
+    rows = np.zeros(worlds, dtype=np.int64)
+
+    def run_new() -> None:
+        _restore(world, start)
+        for _ in range(steps):
+            world.step(action)
+
+    def run_old() -> None:
+        for name in ("bird_pos", "bird_vel", "pursuer_pos", "pursuer_vel"):
+            np.copyto(getattr(old, name), getattr(start, name))
+        for _ in range(steps):
+            scalar_step_worlds(
+                old.bird_pos, old.bird_vel, old.pursuer_pos, old.pursuer_vel, old.count,
+                world.destination, world.params, world.pursuer_limits, action, world._noise,
+                rows, world.dt, world.substeps, world.use_grid, world.clamps,
+            )  # fmt: skip
+
+    t = _timed_together({"today": run_new, "scalar": run_old}, repeats, seconds)
+    return {"today": t["today"] / steps, "scalar": t["scalar"] / steps}
+
+
+def thread_scaling(
+    worlds: int, birds: int, steps: int, threads: int = 2, repeats: int = 5, seconds: float = 0.3
+) -> dict[int, float]:
+    """Seconds per control step on 1 and on ``threads`` threads, from the same state, in turns."""
+    runs: dict[str, Callable[[], object]] = {}
+    for count in (1, threads):
+        world = _world(worlds, birds)
+        world.threads = count
+        start = world.state.copy()
+        action = np.zeros((worlds, world.n_drones, 2))
+
+        def run(world: World = world, start: WorldState = start, action: Any = action) -> None:
+            _restore(world, start)
+            for _ in range(steps):
+                world.step(action)
+
+        runs[str(count)] = run
+    t = _timed_together(runs, repeats, seconds)
+    return {int(k): v / steps for k, v in t.items()}
+
+
+def step_split(birds: int = 2000, repeats: int = 5, seconds: float = 0.3) -> dict[str, float]:
+    """Seconds per environment step of one murmuration world of ``birds`` birds: the whole
+    vector-env step, the simulator kernel and the flock metrics; the rest (observation, reward,
+    bookkeeping) is the difference."""
+    from flockward.task.vector_env import DivertVectorEnv
+
+    overrides = {"flock.count": birds, "episode.max_steps": 10**6}
+    env = DivertVectorEnv(1, "murmuration", overrides=overrides)
+    env.reset(seed=0)
+    action = np.zeros((1, 2))
+    for _ in range(SCALING_WARMUP):
+        env.step(action)
+    task = env.task
+    kernel_world = _murmuration_world(birds, "auto")
+    kernel_action = np.zeros((1, kernel_world.n_drones, 2))
+    kernel_start = kernel_world.state.copy()
+
+    def kernel() -> None:
+        _restore(kernel_world, kernel_start)
+        kernel_world.step(kernel_action)
+
+    t = _timed_together(
+        {"env step": partial(env.step, action), "kernel": kernel, "metrics": task.measure},
+        repeats,
+        seconds,
+    )
+    t["observation, reward, rest"] = max(t["env step"] - t["kernel"] - t["metrics"], 0.0)
+    return t
+
+
+def per_decision_rate(world_steps_per_s: float, control_steps_per_decision: int = 1) -> float:
+    """Decisions per second when the policy acts every ``control_steps_per_decision`` control
+    steps (the hook for a decision interval: pass the environment's default when it has one)."""
+    return world_steps_per_s / control_steps_per_decision
+
+
+def grid_exponent(
+    sizes: tuple[int, ...] = SCALING_SIZES, repeats: int = 5, seconds: float = 0.2
+) -> dict[str, Any]:
+    """Seconds per step with the grid forced for the headon flock (a disc at 3 m spacing whose
+    separation holds) and the fitted exponent over ``sizes``; also the mean number of birds within
+    the interaction cut-off per bird (it still grows while the disc is not much wider than the
+    cut-off: edge birds have fewer) and the exponent against the number of neighbour pairs."""
+    from scipy.spatial import cKDTree
+
+    runs: dict[str, Callable[[], object]] = {}
+    neighbours = []
+    for birds in sizes:
+        world = _world(1, birds, "grid")
+        for _ in range(SCALING_WARMUP):
+            world.step(np.zeros((1, world.n_drones, 2)))
+        start = world.state.copy()
+        tree = cKDTree(start.bird_pos[0, :birds])
+        pairs = tree.query_pairs(world.scenario.flock.interaction_radius, output_type="ndarray")
+        neighbours.append(2 * len(pairs) / birds)
+        action = np.zeros((1, world.n_drones, 2))
+
+        def run(world: World = world, start: WorldState = start, action: Any = action) -> None:
+            _restore(world, start)
+            world.step(action)
+
+        runs[str(birds)] = run
+    t = _timed_together(runs, repeats, seconds)
+    times = [t[str(birds)] for birds in sizes]
+    pair_counts = [birds * k for birds, k in zip(sizes, neighbours, strict=True)]
+    return {
+        "N": list(sizes),
+        "seconds": times,
+        "exponent": _slope(list(sizes), times),
+        "neighbours": neighbours,
+        "exponent per pair": _slope(pair_counts, times),
+    }
 
 
 def interpreted_rate() -> float:
@@ -231,7 +371,7 @@ def runner_times(suite_name: str = "smoke") -> dict[int, float]:
     return out
 
 
-def _slope(sizes: list[int], seconds: list[float]) -> float:
+def _slope(sizes: list[int] | list[float], seconds: list[float]) -> float:
     """Least-squares slope of log(seconds) against log(size): the empirical scaling exponent."""
     return float(np.polyfit(np.log(sizes), np.log(seconds), 1)[0])
 
@@ -384,6 +524,31 @@ def _emit_scaling(scaling: Scaling, emit: Callable[[str], None]) -> None:
         )
 
 
+def threading_layer() -> str:
+    """The threading layer numba runs parallel code on (starting it if need be)."""
+    import numba
+
+    from flockward.sim import jit
+
+    jit.start_threads()
+    return str(numba.threading_layer())
+
+
+def to_json(results: dict[str, object]) -> str:
+    """The bench's figures as one JSON object (dictionary keys as strings)."""
+
+    def plain(value: object) -> object:
+        if isinstance(value, dict):
+            return {str(k): plain(v) for k, v in value.items()}
+        if isinstance(value, (list, tuple)):
+            return [plain(v) for v in value]
+        if isinstance(value, np.generic):
+            return value.item()
+        return value
+
+    return json.dumps(plain(results), indent=1)
+
+
 def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[str, object]:
     """Measure and print everything; return the figures (also useful to tests)."""
     repeats = 3 if quick else 5
@@ -403,6 +568,29 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
         pairs = simulator_rate(1, birds, 5, repeats, "all-pairs")
         grid = simulator_rate(1, birds, 5, repeats, "grid")
         emit(f"  N = {birds}: grid / all-pairs = {grid / pairs:5.2f}x")
+    emit("  today's kernel against the scalar kernel it replaced, same state, in turns (ms/step):")
+    versus: dict[str, dict[str, float]] = {}
+    for worlds, birds in SIM_SIZES[1:]:
+        steps = max(2, int(20_000 / (worlds * birds)))
+        t = kernel_comparison(worlds, birds, steps, repeats, 0.1 if quick else 0.3)
+        versus[f"{worlds}x{birds}"] = t
+        emit(
+            f"    (B, N) = ({worlds:>2}, {birds:>4}): today {t['today'] * 1e3:7.3f}"
+            f"   scalar {t['scalar'] * 1e3:7.3f}   speed-up x{t['scalar'] / t['today']:.2f}"
+        )
+    results["versus_scalar"] = versus
+    emit(f"  threads, 1 against {BENCH_THREADS} (numba layer {threading_layer()}), ms/step:")
+    threads: dict[str, dict[int, float]] = {}
+    for worlds, birds in ((64, 50), (1, 2000)):
+        steps = max(2, int(20_000 / (worlds * birds)))
+        t2 = thread_scaling(worlds, birds, steps, BENCH_THREADS, repeats, 0.1 if quick else 0.3)
+        threads[f"{worlds}x{birds}"] = t2
+        emit(
+            f"    (B, N) = ({worlds:>2}, {birds:>4}): 1 thread {t2[1] * 1e3:7.3f}"
+            f"   {BENCH_THREADS} threads {t2[BENCH_THREADS] * 1e3:7.3f}"
+            f"   speed-up x{t2[1] / t2[BENCH_THREADS]:.2f}"
+        )
+    results["threads"] = threads
     python_rate = interpreted_rate()
     mm = matmul_gflops()
     emit(
@@ -421,7 +609,13 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
     emit(f"  vector env / bare kernel:  {envs['vector env'] / envs['bare kernel']:6.2f}")
     emit(f"  SB3 adapter / vector env:  {envs['SB3 adapter'] / envs['vector env']:6.2f}")
     emit(f"  vector env / single env:   {envs['vector env'] / envs['single env']:6.1f}")
+    per_decision = per_decision_rate(envs["vector env"], CONTROL_STEPS_PER_DECISION)
+    emit(
+        f"  vector env decisions/s ({CONTROL_STEPS_PER_DECISION} control step per decision):"
+        f" {per_decision:,.0f}"
+    )
     results["environments"] = envs
+    results["decisions_per_s"] = per_decision
 
     emit("\nRunner, smoke suite, every scripted baseline (wall seconds, one run each):")
     runner = runner_times()
@@ -435,6 +629,24 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
     scaling = scaling_table(repeats=repeats, seconds=0.05 if quick else 0.2)
     _emit_scaling(scaling, emit)
     results["scaling"] = scaling
+    headon = grid_exponent(repeats=repeats, seconds=0.05 if quick else 0.2)
+    sizes = zip(headon["N"], headon["seconds"], strict=True)
+    emit(
+        "  grid, headon flock (separation holds), ms per step: "
+        + ", ".join(f"N = {n} {t * 1e3:.2f}" for n, t in sizes)
+    )
+    emit(
+        f"  grid fitted exponent, headon flock: k = {headon['exponent']:.2f} in N; neighbours"
+        " within the cut-off per bird "
+        + ", ".join(f"{k:.0f}" for k in headon["neighbours"])
+        + f"; k = {headon['exponent per pair']:.2f} in neighbour pairs"
+    )
+    results["grid_headon"] = headon
+    split = step_split(seconds=0.1 if quick else 0.3, repeats=repeats)
+    emit("  one environment step at N = 2000 (murmuration), ms: " + ", ".join(
+        f"{name} {t * 1e3:.2f}" for name, t in split.items()
+    ))  # fmt: skip
+    results["step_split_2000"] = split
 
     if not quick:
         emit("\nPPO (MlpPolicy, CPU, 16 worlds, same hyperparameters), steps/s:")

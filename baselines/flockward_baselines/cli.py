@@ -106,9 +106,12 @@ def _cmd_schema(args: argparse.Namespace) -> int:
 
 def _cmd_bench(args: argparse.Namespace) -> int:
     """Print simulator, environment and PPO throughput with ratios, all measured in one run."""
-    from flockward_baselines.bench import run_bench
+    from flockward_baselines.bench import run_bench, to_json
 
-    run_bench(quick=args.quick)
+    if args.json:
+        print(to_json(run_bench(quick=args.quick, emit=lambda line: None)))
+    else:
+        run_bench(quick=args.quick)
     return EXIT_OK
 
 
@@ -595,6 +598,7 @@ def build_parser() -> argparse.ArgumentParser:
         "ratios between figures of the same run (medians of repeats).",
     )
     bench.add_argument("--quick", action="store_true", help="fewer repeats, no PPO (seconds)")
+    bench.add_argument("--json", action="store_true", help="print the figures as one JSON object")
     bench.set_defaults(handler=_cmd_bench)
 
     show = sub.add_parser(

@@ -65,8 +65,22 @@ lowest index on a tie); a world with no drone has no fear at all.
 
 Neighbour search: all pairs for small flocks; for large flocks a cell grid with cell size equal
 to the interaction cut-off (birds sorted by cell key, neighbouring cells found by binary search,
-memory O(N)). Both visit each bird's neighbours as ordered pairs and run the same pair
-arithmetic, so they agree to rounding.
+memory O(N)). Each force evaluation first copies the birds into visiting order as
+struct-of-arrays slots (x, y, vx, vy), so a bird's candidates are one contiguous run of slots (all
+pairs) or three (the grid's cell columns). One function, ``_pair_sums``, sums a bird's terms over
+a run of slots for both searches, as ordered pairs (each bird sums over its own candidates), so
+they agree to rounding. The loop has no branch: cut-offs are selects, the bird itself is summed
+too (it adds exactly its weight 1, the 1 of the local normalisation), distances are floored
+before division. Compiled with ``error_model="numpy"`` (no exception exit in the loop) and the
+fast-math flags of ``_FAST``, LLVM vectorises it (AVX2: 4 pairs per instruction). The sums are
+then taken in another order than one pair after the other: results agree with the scalar loop to
+about 1e-15 relative per force evaluation, not bit for bit, and diverge over an episode as
+chaotic dynamics do; they are the same on every run, in single and vector envs.
+
+Threads (opt-in, ``threads`` of ``step_worlds``): worlds are split over numba's threads, or, with
+fewer worlds than threads, one large world's birds in blocks of ``BIRD_BLOCK``. Every world has
+its own work space and every bird's sums are the same code on the same slots, so the result is
+the serial one bit for bit for any thread count.
 """
 
 from __future__ import annotations
@@ -75,19 +89,29 @@ import functools
 import math
 from collections.abc import Callable
 
+import numba
 import numpy as np
 
-from flockward.sim.jit import compiled, compiled_fastmath, compiled_inline, compiled_uncached
+from flockward.sim.jit import (
+    compiled,
+    compiled_inline,
+    compiled_kernel,
+    compiled_parallel,
+    compiled_uncached,
+)
 from flockward.sim.types import MAX_NEIGHBOURS, K
 
 # One world's surroundings as flock_acceleration reads them: parameter row, destination (2,),
-# drone positions (P, 2), drone velocities (P, 2), use_grid, cell keys (N,), visit order (N,).
+# drone positions (P, 2), drone velocities (P, 2), use_grid, index work (2, N) int64 (sorted cell
+# keys, bird per slot), slot work (4, N) float64 (x, y, vx, vy per slot).
 ForceContext = tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, bool, np.ndarray, np.ndarray]
 # force(x, v, n, ctx, out): every bird's acceleration into out.
 Force = Callable[[np.ndarray, np.ndarray, int, ForceContext, np.ndarray], None]
 
-# Above this many birds the cell grid beats all pairs (measured by `flockward bench`).
-GRID_MIN_BIRDS = 350
+# From this many birds on the cell grid beats all pairs: measured with the vectorised kernel, the
+# murmuration flock (340 neighbours per bird) crosses near N = 405, the headon disc near 230; at
+# 400 neither choice loses more than 6 % (`flockward bench` re-checks it).
+GRID_MIN_BIRDS = 400
 NEIGHBOUR_SEARCH = ("auto", "all-pairs", "grid")
 
 # Model constants (modelling choices, see the module docstring).
@@ -98,9 +122,21 @@ DODGE_SPEED_SCALE = 2.0  # m/s: approach speed at which the dodge is half latera
 BUDGET_POWER = 4.0  # sharpness of the smooth budget allocation (only 4 is compiled: two sqrt)
 
 _TINY = 1e-12
-# Exact IEEE semantics except fused multiply-add and fast transcendental approximations: the same
-# compiled code runs for single and vector envs, so results stay bit-identical between them.
-_FAST = {"contract", "afn"}
+# LLVM fast-math flags of the force kernel. reassoc lets the pair sums be split over vector lanes
+# (the summation order changes, deterministically for a given flock); contract allows fused
+# multiply-add; nsz ignores the sign of zero; arcp turns divisions by a loop invariant into
+# multiplications. Left out on purpose: nnan and ninf (they would make a NaN or inf state
+# undefined behaviour instead of a NaN the environment's checks see) and afn (approximate libm
+# and sqrt). The same compiled code runs for single and vector envs and for any thread count, so
+# results stay bit-identical between them.
+_FAST = {"reassoc", "contract", "nsz", "arcp"}
+
+# Threads split a world's birds in blocks of this many (one block is one task).
+BIRD_BLOCK = 64
+# With fewer worlds than threads, a world's birds are split over the threads from this many birds.
+# Measured on 2 busy cores (one headon world, 2 threads against 1): slower at N = 150 to 1000
+# (x0.15 to x0.95), about even at 1500, x0.96 to x1.46 at 2000 over several runs.
+THREADED_MIN_BIRDS = 1500
 
 _C_CRUISE = K["cruise_speed"]
 _C_BURST = K["burst_speed"]
@@ -319,64 +355,78 @@ def _destination_request(
     return k_dst * cruise * (gx - gu * ux), k_dst * cruise * (gy - gu * uy)
 
 
-@compiled_inline
-def _candidate_range(
-    use_grid: bool, keys: np.ndarray, sorted_keys: np.ndarray, i: int, r: int, n: int
-) -> tuple[int, int]:
-    """The slice of the visit order holding bird ``i``'s candidate neighbours in column r - 1 of
-    its 3 x 3 cells (the grid), or every bird (all pairs)."""
-    if not use_grid:
-        return 0, n
-    kx = (keys[i] >> 32) + r - 1
-    ky = keys[i] & 0xFFFFFFFF
-    start = np.searchsorted(sorted_keys, (kx << 32) | (ky - 1), "left")
-    stop = np.searchsorted(sorted_keys, (kx << 32) | (ky + 1), "right")
-    return start, stop
-
-
 @compiled
-def _visit_order(
-    x: np.ndarray, n: int, cut: float, use_grid: bool, keys: np.ndarray, order: np.ndarray
-) -> tuple[np.ndarray, int]:
-    """Fill ``order`` with the birds in visiting order: by cell key on the grid (returning the
-    sorted keys and 3 column ranges per bird), else by index (no keys, one range: all birds)."""
+def _sort_into_slots(
+    x: np.ndarray,
+    v: np.ndarray,
+    n: int,
+    cut: float,
+    use_grid: bool,
+    index: np.ndarray,
+    soa: np.ndarray,
+) -> int:
+    """Copy the birds into visiting order as struct-of-arrays ``soa`` (4, N): x, y, vx, vy per
+    slot, with ``index`` (2, N) = sorted cell keys and the bird in each slot. On the grid the slots
+    go by cell key, so each column of a bird's 3 x 3 cells is one contiguous run of slots; with
+    all pairs by index, one run of all birds. Returns the number of runs per bird (3 or 1)."""
+    keys = index[0]
+    order = index[1]
     if use_grid:
         _cell_keys(x, n, cut, keys)
         order[:n] = np.argsort(keys[:n], kind="mergesort")
-        return keys[:n][order[:n]], 3
-    for i in range(n):
-        order[i] = i
-    return keys[:0], 1
+        keys[:n] = keys[:n][order[:n]]
+    else:
+        for i in range(n):
+            order[i] = i
+    for a in range(n):
+        i = order[a]
+        soa[0, a] = x[i, 0]
+        soa[1, a] = x[i, 1]
+        soa[2, a] = v[i, 0]
+        soa[3, a] = v[i, 1]
+    return 3 if use_grid else 1
+
+
+@compiled_inline
+def _slot_run(use_grid: bool, keys: np.ndarray, a: int, r: int, n: int) -> tuple[int, int]:
+    """The slots holding slot ``a``'s candidate neighbours in column r - 1 of its 3 x 3 cells (the
+    grid; ``keys`` sorted), or every slot (all pairs)."""
+    if not use_grid:
+        return 0, n
+    kx = (keys[a] >> 32) + r - 1
+    ky = keys[a] & 0xFFFFFFFF
+    start = np.searchsorted(keys[:n], (kx << 32) | (ky - 1), "left")
+    stop = np.searchsorted(keys[:n], (kx << 32) | (ky + 1), "right")
+    return start, stop
 
 
 @compiled_inline
 def _kth_nearest_sq(
-    x: np.ndarray,
-    i: int,
+    soa: np.ndarray,
+    a: int,
     k: int,
     limit2: float,
     use_grid: bool,
     keys: np.ndarray,
-    sorted_keys: np.ndarray,
-    order: np.ndarray,
-    n_ranges: int,
+    runs: int,
     n: int,
     nearest: np.ndarray,
 ) -> float:
-    """Squared distance from bird ``i`` to its k-th nearest flockmate, or ``limit2`` when fewer
-    than k lie closer than that. ``nearest`` (>= k) holds the k smallest, sorted by insertion."""
+    """Squared distance from the bird in slot ``a`` to its k-th nearest flockmate, or ``limit2``
+    when fewer than k lie closer than that. ``nearest`` (>= k) holds the k smallest, sorted by
+    insertion. (A scalar pass: the insertion does not vectorise, and it runs only for the
+    topological option.)"""
     for m in range(k):
         nearest[m] = limit2
-    xi = x[i, 0]
-    yi = x[i, 1]
-    for r in range(n_ranges):
-        start, stop = _candidate_range(use_grid, keys, sorted_keys, i, r, n)
+    xi = soa[0, a]
+    yi = soa[1, a]
+    for r in range(runs):
+        start, stop = _slot_run(use_grid, keys, a, r, n)
         for s in range(start, stop):
-            j = order[s]
-            if j == i:
+            if s == a:
                 continue
-            dx = x[j, 0] - xi
-            dy = x[j, 1] - yi
+            dx = soa[0, s] - xi
+            dy = soa[1, s] - yi
             d2 = dx * dx + dy * dy
             if d2 < nearest[k - 1]:
                 m = k - 1
@@ -396,54 +446,87 @@ def _topological_radius(dk2: float, limit2: float, reach: float, r_coh: float) -
     return min(reach * math.sqrt(dk2), r_coh)
 
 
-@compiled
-def neighbour_radii(x: np.ndarray, n: int, ctx: ForceContext, out: np.ndarray) -> None:
-    """Every bird's alignment and cohesion radius (N, 2) into ``out``, as ``flock_acceleration``
-    uses them: the metric radii, or with topological neighbours each bird's own R_i (twice)."""
-    prm, _, _, _, use_grid, keys, order = ctx
-    r_ali = prm[_C_RALI]
-    r_coh = prm[_C_RCOH]
-    k = int(prm[_C_TOPK])
-    reach = prm[_C_TOPC]
-    limit = r_coh / reach
-    cut = max(prm[_C_RSEP], r_ali, r_coh)
-    sorted_keys, n_ranges = _visit_order(x, n, cut, use_grid, keys, order)
-    nearest = np.empty(MAX_NEIGHBOURS)
-    for i in range(n):
-        if k == 0:
-            out[i, 0] = r_ali
-            out[i, 1] = r_coh
-            continue
-        dk2 = _kth_nearest_sq(
-            x, i, k, limit * limit, use_grid, keys, sorted_keys, order, n_ranges, n, nearest
-        )
-        out[i, 0] = out[i, 1] = _topological_radius(dk2, limit * limit, reach, r_coh)
+@compiled_inline
+def _ramp(z: float, h: float, inv_width: float) -> float:
+    """``bump(z, h)`` without branches (``inv_width`` = 1 / (1 - h)): t clipped to [0, 1] by
+    selects, so for z < h it is exactly 1 and for z >= 1 exactly 0, as ``bump``."""
+    t = (z - h) * inv_width
+    t = t if t > 0.0 else 0.0
+    t = t if t < 1.0 else 1.0
+    return 1.0 - t * t * (3.0 - 2.0 * t)
 
 
 @compiled_inline
-def _heading(vx: float, vy: float) -> tuple[float, float, float]:
-    """Speed and unit velocity; a bird at rest heads east (any fixed choice keeps it defined)."""
-    speed = math.sqrt(vx * vx + vy * vy)
-    if speed > _TINY:
-        return speed, vx / speed, vy / speed
-    return speed, 1.0, 0.0
+def _pair_sums(
+    px: np.ndarray,
+    py: np.ndarray,
+    pvx: np.ndarray,
+    pvy: np.ndarray,
+    xi: float,
+    yi: float,
+    vxi: float,
+    vyi: float,
+    r_sep: float,
+    k_sep: float,
+    d_floor: float,
+    inv_ra: float,
+    inv_rc: float,
+    plateau: float,
+    inv_width: float,
+    cucker_smale: bool,
+    inv_sig2: float,
+    beta: float,
+) -> tuple[float, float, float, float, float, float, float, float]:
+    """One bird's pair sums over a contiguous run of candidates (struct-of-arrays slices):
+    separation (sx, sy), alignment (alx, aly, aw) and cohesion (cx, cy, cw).
 
-
-@compiled_fastmath(_FAST)
-def flock_acceleration(
-    x: np.ndarray, v: np.ndarray, n: int, ctx: ForceContext, out: np.ndarray
-) -> None:
-    """Every bird's acceleration (N, 2) into ``out`` for positions ``x`` and velocities ``v``.
-
-    ``ctx`` = (params row, destination (2,), drone positions (P, 2), drone velocities (P, 2),
-    use_grid, cell keys (N,) int64, visit order (N,) int64): one world's surroundings.
+    Branch-free, so LLVM vectorises it: every candidate is summed, and the cut-offs do the
+    masking, since each weight is exactly 0 beyond its radius (``_ramp``). The bird itself may be
+    in the run: its offset and velocity difference are 0, so it adds only its weight 1 to aw and
+    cw, which is the 1 of the local normalisation 1 + sum_j w_ij (the caller does not add it).
+    Distances are floored before every division (d_floor, _TINY), so no inf or NaN arises from
+    finite positions.
     """
-    prm, destination, drones, drone_vel, use_grid, keys, order = ctx
+    inv_rsep = 1.0 / r_sep
+    sx = sy = alx = aly = aw = cx = cy = cw = 0.0
+    for s in range(px.shape[0]):
+        dx = px[s] - xi
+        dy = py[s] - yi
+        d2 = dx * dx + dy * dy
+        d = math.sqrt(d2)
+        dc = d if d > d_floor else d_floor
+        de = d if d > _TINY else _TINY
+        # k_sep (r_sep/dc - 1)^2 ramp / d with one division: (r_sep - dc)^2 / (dc^2 d).
+        q = r_sep - dc
+        f = k_sep * q * q * _ramp(d * inv_rsep, 0.0, 1.0) / (dc * dc * de)
+        sx -= f * dx
+        sy -= f * dy
+        w = _ramp(d * inv_ra, plateau, inv_width)
+        if cucker_smale:
+            w *= math.pow(1.0 + d2 * inv_sig2, -beta)
+        alx += w * (pvx[s] - vxi)
+        aly += w * (pvy[s] - vyi)
+        aw += w
+        w = _ramp(d * inv_rc, plateau, inv_width)
+        cx += w * dx
+        cy += w * dy
+        cw += w
+    return sx, sy, alx, aly, aw, cx, cy, cw
+
+
+@compiled_kernel(_FAST)
+def _flock_slots(
+    lo: int, hi: int, n: int, ctx: ForceContext, runs: int, nearest: np.ndarray, out: np.ndarray
+) -> None:
+    """The acceleration of the birds in slots [lo, hi) into ``out`` (by bird index); the slots
+    were filled by ``_sort_into_slots``. Compiled once and called by both the serial and the
+    threaded force (not inlined), so both run the same machine code: the same sums bit for bit."""
+    prm, destination, drones, drone_vel, use_grid, index, soa = ctx
+    keys = index[0]
+    order = index[1]
     r_sep = prm[_C_RSEP]
     r_ali = prm[_C_RALI]
     r_coh = prm[_C_RCOH]
-    cut = max(r_sep, r_ali, r_coh)
-    cut2 = cut * cut
     k_sep = prm[_C_KSEP]
     cucker_smale = prm[_C_AMODEL] == 1.0
     inv_sig2 = 1.0 / (prm[_C_SIG] * prm[_C_SIG])
@@ -466,61 +549,59 @@ def flock_acceleration(
     k_top = int(prm[_C_TOPK])
     reach = prm[_C_TOPC]
     limit2 = (r_coh / reach) * (r_coh / reach)
-    nearest = np.empty(MAX_NEIGHBOURS)
-    sorted_keys, n_ranges = _visit_order(x, n, cut, use_grid, keys, order)
-    for i in range(n):
-        xi = x[i, 0]
-        yi = x[i, 1]
-        vxi = v[i, 0]
-        vyi = v[i, 1]
+    for a in range(lo, hi):
+        i = order[a]
+        xi = soa[0, a]
+        yi = soa[1, a]
+        vxi = soa[2, a]
+        vyi = soa[3, a]
         r_a = r_ali
         r_c = r_coh
         plateau = BUMP_PLATEAU
         if k_top > 0:
-            # First pass: the k-th neighbour distance sets this bird's own radius for both terms.
-            dk2 = _kth_nearest_sq(
-                x, i, k_top, limit2, use_grid, keys, sorted_keys, order, n_ranges, n, nearest
-            )
-            r_a = r_c = _topological_radius(dk2, limit2, reach, r_coh)
+            # First pass: the k-th neighbour distance sets this bird's own radius for both terms
+            # (floored so that 1 / R stays finite for coincident birds).
+            dk2 = _kth_nearest_sq(soa, a, k_top, limit2, use_grid, keys, runs, n, nearest)
+            r_a = r_c = max(_topological_radius(dk2, limit2, reach, r_coh), _TINY)
             plateau = 1.0 / reach
+        inv_width = 1.0 / (1.0 - plateau)
         sx = sy = alx = aly = aw = cx = cy = cw = 0.0
-        for r in range(n_ranges):
-            start, stop = _candidate_range(use_grid, keys, sorted_keys, i, r, n)
-            for s in range(start, stop):
-                j = order[s]
-                if j == i:
-                    continue
-                dx = x[j, 0] - xi
-                dy = x[j, 1] - yi
-                d2 = dx * dx + dy * dy
-                if d2 >= cut2:
-                    continue
-                d = math.sqrt(d2)
-                if d < r_sep:
-                    q = r_sep / max(d, d_floor) - 1.0
-                    f = k_sep * q * q * bump(d / r_sep, 0.0) / max(d, _TINY)
-                    sx -= f * dx
-                    sy -= f * dy
-                if d < r_a:
-                    w = bump(d / r_a, plateau)
-                    if cucker_smale:
-                        w *= math.pow(1.0 + d2 * inv_sig2, -beta)
-                    alx += w * (v[j, 0] - vxi)
-                    aly += w * (v[j, 1] - vyi)
-                    aw += w
-                if d < r_c:
-                    w = bump(d / r_c, plateau)
-                    cx += w * dx
-                    cy += w * dy
-                    cw += w
+        for r in range(runs):
+            start, stop = _slot_run(use_grid, keys, a, r, n)
+            px = soa[0, start:stop]
+            py = soa[1, start:stop]
+            pvx = soa[2, start:stop]
+            pvy = soa[3, start:stop]
+            # Two call sites with a constant model flag: the Motsch-Tadmor loop has no pow call.
+            inv_ra = 1.0 / r_a
+            inv_rc = 1.0 / r_c
+            if cucker_smale:
+                sums = _pair_sums(
+                    px, py, pvx, pvy, xi, yi, vxi, vyi, r_sep, k_sep, d_floor,
+                    inv_ra, inv_rc, plateau, inv_width, True, inv_sig2, beta,
+                )  # fmt: skip
+            else:
+                sums = _pair_sums(
+                    px, py, pvx, pvy, xi, yi, vxi, vyi, r_sep, k_sep, d_floor,
+                    inv_ra, inv_rc, plateau, inv_width, False, inv_sig2, beta,
+                )  # fmt: skip
+            sx += sums[0]
+            sy += sums[1]
+            alx += sums[2]
+            aly += sums[3]
+            aw += sums[4]
+            cx += sums[5]
+            cy += sums[6]
+            cw += sums[7]
+        # aw and cw include the bird itself (weight 1): they are the 1 + sum_j w_ij of the model.
         if cucker_smale:
             scale = k_ali / n
         else:
-            scale = k_ali / (1.0 + aw)
+            scale = k_ali / aw
         alx *= scale
         aly *= scale
-        cx *= k_coh / (1.0 + cw)
-        cy *= k_coh / (1.0 + cw)
+        cx *= k_coh / cw
+        cy *= k_coh / cw
         speed, ux, uy = _heading(vxi, vyi)
         tx, ty = _destination_request(i, informed, destination, xi, yi, ux, uy, k_dst, cruise)
         fx, fy, ox, oy, fear = _fear_requests(
@@ -531,6 +612,68 @@ def flock_acceleration(
         preferred = cruise + (burst - cruise) * fear
         out[i, 0] = ax + k_v * (preferred - speed) * ux
         out[i, 1] = ay + k_v * (preferred - speed) * uy
+
+
+@compiled
+def neighbour_radii(x: np.ndarray, n: int, ctx: ForceContext, out: np.ndarray) -> None:
+    """Every bird's alignment and cohesion radius (N, 2) into ``out``, as ``flock_acceleration``
+    uses them: the metric radii, or with topological neighbours each bird's own R_i (twice)."""
+    prm, _, _, _, use_grid, index, soa = ctx
+    r_ali = prm[_C_RALI]
+    r_coh = prm[_C_RCOH]
+    k = int(prm[_C_TOPK])
+    reach = prm[_C_TOPC]
+    limit = r_coh / reach
+    cut = max(prm[_C_RSEP], r_ali, r_coh)
+    runs = _sort_into_slots(x, x, n, cut, use_grid, index, soa)
+    nearest = np.empty(MAX_NEIGHBOURS)
+    for a in range(n):
+        i = index[1, a]
+        if k == 0:
+            out[i, 0] = r_ali
+            out[i, 1] = r_coh
+            continue
+        dk2 = _kth_nearest_sq(soa, a, k, limit * limit, use_grid, index[0], runs, n, nearest)
+        out[i, 0] = out[i, 1] = _topological_radius(dk2, limit * limit, reach, r_coh)
+
+
+@compiled_inline
+def _heading(vx: float, vy: float) -> tuple[float, float, float]:
+    """Speed and unit velocity; a bird at rest heads east (any fixed choice keeps it defined)."""
+    speed = math.sqrt(vx * vx + vy * vy)
+    if speed > _TINY:
+        return speed, vx / speed, vy / speed
+    return speed, 1.0, 0.0
+
+
+@compiled_kernel(_FAST)
+def flock_acceleration(
+    x: np.ndarray, v: np.ndarray, n: int, ctx: ForceContext, out: np.ndarray
+) -> None:
+    """Every bird's acceleration (N, 2) into ``out`` for positions ``x`` and velocities ``v``.
+
+    ``ctx`` = (params row, destination (2,), drone positions (P, 2), drone velocities (P, 2),
+    use_grid, index work (2, N) int64, slot work (4, N) float64): one world's surroundings.
+    """
+    prm = ctx[0]
+    cut = max(prm[_C_RSEP], prm[_C_RALI], prm[_C_RCOH])
+    runs = _sort_into_slots(x, v, n, cut, ctx[4], ctx[5], ctx[6])
+    _flock_slots(0, n, n, ctx, runs, np.empty(MAX_NEIGHBOURS), out)
+
+
+@compiled_parallel(_FAST)
+def flock_acceleration_threaded(
+    x: np.ndarray, v: np.ndarray, n: int, ctx: ForceContext, out: np.ndarray
+) -> None:
+    """``flock_acceleration`` with the birds split over numba's threads in blocks of
+    ``BIRD_BLOCK``; each bird's sums are the same code in the same order, so the result is the
+    same bit for bit whatever the thread count."""
+    prm = ctx[0]
+    cut = max(prm[_C_RSEP], prm[_C_RALI], prm[_C_RCOH])
+    runs = _sort_into_slots(x, v, n, cut, ctx[4], ctx[5], ctx[6])
+    for block in numba.prange((n + BIRD_BLOCK - 1) // BIRD_BLOCK):
+        lo = block * BIRD_BLOCK
+        _flock_slots(lo, min(lo + BIRD_BLOCK, n), n, ctx, runs, np.empty(MAX_NEIGHBOURS), out)
 
 
 # One substep of the integrator for a given force function: x, v, a, v_pred, n, h, ctx.
@@ -662,6 +805,68 @@ def _noise_and_clamp(
 
 
 _flock_substep = verlet_heun_substep(flock_acceleration)
+_flock_substep_threaded = verlet_heun_substep(flock_acceleration_threaded)
+
+# One world's control step: b, then the arguments of _step_worlds from bird_pos on.
+WorldStep = Callable[..., None]
+
+
+@functools.cache
+def _world_stepper(force: Force, substep: Substep) -> WorldStep:
+    """One world's control step under ``force`` (``substep`` its integrator), compiled for it."""
+
+    @compiled_uncached
+    def step_world(
+        b: int,
+        bird_pos: np.ndarray,
+        bird_vel: np.ndarray,
+        pursuer_pos: np.ndarray,
+        pursuer_vel: np.ndarray,
+        count: np.ndarray,
+        destination: np.ndarray,
+        params: np.ndarray,
+        pursuer_limits: np.ndarray,
+        action: np.ndarray,
+        noise: np.ndarray,
+        noise_row: np.ndarray,
+        dt: float,
+        substeps: int,
+        use_grid: bool,
+        vec_work: np.ndarray,
+        slot_work: np.ndarray,
+        index_work: np.ndarray,
+        clamps: np.ndarray,
+    ) -> None:
+        has_noise = noise.shape[1] > 0
+        h = dt / substeps
+        sqrt_h = math.sqrt(h)
+        n = count[b]
+        pos = bird_pos[b]
+        vel = bird_vel[b]
+        accel = vec_work[b, 0]
+        v_pred = vec_work[b, 1]
+        ctx = (
+            params[b],
+            destination[b],
+            pursuer_pos[b],
+            pursuer_vel[b],
+            use_grid,
+            index_work[b],
+            slot_work[b],
+        )
+        force(pos, vel, n, ctx, accel)
+        for k in range(substeps):
+            # The drones move first: the birds' force evaluation sees them at the substep's end.
+            _drone_substep(pursuer_pos[b], pursuer_vel[b], action[b], pursuer_limits[b], h)
+            substep(pos, vel, accel, v_pred, n, h, ctx)
+            row = noise_row[b] + k
+            clamps[b] += _noise_and_clamp(vel, n, params[b], noise[b], row, sqrt_h, has_noise)
+
+    return step_world
+
+
+_step_world = _world_stepper(flock_acceleration, _flock_substep)
+_step_world_threaded = _world_stepper(flock_acceleration_threaded, _flock_substep_threaded)
 
 
 @compiled
@@ -681,38 +886,99 @@ def _step_worlds(
     substeps: int,
     use_grid: bool,
     live: np.ndarray,
-    accel: np.ndarray,
-    v_pred: np.ndarray,
+    vec_work: np.ndarray,
+    slot_work: np.ndarray,
     index_work: np.ndarray,
     clamps: np.ndarray,
 ) -> None:
-    """The compiled body of ``step_worlds``."""
-    n_worlds = bird_pos.shape[0]
-    has_noise = noise.shape[1] > 0
-    h = dt / substeps
-    sqrt_h = math.sqrt(h)
-    for b in range(n_worlds):
-        if not live[b]:
-            continue
-        n = count[b]
-        pos = bird_pos[b]
-        vel = bird_vel[b]
-        ctx = (
-            params[b],
-            destination[b],
-            pursuer_pos[b],
-            pursuer_vel[b],
-            use_grid,
-            index_work[0],
-            index_work[1],
-        )
-        flock_acceleration(pos, vel, n, ctx, accel)
-        for k in range(substeps):
-            # The drones move first: the birds' force evaluation sees them at the substep's end.
-            _drone_substep(pursuer_pos[b], pursuer_vel[b], action[b], pursuer_limits[b], h)
-            _flock_substep(pos, vel, accel, v_pred, n, h, ctx)
-            row = noise_row[b] + k
-            clamps[b] += _noise_and_clamp(vel, n, params[b], noise[b], row, sqrt_h, has_noise)
+    """The compiled body of ``step_worlds`` on one thread."""
+    for b in range(bird_pos.shape[0]):
+        if live[b]:
+            _step_world(b, bird_pos, bird_vel, pursuer_pos, pursuer_vel, count, destination,
+                        params, pursuer_limits, action, noise, noise_row, dt, substeps, use_grid,
+                        vec_work, slot_work, index_work, clamps)  # fmt: skip
+
+
+@compiled_parallel(set())
+def _step_worlds_by_world(
+    bird_pos: np.ndarray,
+    bird_vel: np.ndarray,
+    pursuer_pos: np.ndarray,
+    pursuer_vel: np.ndarray,
+    count: np.ndarray,
+    destination: np.ndarray,
+    params: np.ndarray,
+    pursuer_limits: np.ndarray,
+    action: np.ndarray,
+    noise: np.ndarray,
+    noise_row: np.ndarray,
+    dt: float,
+    substeps: int,
+    use_grid: bool,
+    live: np.ndarray,
+    vec_work: np.ndarray,
+    slot_work: np.ndarray,
+    index_work: np.ndarray,
+    clamps: np.ndarray,
+) -> None:
+    """The compiled body of ``step_worlds`` with the worlds split over numba's threads; each
+    world has its own work space, so the worlds are independent and the result is the serial
+    one bit for bit."""
+    for b in numba.prange(bird_pos.shape[0]):
+        if live[b]:
+            _step_world(b, bird_pos, bird_vel, pursuer_pos, pursuer_vel, count, destination,
+                        params, pursuer_limits, action, noise, noise_row, dt, substeps, use_grid,
+                        vec_work, slot_work, index_work, clamps)  # fmt: skip
+
+
+@compiled
+def _step_worlds_by_bird(
+    bird_pos: np.ndarray,
+    bird_vel: np.ndarray,
+    pursuer_pos: np.ndarray,
+    pursuer_vel: np.ndarray,
+    count: np.ndarray,
+    destination: np.ndarray,
+    params: np.ndarray,
+    pursuer_limits: np.ndarray,
+    action: np.ndarray,
+    noise: np.ndarray,
+    noise_row: np.ndarray,
+    dt: float,
+    substeps: int,
+    use_grid: bool,
+    live: np.ndarray,
+    vec_work: np.ndarray,
+    slot_work: np.ndarray,
+    index_work: np.ndarray,
+    clamps: np.ndarray,
+) -> None:
+    """The compiled body of ``step_worlds`` with each world's birds split over numba's threads
+    (for few large worlds)."""
+    for b in range(bird_pos.shape[0]):
+        if live[b]:
+            _step_world_threaded(b, bird_pos, bird_vel, pursuer_pos, pursuer_vel, count,
+                                 destination, params, pursuer_limits, action, noise, noise_row,
+                                 dt, substeps, use_grid, vec_work, slot_work, index_work,
+                                 clamps)  # fmt: skip
+
+
+class StepWork:
+    """Work space of ``step_worlds`` for B worlds of up to N birds, one set per world so that
+    worlds can run on different threads."""
+
+    def __init__(self, worlds: int, birds: int):
+        m = max(birds, 1)
+        self.vectors = np.zeros((worlds, 2, m, 2))  # accelerations, predicted velocities
+        self.slots = np.zeros((worlds, 4, m))  # x, y, vx, vy in visiting order
+        self.index = np.zeros((worlds, 2, m), dtype=np.int64)  # cell keys, bird per slot
+
+
+def max_threads() -> int:
+    """The most threads numba may use: NUMBA_NUM_THREADS (default: the machine's cores)."""
+    from numba.core import config
+
+    return int(config.NUMBA_NUM_THREADS)  # type: ignore[attr-defined]
 
 
 def step_worlds(
@@ -731,13 +997,26 @@ def step_worlds(
     substeps: int,  # physics substeps per control step
     use_grid: bool,  # cell grid instead of all pairs
     live: np.ndarray,  # (B,) bool: worlds to advance; the others are left untouched
-    accel: np.ndarray,  # (N, 2) float64 work space: accelerations
-    v_pred: np.ndarray,  # (N, 2) float64 work space: predicted velocities
-    index_work: np.ndarray,  # (2, N) int64 work space: cell keys, visit order
+    work: StepWork,  # work space for B worlds of N birds
     clamps: np.ndarray,  # (B,) int64: airspeed safety-net activations, incremented
+    threads: int = 1,  # worker threads (1: serial); the result does not depend on it
 ) -> None:
-    """Advance every live world by one control step, in place."""
-    _step_worlds(
+    """Advance every live world by one control step, in place.
+
+    With ``threads`` > 1 the worlds are split over numba's threads, or, when there are fewer
+    worlds than threads and at least ``THREADED_MIN_BIRDS`` birds, each world's birds are.
+    """
+    body = _step_worlds
+    if threads > 1:
+        if bird_pos.shape[0] >= threads:
+            body = _step_worlds_by_world
+        elif bird_pos.shape[1] >= THREADED_MIN_BIRDS:
+            body = _step_worlds_by_bird
+        elif bird_pos.shape[0] > 1:
+            body = _step_worlds_by_world
+        if body is not _step_worlds:
+            numba.set_num_threads(min(threads, max_threads()))
+    body(
         bird_pos,
         bird_vel,
         pursuer_pos,
@@ -753,9 +1032,9 @@ def step_worlds(
         substeps,
         use_grid,
         live,
-        accel,
-        v_pred,
-        index_work,
+        work.vectors,
+        work.slots,
+        work.index,
         clamps,
     )
 
@@ -769,16 +1048,15 @@ def flock_context(
     use_grid: bool = False,
 ) -> ForceContext:
     """The ``ctx`` tuple ``flock_acceleration`` reads for one world, with fresh work space."""
-    keys = np.zeros(max(birds, 1), dtype=np.int64)
-    order = np.zeros(max(birds, 1), dtype=np.int64)
+    m = max(birds, 1)
     return (
         np.ascontiguousarray(params, dtype=np.float64),
         np.ascontiguousarray(destination, dtype=np.float64),
         np.ascontiguousarray(drones, dtype=np.float64).reshape(-1, 2),
         np.ascontiguousarray(drone_vel, dtype=np.float64).reshape(-1, 2),
         bool(use_grid),
-        keys,
-        order,
+        np.zeros((2, m), dtype=np.int64),
+        np.zeros((4, m)),
     )
 
 

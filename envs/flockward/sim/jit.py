@@ -4,14 +4,33 @@
 whose type numba's own stubs give only in recent releases. Every compiled function of the core
 uses the same options: nopython mode and an on-disk cache (in ``__pycache__``), so a fresh process
 loads the machine code instead of compiling it again.
+
+The force kernel (``compiled_kernel``) adds numba's ``error_model="numpy"``: with the default
+"python" model every division carries a ZeroDivisionError exit, and LLVM does not vectorise a
+loop with an early exit. Its fast-math flags are listed, with the reasons, beside ``_FAST`` in
+``flockward.sim.dynamics``: reassociation, contraction, no signed zeros, reciprocals; never
+nnan/ninf (no assumption that values are finite) or afn.
+
+Parallel code (``compiled_parallel``) runs on numba's workqueue threading layer unless
+NUMBA_THREADING_LAYER names another: measured on 2 cores with another process busy, numba's
+OpenMP layer ran 2 threads 2.7 to 3 times slower than one (its threads spin while waiting), the
+workqueue layer no slower than one thread.
 """
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable
 from typing import ParamSpec, TypeVar, cast
 
 import numba
+import numpy as np
+
+# numba's threading layer for parallel code, unless NUMBA_THREADING_LAYER says otherwise: chosen
+# by measurement with another process holding a core (see `flockward bench` and the speed notes).
+THREADING_LAYER = "workqueue"
+if "NUMBA_THREADING_LAYER" not in os.environ:
+    numba.config.THREADING_LAYER = THREADING_LAYER  # type: ignore[attr-defined]
 
 P = ParamSpec("P")
 R = TypeVar("R")
@@ -31,6 +50,29 @@ def compiled_fastmath(flags: set[str]) -> Callable[[Callable[P, R]], Callable[P,
     return decorate
 
 
+def compiled_kernel(flags: set[str]) -> Callable[[Callable[P, R]], Callable[P, R]]:
+    """Like ``compiled_fastmath``, with numba's ``error_model="numpy"``: a division by zero gives
+    inf or NaN instead of raising, so no exception exit sits in a loop and LLVM can vectorise it."""
+
+    def decorate(fn: Callable[P, R]) -> Callable[P, R]:
+        return cast(
+            "Callable[P, R]", numba.njit(cache=True, fastmath=flags, error_model="numpy")(fn)
+        )
+
+    return decorate
+
+
+def compiled_parallel(flags: set[str]) -> Callable[[Callable[P, R]], Callable[P, R]]:
+    """Like ``compiled_kernel``, with numba's ``parallel=True``: its ``prange`` loops run on
+    numba's worker threads (``numba.set_num_threads`` sets how many)."""
+
+    def decorate(fn: Callable[P, R]) -> Callable[P, R]:
+        jit = numba.njit(cache=True, parallel=True, fastmath=flags, error_model="numpy")
+        return cast("Callable[P, R]", jit(fn))
+
+    return decorate
+
+
 def compiled_inline(fn: Callable[P, R]) -> Callable[P, R]:
     """Like ``compiled``, inlined into its callers by numba (a small helper of a hot loop)."""
     return cast("Callable[P, R]", numba.njit(cache=True, inline="always")(fn))
@@ -40,3 +82,14 @@ def compiled_uncached(fn: Callable[P, R]) -> Callable[P, R]:
     """Like ``compiled`` without the on-disk cache: for functions that take another compiled
     function as an argument, which numba's cache cannot tell apart."""
     return cast("Callable[P, R]", numba.njit(fn))
+
+
+@numba.njit(parallel=True)
+def _touch_threads(out: np.ndarray) -> None:
+    for k in numba.prange(out.shape[0]):
+        out[k] = k
+
+
+def start_threads() -> None:
+    """Start numba's thread pool (a tiny parallel loop), so its threading layer can be read."""
+    _touch_threads(np.zeros(4))

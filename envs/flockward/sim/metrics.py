@@ -26,10 +26,14 @@ from flockward.sim.geometry import (
 )
 from flockward.sim.jit import compiled
 
-GRID_MIN_BIRDS = 2500  # the search over unreached birds beats the grid below this (flockward bench)
+# The search over unreached birds beats the union-find grid below this: measured crossovers near
+# N = 410 (murmuration) and 335 (headon disc); `flockward bench` re-checks it.
+GRID_MIN_BIRDS = 400
 _AUTO, _PAIRS, _GRID = 0, 1, 2  # neighbour-search method codes for the kernels
 _METHODS = {"auto": _AUTO, "pairs": _PAIRS, "grid": _GRID}
-_MAX_CELLS_PER_AXIS = 1 << 30  # beyond this the cell keys could overflow; use all pairs instead
+# Beyond this many cells from the origin a bird's cell could be off by rounding by more than the
+# grid's safety margin (1e-9 of a cell); the search over unreached birds is used instead.
+_MAX_CELLS_EXACT = 1e6
 
 
 class StepMetrics(NamedTuple):
@@ -86,60 +90,87 @@ def _check_point_sets(points: np.ndarray, worlds: int) -> np.ndarray:
 
 
 @compiled
+def _root(parent: np.ndarray, k: int) -> int:
+    """Union-find: the root of k's set, halving the path on the way."""
+    while parent[k] != k:
+        parent[k] = parent[parent[k]]
+        k = parent[k]
+    return k
+
+
+@compiled
+def _cells_touch(p: np.ndarray, order: np.ndarray, a0: int, a1: int, b0: int, b1: int,
+                 r2: float) -> bool:  # fmt: skip
+    """Whether any bird of slots [a0, a1) lies closer than sqrt(r2) to any of slots [b0, b1)."""
+    for s in range(a0, a1):
+        i = order[s]
+        for t in range(b0, b1):
+            j = order[t]
+            dx = p[i, 0] - p[j, 0]
+            dy = p[i, 1] - p[j, 1]
+            if dx * dx + dy * dy < r2:
+                return True
+    return False
+
+
+@compiled
 def _search_components_grid(p: np.ndarray, n: int, radius: float, labels: np.ndarray) -> int:
-    """Breadth-first search like _search_components, but each bird only looks at the unreached
-    birds of the 3 x 3 square cells (a little wider than radius) around it: O(N) for a flock of
-    fixed density. Returns -1 (doing nothing) if the cell keys would overflow."""
+    """Label components by union-find over square cells of side radius / sqrt(2) (a hair less):
+    two birds in one cell are closer than radius, so each cell is linked inside without a test,
+    and two cells are linked by the first close pair found between them, among the 5 x 5 cells
+    around each (the cells farther apart are more than radius apart). O(N log N) whatever the
+    density. labels[:n] gets each bird's root cell; returns the number of components, or -1
+    (doing nothing) if the cells would be too many to index exactly."""
     x0, y0 = np.inf, np.inf
     x1, y1 = -np.inf, -np.inf
     for i in range(n):
         x0, x1 = min(x0, p[i, 0]), max(x1, p[i, 0])
         y0, y1 = min(y0, p[i, 1]), max(y1, p[i, 1])
-    inv_cell = 1.0 / (radius * (1.0 + 1e-9))
-    span = max(x1 - x0, y1 - y0) * inv_cell
-    if not span < _MAX_CELLS_PER_AXIS:
+    side = radius / math.sqrt(2.0) * (1.0 - 1e-9)
+    inv_cell = 1.0 / side
+    extent = max(abs(x0), abs(x1), abs(y0), abs(y1), x1 - x0, y1 - y0) * inv_cell
+    if not extent < _MAX_CELLS_EXACT:
         return -1
-    rows = int((y1 - y0) * inv_cell) + 3  # row index is stored +1 so row +-1 never wraps a column
-    cx = np.empty(n, dtype=np.int64)
-    cy = np.empty(n, dtype=np.int64)
+    rows = int((y1 - y0) * inv_cell) + 5  # row index is stored +2 so row +-2 never wraps a column
     key = np.empty(n, dtype=np.int64)
     for i in range(n):
-        cx[i] = int((p[i, 0] - x0) * inv_cell)
-        cy[i] = int((p[i, 1] - y0) * inv_cell) + 1
-        key[i] = cx[i] * rows + cy[i]
+        key[i] = int((p[i, 0] - x0) * inv_cell) * rows + int((p[i, 1] - y0) * inv_cell) + 2
     order = np.argsort(key, kind="mergesort")
-    sorted_key = key[order]
+    # The occupied cells: cell_key sorted, slots [cell_start[c], cell_start[c + 1]) of order.
+    cell_key = np.empty(n, dtype=np.int64)
+    cell_start = np.empty(n + 1, dtype=np.int64)
+    cells = 0
+    for s in range(n):
+        k = key[order[s]]
+        if cells == 0 or cell_key[cells - 1] != k:
+            cell_key[cells] = k
+            cell_start[cells] = s
+            cells += 1
+    cell_start[cells] = n
+    occupied = cell_key[:cells]
+    parent = np.arange(cells)
     r2 = radius * radius
-    reached = np.zeros(n, dtype=np.bool_)
-    queue = np.empty(n, dtype=np.int64)
-    k = 0
-    for start in range(n):
-        if reached[start]:
-            continue
-        reached[start] = True
-        labels[start] = k
-        queue[0] = start
-        head, tail = 0, 1
-        while head < tail:
-            a = queue[head]
-            head += 1
-            for dcol in range(-1, 2):
-                column = (cx[a] + dcol) * rows
-                lo = np.searchsorted(sorted_key, column + cy[a] - 1, side="left")
-                hi = np.searchsorted(sorted_key, column + cy[a] + 1, side="right")
-                for t in range(lo, hi):
-                    b = order[t]
-                    if reached[b]:
-                        continue
-                    dx = p[a, 0] - p[b, 0]
-                    dy = p[a, 1] - p[b, 1]
-                    if dx * dx + dy * dy < r2:
-                        reached[b] = True
-                        labels[b] = k
-                        queue[tail] = b
-                        tail += 1
-        k += 1
-    return k
+    components = cells
+    for c in range(cells):
+        # The forward half of the 5 x 5 neighbourhood, so each pair of cells is looked at once:
+        # column +0 rows +1..+2, columns +1 and +2 rows -2..+2.
+        for dcol in range(3):
+            lo = cell_key[c] + dcol * rows + (1 if dcol == 0 else -2)
+            hi = cell_key[c] + dcol * rows + 2
+            m = np.searchsorted(occupied, lo)
+            while m < cells and cell_key[m] <= hi:
+                a = _root(parent, c)
+                b = _root(parent, m)
+                if a != b and _cells_touch(p, order, cell_start[c], cell_start[c + 1],
+                                           cell_start[m], cell_start[m + 1], r2):  # fmt: skip
+                    parent[max(a, b)] = min(a, b)
+                    components -= 1
+                m += 1
+    for c in range(cells):
+        root = _root(parent, c)
+        for s in range(cell_start[c], cell_start[c + 1]):
+            labels[order[s]] = root
+    return components
 
 
 @compiled
@@ -422,8 +453,9 @@ def components(
     """Connected components of the graph linking birds closer than radius (strictly), per world.
 
     Returns labels (B, N) int64 (-1 for padding), n_components (B,) int64 and largest_fraction
-    (B,). "auto" searches over unreached birds below GRID_MIN_BIRDS active birds and links
-    through a cell grid from there on; both give the same partition.
+    (B,). "auto" searches over unreached birds below GRID_MIN_BIRDS active birds (O(N) for one
+    compact flock, O(N^2) for a scattered one) and joins cells of a grid by union-find from
+    there on (O(N log N) whatever the layout); both give the same partition.
     """
     if method not in _METHODS:
         raise ValueError(f"method must be one of {sorted(_METHODS)}, got {method!r}")

@@ -8,13 +8,30 @@ seed only: B worlds stepped together equal B worlds stepped alone, bit for bit.
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 
-from flockward.sim.dynamics import choose_grid, step_worlds
+from flockward.sim.dynamics import StepWork, choose_grid, step_worlds
 from flockward.sim.resets import sample_reset
 from flockward.sim.types import FlockParams, Scenario, WorldState
 
 NOISE_BLOCK = 64  # steps of noise drawn per generator call: amortises the per-world draw
+THREADS_VARIABLE = "FLOCKWARD_THREADS"  # environment variable: default worker threads
+
+
+def default_threads() -> int:
+    """Worker threads when none are asked for: FLOCKWARD_THREADS if set, else 1 (serial)."""
+    text = os.environ.get(THREADS_VARIABLE, "").strip()
+    if not text:
+        return 1
+    try:
+        threads = int(text)
+    except ValueError:
+        threads = 0
+    if threads < 1:
+        raise ValueError(f"{THREADS_VARIABLE} = {text!r}: must be a whole number >= 1")
+    return threads
 
 
 class World:
@@ -24,6 +41,9 @@ class World:
     Scenarios describe one drone, which is the default; the environments build one-drone worlds.
     With ``drones = 0`` the world has no drone and the birds know no fear (the unherded control).
     ``clamps`` counts, per world since its reset, how often the airspeed safety net acted.
+    ``threads`` > 1 steps the worlds (or one large world's birds) on that many numba threads, at
+    most NUMBA_NUM_THREADS; None reads FLOCKWARD_THREADS, default 1. The results do not depend on
+    it, bit for bit.
     """
 
     def __init__(
@@ -32,11 +52,15 @@ class World:
         worlds: int = 1,
         neighbour_search: str = "auto",
         drones: int = 1,
+        threads: int | None = None,
     ):
         if worlds < 1:
             raise ValueError(f"worlds = {worlds}: must be at least 1")
         if drones < 0:
             raise ValueError(f"drones = {drones}: must be at least 0")
+        self.threads = default_threads() if threads is None else threads
+        if self.threads < 1:
+            raise ValueError(f"threads = {self.threads}: must be at least 1")
         self.scenario = scenario
         self.n_worlds = worlds
         self.n_drones = drones
@@ -65,9 +89,7 @@ class World:
         )
         self._noise = np.zeros(shape)
         self._noise_row = np.zeros(worlds, dtype=np.int64)
-        self._accel = np.zeros((max(self.max_birds, 1), 2))
-        self._v_pred = np.zeros((max(self.max_birds, 1), 2))
-        self._index_work = np.zeros((2, max(self.max_birds, 1)), dtype=np.int64)
+        self._work = StepWork(worlds, self.max_birds)
 
     def reset(self, index: int, rng: np.random.Generator | None = None) -> None:
         """Start world ``index`` afresh, from ``rng`` if given, else from its own generator.
@@ -126,10 +148,9 @@ class World:
             self.substeps,
             self.use_grid,
             live,
-            self._accel,
-            self._v_pred,
-            self._index_work,
+            self._work,
             self.clamps,
+            self.threads,
         )
         if self.has_noise:
             self._noise_row += live * self.substeps
