@@ -52,7 +52,7 @@ def test_comparison_statistics_against_scipy() -> None:
     b_fast = [episode_score(e) for e in sorted(b["episodes"], key=lambda e: e["seed"])
               if e["family"] == "fast"]  # fmt: skip
     assert fast.difference == pytest.approx(np.mean(np.subtract(a_fast, b_fast)))
-    assert fast.difference == pytest.approx(0.2 * 30 / 150)
+    assert fast.difference == pytest.approx(0.35 * 0.5 * 30 / 150)
     # Wilcoxon on times where both succeed: all 12 differences are -30 s (ties), as scipy does.
     ref = scipy.stats.wilcoxon(np.full(12, -30.0))
     assert (fast.wilcoxon.n, fast.wilcoxon.p_value) == (12, pytest.approx(ref.pvalue))

@@ -116,20 +116,20 @@ def _write(folder: Path, name: str, data: dict) -> Path:
 
 
 def test_episode_score_known_cases() -> None:
-    # Hand-worked from the weights 0.50 / 0.20 / 0.15 / 0.10 / 0.05 (regression of the definition).
+    # Hand-worked from the weights 0.40 / 0.35 / 0.10 / 0.10 / 0.05 (regression of the definition).
     # Success at 30 s of 150 s, 120 m clear (capped), no contact, whole flock:
-    # 0.5 + 0.2 * 0.8 + 0.15 + 0.1 + 0.05.
-    assert episode_score(_ep("f", "success", t=30.0)) == pytest.approx(0.96)
+    # 0.4 + 0.35 * (1 - 0.5 * 0.2) + 0.1 + 0.1 + 0.05.
+    assert episode_score(_ep("f", "success", t=30.0)) == pytest.approx(0.965)
     assert episode_score(_ep("f", "error")) == 0.0
     # Breach, largest group held half the birds: only contact and cohesion terms remain.
     assert episode_score(_ep("f", "breach", breached=5, mlf=0.5)) == pytest.approx(0.125)
-    # Timeout, flock 40 m from the zone, 3 contact steps, whole flock: 0.5 + 0.15 * 0.4 + 0.05.
-    assert episode_score(_ep("f", "timeout", clearance=40.0, collisions=3)) == pytest.approx(0.61)
+    # Timeout, flock 40 m from the zone, 3 contact steps, whole flock: 0.4 + 0.1 * 0.4 + 0.05.
+    assert episode_score(_ep("f", "timeout", clearance=40.0, collisions=3)) == pytest.approx(0.49)
     # A single breaching bird forfeits the breach and clearance terms.
     assert episode_score(_ep("f", "timeout", birds=50, breached=1)) == pytest.approx(0.15)
     terms = lb.score_terms(_ep("f", "success", t=75.0, clearance=50.0, mlf=0.6))
     assert terms == pytest.approx(
-        {"breach_free": 1.0, "success_speed": 0.5, "clearance": 0.5, "contact_free": 1.0,
+        {"breach_free": 1.0, "success_speed": 0.75, "clearance": 0.5, "contact_free": 1.0,
          "cohesion": 0.6}
     )  # fmt: skip
 
@@ -177,8 +177,8 @@ def test_breach_ordering_extreme_hand_built_records() -> None:
     # flock shattered to one bird in 500).
     best_breach = _ep("f", "success", birds=500, breached=1, t=0.0, clearance=-0.01)
     worst_kept = _ep("f", "timeout", birds=500, mlf=1 / 500, collisions=999, clearance=0.0)
-    assert episode_score(best_breach) == pytest.approx(0.35)
-    assert episode_score(worst_kept) == pytest.approx(0.5 + 0.05 / 500)
+    assert episode_score(best_breach) == pytest.approx(0.15)
+    assert episode_score(worst_kept) == pytest.approx(0.4 + 0.05 / 500)
     assert episode_score(best_breach) < episode_score(worst_kept)
 
 
@@ -189,7 +189,7 @@ def test_faster_success_scores_higher_and_saturation_breaks() -> None:
     slow = [_ep("f", "success", t=60.0 + i % 5, seed=i) for i in range(40)]
     rows = build_rows([_result("fast", "state", fast), _result("slow", "state", slow)], reps=200)
     assert [r["controller"] for r in rows] == ["fast", "slow"]
-    assert rows[0]["score_iqm"] - rows[1]["score_iqm"] == pytest.approx(0.2 * 20 / 150)
+    assert rows[0]["score_iqm"] - rows[1]["score_iqm"] == pytest.approx(0.35 * 0.5 * 20 / 150)
     assert rows[0]["score_ci_high"] > rows[0]["score_ci_low"]
 
 

@@ -5,30 +5,31 @@ Episode score
 -------------
 Every episode gets one score in [0, 1], a weighted sum of five terms, each in [0, 1]::
 
-    score = 0.50 * breach_free        no bird entered the protected zone
-          + 0.20 * success * (1 - t / T)   the flock reached the goal, sooner is better
-          + 0.15 * clearance          min(1, max(0, d_min / 100 m)), 0 after a breach
-          + 0.10 * contact_free       no step with the drone inside its safety radius of a bird
-          + 0.05 * cohesion           lowest share of the flock in its largest group
+    score = 0.40 * breach_free                  no bird entered the protected zone
+          + 0.35 * success * (1 - t / (2 T))   the flock reached the goal, sooner is better
+          + 0.10 * clearance                    min(1, max(0, d_min / 100 m))
+          + 0.10 * contact_free                 no step with the drone within its safety radius
+          + 0.05 * cohesion                     lowest share of the flock in its largest group
 
 ``t`` is the time to success and ``T`` the episode's time limit (both s, in the record);
 ``d_min`` is the record's ``min_zone_clearance``: the smallest signed distance of any bird to the
-protected zone over the episode (m). An episode that ended in an error scores 0.
+protected zone over the episode (m). After a breach the success and clearance terms are 0. An
+episode that ended in an error scores 0.
 
 Why these terms and weights. A bird in the protected zone is the hazard the whole task exists to
-prevent, so ``breach_free`` carries half the weight: a breached episode has no clearance and can
-collect at most 0.20 + 0.10 + 0.05 = 0.35, below the 0.50 that every breach-free episode starts
-from, so any breach ranks below any breach-free episode. Turning the flock is the job, and doing
-it sooner leaves less time for something to go wrong, so success is weighted by the share of the
-time limit left (a success in the last step is worth almost nothing more than holding the flock
-off until the end). How close the flock came measures risk that a yes/no breach hides; 100 m is
-about 7 s of a gull's cruise (15 m/s), the time a drone has to correct a turn that goes wrong,
-and a flock kept further away earns no more. Drone-bird contact risks both, but is rarer than
-breaches and partly self-inflicted by aggressive pursuit, so it weighs 0.10; fragmentation
-harms the flock and leaves several groups to herd, but its cost already shows in time and
-clearance, so it weighs least. Unlike a score of success and breach counts alone, every term but
-the breach is continuous, so controllers that both succeed still differ by how fast and how
-safely.
+prevent, so ``breach_free`` carries the largest weight and a breach forfeits success and
+clearance too: a breached episode can collect at most 0.10 + 0.05 = 0.15, below the 0.40 that
+every breach-free episode starts from, so any breach ranks below any breach-free episode.
+Turning the flock is the job, so success carries the next largest weight; a success is worth at
+least half of it however late it comes (a turned flock beats one merely held off until the time
+limit), and the other half rewards speed, since a flock turned sooner leaves less time for
+something to go wrong. How close the flock came measures risk that a yes/no breach hides; 100 m
+is about 7 s of a gull's cruise (15 m/s), the time a drone has to correct a turn that goes
+wrong, and a flock kept further away earns no more. Drone-bird contact risks both and is partly
+self-inflicted by aggressive pursuit, so it weighs as much as clearance; fragmentation harms the
+flock and leaves several groups to herd, but its cost already shows in time and clearance, so it
+weighs least. Unlike a score of success and breach counts alone, every term but the breach is
+continuous, so controllers that both succeed still differ by how fast and how safely.
 
 Aggregate and interval
 ----------------------
@@ -100,9 +101,9 @@ FORMATS = ("markdown", "csv", "json")
 
 # Weights of the score's terms (see the module docstring); they sum to 1.
 WEIGHTS = {
-    "breach_free": 0.50,
-    "success_speed": 0.20,
-    "clearance": 0.15,
+    "breach_free": 0.40,
+    "success_speed": 0.35,
+    "clearance": 0.10,
     "contact_free": 0.10,
     "cohesion": 0.05,
 }
@@ -127,8 +128,8 @@ def score_terms(ep: Mapping[str, Any]) -> dict[str, float]:
     """The score's terms of one non-error episode record, each in [0, 1] (keys of ``WEIGHTS``)."""
     kept = ep["breached_birds"] == 0
     speed = 0.0
-    if ep["success"]:
-        speed = _unit(1.0 - float(ep["time_to_success"]) / float(ep["time_limit"]))
+    if ep["success"] and kept:
+        speed = _unit(1.0 - 0.5 * float(ep["time_to_success"]) / float(ep["time_limit"]))
     return {
         "breach_free": float(kept),
         "success_speed": speed,
@@ -394,8 +395,8 @@ def _params(changed: Mapping[str, Any]) -> str:
 
 
 SCORE_NOTE = (
-    "Score per episode = 0.50 breach-free + 0.20 success x (1 - t/T) + 0.15 zone clearance "
-    f"(min(1, d/{CLEARANCE_SCALE:g} m), 0 after a breach) + 0.10 no drone-bird contact + 0.05 "
+    "Score per episode = 0.40 breach-free + 0.35 success x (1 - t/2T) + 0.10 zone clearance "
+    f"(min(1, d/{CLEARANCE_SCALE:g} m); both 0 after a breach) + 0.10 no drone-bird contact + 0.05 "
     "lowest largest-group share; an error scores 0. IQM of all episodes with a 95 % stratified "
     "bootstrap CI (episodes resampled within each scenario family)."
 )
