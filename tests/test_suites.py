@@ -67,12 +67,20 @@ def test_standard_suite_covers_the_benchmark() -> None:
     counts = [e.scenario.flock.count for e in suite.entries]
     ranged = [e.scenario.randomise.count for e in suite.entries if e.scenario.randomise.count]
     assert min(counts + [lo for lo, _ in ranged]) <= 10
-    assert max(counts + [hi for _, hi in ranged]) >= 300
+    assert max(counts + [hi for _, hi in ranged]) >= 100
     assert {e.scenario.flock.formation for e in suite.entries} >= {"disc", "hex", "line", "cluster"}
     # Calm: the species' own small heading noise (0.05 rad/s^0.5 or less).
     assert any(e.scenario.flock.noise_std <= 0.05 for e in suite.entries)
-    # A noisy family: heading noise that frays the flock (polarisation falls well below 1).
-    assert any(e.scenario.flock.noise_std >= 0.5 for e in suite.entries)
+    # Noisy families: herdable noise here; noise that frays the flock (polarisation falls well
+    # below 1) and the murmurations are the stress suite's open challenges.
+    assert any(e.scenario.flock.noise_std >= 0.2 for e in suite.entries)
+    stress = load_suite("stress")
+    assert any(e.scenario.flock.noise_std >= 0.5 for e in stress.entries)
+    assert max(e.scenario.flock.count for e in stress.entries) >= 300
+    # Birds nearly as fast as the drone: escape speed within 5 % of its top speed.
+    assert any(
+        e.scenario.flock.burst_speed >= 0.95 * e.scenario.pursuer.max_speed for e in suite.entries
+    )
     per_family: dict[str, int] = {}
     for entry in suite.entries:
         per_family[entry.family] = per_family.get(entry.family, 0) + entry.count
