@@ -242,7 +242,9 @@ def _cmd_run(args: argparse.Namespace) -> int:
             name = args.controller
             factory = partial(make_controller, args.controller, **params)
         env_options = {
-            key: getattr(args, key) for key in ("observation", "reward") if getattr(args, key)
+            key: getattr(args, key)
+            for key in ("observation", "reward", "decision_steps")
+            if getattr(args, key)
         }
         with _backend(args) as (workers, backend):
             path = run_suite(
@@ -415,6 +417,11 @@ def build_parser() -> argparse.ArgumentParser:
     )
     run.add_argument(
         "--reward", help="reward of the episodes: herding (default) or package.module:Name"
+    )
+    run.add_argument(
+        "--decision-steps",
+        type=int,
+        help="control steps each action is held (default: each scenario's episode.decision_steps)",
     )
     run.set_defaults(handler=_cmd_run)
 

@@ -52,6 +52,7 @@ OUTPUT_STEM = "leaderboard"  # leaderboard.md / .png (and any leaderboard.*) are
 ROW_KEYS = (
     "controller",
     "information_level",
+    "decision_period",
     "episodes",
     "success_rate",
     "breach_free_rate",
@@ -197,9 +198,14 @@ def _row(result: Mapping[str, Any], reps: int, seed: int) -> dict[str, Any]:
     # An error episode counts as the worst case: not breach-free, fully fragmented.
     fragmentation = sum(1.0 - float(ep["min_largest_fraction"]) for ep in ok) + (n - len(ok))
     collided = sum(1 for ep in eps if _is_int(ep.get("collision_steps")) and ep["collision_steps"])
+    # How often the controller decided: one value for the whole file, None if the records do not
+    # say (files written before the decision interval) or disagree.
+    periods = {ep.get("decision_period") for ep in eps}
+    period = periods.pop() if len(periods) == 1 else None
     return {
         "controller": result["controller"],
         "information_level": result["information_level"],
+        "decision_period": float(period) if isinstance(period, int | float) else None,
         "episodes": n,
         "success_rate": sum(1 for ep in eps if ep["success"]) / n,
         "breach_free_rate": sum(1 for ep in ok if ep["breached_birds"] == 0) / n,
@@ -218,6 +224,7 @@ def build_rows(
     """One row per controller (keys ``ROW_KEYS``), best ``score_iqm`` first.
 
     Rates are shares of all episodes: success, no bird breached, at least one collision step.
+    ``decision_period`` (s) is how long each action was held, None when the records do not say.
     ``mean_peak_fragmentation`` is the mean over episodes of 1 - min_largest_fraction (0 = the
     flock never split; an error counts as 1). ``median_time_to_success`` (s) is over successful
     episodes, None when there are none.
@@ -244,14 +251,16 @@ def render_markdown(rows: Sequence[Mapping[str, Any]], suite: str, version: int)
         "share; an error scores 0. IQM of all episodes with a 95 % stratified bootstrap CI "
         "(episodes resampled within each scenario family).",
         "",
-        "| rank | controller | information | episodes | score IQM | 95 % CI | success | "
-        "breach-free | collision | fragmentation | median time to success |",
-        "|---:|---|---|---:|---:|---|---:|---:|---:|---:|---:|",
+        "| rank | controller | information | decides every | episodes | score IQM | 95 % CI | "
+        "success | breach-free | collision | fragmentation | median time to success |",
+        "|---:|---|---|---:|---:|---:|---|---:|---:|---:|---:|---:|",
     ]
     for rank, r in enumerate(rows, 1):
         t = r["median_time_to_success"]
+        d = r["decision_period"]
         lines.append(
-            f"| {rank} | {r['controller']} | {r['information_level']} | {r['episodes']} | "
+            f"| {rank} | {r['controller']} | {r['information_level']} | "
+            f"{'-' if d is None else f'{d:g} s'} | {r['episodes']} | "
             f"{r['score_iqm']:.3f} | [{r['score_ci_low']:.3f}, {r['score_ci_high']:.3f}] | "
             f"{_pct(r['success_rate'])} | {_pct(r['breach_free_rate'])} | "
             f"{_pct(r['collision_rate'])} | {r['mean_peak_fragmentation']:.3f} | "
