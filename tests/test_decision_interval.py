@@ -164,3 +164,14 @@ def test_runner_holds_a_scripted_controller_for_decision_steps(k):
     )  # fmt: skip
     assert record.decision_period == pytest.approx(k * 0.1)
     assert len(calls) == math.ceil(record.steps / k)  # one decision per k control steps
+
+
+def test_vector_env_restarts_when_every_world_ended_together():
+    venv = DivertVectorEnv(2, "trio", decision_steps=K, max_episode_steps=K + 2)
+    venv.reset(seed=0)
+    venv.step(np.zeros((2, 2)))
+    _, _, _, truncated, info = venv.step(np.zeros((2, 2)))
+    assert truncated.all() and info["held_steps"].tolist() == [2, 2]
+    _, rewards, terminated, truncated, info = venv.step(np.zeros((2, 2)))  # both restart
+    assert not (terminated.any() or truncated.any()) and rewards.tolist() == [0.0, 0.0]
+    assert info["steps"].tolist() == [0, 0]

@@ -160,7 +160,7 @@ def test_behaviour_cloning_fits_the_expert(tmp_path):
 
     cfg = _config(
         tmp_path,
-        'algorithm = "ppo"\nscenarios = ["trio"]\nnum_envs = 1\n'
+        'algorithm = "ppo"\nscenarios = ["trio"]\nnum_envs = 1\ndecision_steps = 1\n'
         'overrides = { "episode.max_steps" = 150 }\n'
         '[pretrain]\nexpert = "collect-drive"\nepisodes = 2\nepochs = 40\n',
     )

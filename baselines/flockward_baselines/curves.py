@@ -87,7 +87,7 @@ def curve_point(
         scenario=config.load_scenario().name,
         episodes=episodes,
         success_rate=outcomes.count(Outcome.SUCCESS.value) / episodes,
-        breach_free_rate=1.0 - outcomes.count(Outcome.BREACH.value) / episodes,
+        breach_free_rate=(episodes - outcomes.count(Outcome.BREACH.value)) / episodes,
         median_steps=float(np.median(lengths)),
     )
 

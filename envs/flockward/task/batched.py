@@ -182,7 +182,9 @@ class DivertTask:
         collisions = np.zeros(self.n_worlds, dtype=np.int64)
         context: StepContext | None = None
         for hold_step in range(self.decision_steps):
-            if not active.any():
+            # The first control step runs even with no live world (all restarting after an
+            # autoreset), so that every batch has its metrics and info.
+            if hold_step and not active.any():
                 break
             context, step_terms, step_info = self._control_step(action, active, hold_step)
             # Summed in the order a caller repeating the action by hand would sum them.
@@ -198,8 +200,8 @@ class DivertTask:
             held += active
             collisions += active & context.collided
             active = active & ~(context.terminated | context.truncated)
-        if context is None:
-            raise ValueError("step() needs at least one live world")
+        if context is None:  # decision_steps >= 1, so the loop ran
+            raise RuntimeError("no control step was played")
         info = {"reward_terms": terms, **info, "collision_steps": collisions, "held_steps": held}
         success = info["outcome"] == Outcome.SUCCESS
         context = replace(
