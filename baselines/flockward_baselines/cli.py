@@ -55,7 +55,8 @@ def _summary(path: Path) -> str:
         zone = type(s.site.protected).__name__.lower()
         return (
             f"scenario '{s.name}': {birds} {f.name} ({f.formation}{drawn}), {zone} zone, "
-            f"{s.episode.max_steps} steps of {s.episode.dt:g} s"
+            f"{s.episode.max_steps} steps of {s.episode.dt:g} s, a decision every "
+            f"{s.episode.decision_steps} ({round(s.episode.decision_period, 6):g} s)"
         )
     f = load_flock(path)
     return (
