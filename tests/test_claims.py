@@ -8,6 +8,7 @@ tripping on seed luck. `flockward verify` reports the same claims with intervals
 
 from __future__ import annotations
 
+from flockward.bench.claim_checks import CLAIM_ENV
 from flockward.bench.episode import EpisodeRecord, play_episode
 from flockward.config.scenarios import load_scenario
 from flockward_baselines.controllers import make_controller
@@ -18,7 +19,10 @@ WHOLE = 0.9  # a flock is split once its largest fragment held less than this sh
 
 def _play(controller: str, overrides: dict[str, object] | None = None, **params: object):
     scenario = load_scenario("headon", overrides or {})
-    return [play_episode(scenario, make_controller(controller, **params), s)[0] for s in SEEDS]
+    return [
+        play_episode(scenario, make_controller(controller, **params), s, env_kwargs=CLAIM_ENV)[0]
+        for s in SEEDS
+    ]
 
 
 def _split(records: list[EpisodeRecord]) -> int:

@@ -131,7 +131,9 @@ def test_controllers_see_drones_as_rows_and_frames_record_them():
     record, frames = play_episode(scenario, recorder, seed=0, record_frames=True)
     assert record.outcome == "timeout" and record.steps == 5
     assert recorder.shapes == {((1, 2), (1, 2))}  # (P, 2) with the environment's one drone
-    assert len(frames) == 6
+    # One frame at reset and one per decision (decision_steps control steps, the last cut short).
+    k = scenario.episode.decision_steps
+    assert len(frames) == 1 + -(-5 // k)
     assert all(frame["pursuer_pos"].shape == (1, 2) for frame in frames)
 
 

@@ -43,7 +43,10 @@ def _expected_obs(env: DivertEnv, steps: int) -> np.ndarray:
     ids=["objects", "import-paths"],
 )
 def test_custom_parts_through_gym_make(observation, reward):
-    env = gym.make(ENV_ID, scenario="trio", observation=observation, reward=reward)
+    # One decision per control step: the expectations below are per control step.
+    env = gym.make(
+        ENV_ID, scenario="trio", observation=observation, reward=reward, decision_steps=1
+    )
     inner = env.unwrapped
     assert env.observation_space == gym.spaces.Box(-np.inf, np.inf, (OBS_SIZE,), np.float32)
     obs, info = env.reset(seed=2)
@@ -94,9 +97,10 @@ def test_custom_parts_through_make_vec_match_single_envs(threads, monkeypatch):
         overrides={"episode.max_steps": 25},
         observation=CentroidObservation(),
         reward=REWARD_PATH,
+        decision_steps=1,
     )
     singles = [DivertEnv("trio", overrides={"episode.max_steps": 25}, observation=OBS_PATH,
-                         reward=ArrivalReward()) for _ in range(3)]  # fmt: skip
+                         reward=ArrivalReward(), decision_steps=1) for _ in range(3)]  # fmt: skip
     obs, _ = venv.reset(seed=7)
     expected = [env.reset(seed=7 + i)[0] for i, env in enumerate(singles)]
     np.testing.assert_array_equal(obs, np.stack(expected))
@@ -112,7 +116,7 @@ def test_custom_parts_through_make_vec_match_single_envs(threads, monkeypatch):
 
 def test_custom_parts_through_the_sb3_adapter():
     venv = sb3.make_vec_env(num_envs=2, seed=0, scenario="trio", observation=OBS_PATH,
-                            reward=REWARD_PATH, max_episode_steps=5)  # fmt: skip
+                            reward=REWARD_PATH, max_episode_steps=5, decision_steps=1)  # fmt: skip
     obs = venv.reset()
     assert obs.shape == (2, OBS_SIZE) and (obs[:, 2] == 0).all()
     for _ in range(5):

@@ -55,7 +55,7 @@ def test_changed_value_changes_the_hash(override: dict) -> None:
 
 def test_default_written_out_keeps_the_hash() -> None:
     base = load_scenario("headon")
-    explicit = load_scenario("headon", {"reward.discount": types.RewardWeights().discount})
+    explicit = load_scenario("headon", {"reward.gamma": types.RewardWeights().gamma})
     assert scenario_hash(explicit) == scenario_hash(base)
 
 

@@ -568,3 +568,17 @@ def test_family_chart_at_all_or_no_successes(tmp_path: Path, outcome: str) -> No
 
     out = write_family_chart(rows, tmp_path / "f.png", "standard")
     assert out.read_bytes().startswith(PNG_MAGIC)
+
+
+def test_rows_state_the_decision_period() -> None:
+    # Regression test: one period per file; files without it (or mixed) show none.
+    held = _result("held", "state", [{**_ep("headon", "success", t=40.0), "decision_period": 0.8}])
+    mixed = _result("mixed", "state", [
+        {**_ep("headon", "success", t=40.0, seed=0), "decision_period": 0.8},
+        {**_ep("headon", "success", t=40.0, seed=1), "decision_period": 0.1},
+    ])  # fmt: skip
+    rows = {r["controller"]: r for r in build_rows([held, mixed, ALPHA], reps=50)}
+    assert rows["held"]["decision_period"] == 0.8
+    assert rows["mixed"]["decision_period"] is None and rows["alpha"]["decision_period"] is None
+    md = render_markdown(list(rows.values()), "standard", 3)
+    assert "decides every" in md and "| held | state | defaults | 0.8 s |" in md

@@ -132,7 +132,7 @@ def test_tiny_ppo_trains_saves_resumes_and_scores(tiny, tmp_path):
     config = load_train_config(cfg_path)
     run = tmp_path / "run"
     model_path = train(config, run, progress=False)
-    for name in ("model.zip", "eval.csv", "progress.csv", "training_curve.png"):
+    for name in ("model.zip", "eval.csv", "curve.csv", "progress.csv", "training_curve.png"):
         assert (run / name).is_file(), name
     assert sorted(p.name for p in (run / "checkpoints").glob("*.zip")) == [
         "step_1024.zip",
@@ -160,7 +160,7 @@ def test_behaviour_cloning_fits_the_expert(tmp_path):
 
     cfg = _config(
         tmp_path,
-        'algorithm = "ppo"\nscenarios = ["trio"]\nnum_envs = 1\n'
+        'algorithm = "ppo"\nscenarios = ["trio"]\nnum_envs = 1\ndecision_steps = 1\n'
         'overrides = { "episode.max_steps" = 150 }\n'
         '[pretrain]\nexpert = "collect-drive"\nepisodes = 2\nepochs = 40\n',
     )
@@ -209,3 +209,41 @@ def test_left_out_keys_take_the_dataclass_defaults(tmp_path):
     for f in dataclasses.fields(TrainConfig):
         if f.name != "source_file":
             assert getattr(config, f.name) == getattr(defaults, f.name), f.name
+
+
+FROM_SCRATCH = """
+name = "scratch"
+algorithm = "ppo"
+scenarios = ["trio"]
+seed = 0
+total_timesteps = 40_000
+num_envs = 16
+eval_suite = "{suite}"
+eval_every = 0
+checkpoint_every = 1_000_000
+curve_every = 5_000
+curve_episodes = 10
+[ppo]
+n_steps = 256
+"""
+
+
+@pytest.mark.expensive  # about 30 s of PPO on two cores
+def test_ppo_from_scratch_learns_through_the_real_command(tmp_path):
+    # The easiest shipped setting (trio, three gulls) with the default decision interval and
+    # reward: PPO from scratch, started through the `flockward train` command line, must beat
+    # idle on the same fixed seeded curve episodes (idle breaches every one of them).
+    from flockward.task.env_config import EnvConfig
+    from flockward_baselines.curves import play_outcomes, read_curve
+
+    suite = _config(tmp_path, TINY_SUITE, "tiny_suite.toml")
+    cfg = _config(tmp_path, FROM_SCRATCH.format(suite=suite))
+    run = tmp_path / "run"
+    assert main(["train", "--config", str(cfg), "--out", str(run), "--quiet"]) == 0
+    points = read_curve(run / "curve.csv")
+    idle, _ = play_outcomes(lambda obs: np.zeros((len(obs), 2)), EnvConfig("trio"), 10)
+    idle_success = idle.count("success") / 10
+    idle_breach_free = 1.0 - idle.count("breach") / 10
+    assert points[0].timesteps == 0 and points[-1].timesteps >= 40_000
+    assert max(p.success_rate for p in points) > idle_success
+    assert points[-1].breach_free_rate > idle_breach_free

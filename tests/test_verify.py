@@ -121,6 +121,7 @@ def _record(success: bool, fraction: float, breached: int) -> EpisodeRecord:
         success,
         "success" if success else "breach",
         10,
+        0.1,
         None,
         breached,
         1,

@@ -67,7 +67,8 @@ def _summary(path: Path, kind: str) -> str:
         zone = type(s.site.protected).__name__.lower()
         return (
             f"scenario '{s.name}': {birds} {f.name} ({f.formation}{drawn}), {zone} zone, "
-            f"{s.episode.max_steps} steps of {s.episode.dt:g} s"
+            f"{s.episode.max_steps} steps of {s.episode.dt:g} s, a decision every "
+            f"{s.episode.decision_steps} ({round(s.episode.decision_period, 6):g} s)"
         )
     f = load_flock(path)
     return (
@@ -447,7 +448,9 @@ def _cmd_run(args: argparse.Namespace) -> int:
             factory()  # a controller that breaks its contract fails here, not in a worker
             defaults = _parameters(make_controller(args.controller))
         env_options = {
-            key: getattr(args, key) for key in ("observation", "reward") if getattr(args, key)
+            key: getattr(args, key)
+            for key in ("observation", "reward", "decision_steps")
+            if getattr(args, key)
         }
         with _backend(args) as (workers, backend):
             path = run_suite(
@@ -695,6 +698,11 @@ def build_parser() -> argparse.ArgumentParser:
     )
     run.add_argument(
         "--reward", help="reward of the episodes: herding (default) or package.module:Name"
+    )
+    run.add_argument(
+        "--decision-steps",
+        type=int,
+        help="control steps each action is held (default: each scenario's episode.decision_steps)",
     )
     run.set_defaults(handler=_cmd_run)
 

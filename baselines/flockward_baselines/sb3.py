@@ -51,6 +51,9 @@ class FlockwardVecEnv(VecEnv):
         super().__init__(int(num_envs), self.task.observation_space(), action_space())
         self._actions = np.zeros((self.num_envs, 1, 2))  # (worlds, drones, 2), as check_actions
         self._generators: list[np.random.Generator] | None = None
+        # control steps of dt played by all worlds so far: each step holds the actions for
+        # decision_steps of them, fewer where an episode ends within the hold
+        self.simulator_steps = 0
 
     def reset(self) -> BatchObs:
         """Reset every world (from the seeds set by ``seed``, if any) and observe them."""
@@ -68,6 +71,7 @@ class FlockwardVecEnv(VecEnv):
     def step_wait(self) -> BatchStep:
         """Step every world; a finished world is reset and its last observation kept in info."""
         batch = self.task.step(self._actions)
+        self.simulator_steps += int(batch.info["held_steps"].sum())
         dones = batch.terminated | batch.truncated
         infos: list[dict[str, Any]] = [{} for _ in range(self.num_envs)]
         obs: BatchObs = batch.observation
@@ -130,6 +134,11 @@ class MixedVecEnv(VecEnv):
         self.render_mode = None
         self._bounds = np.cumsum([0] + [p.num_envs for p in parts])
         super().__init__(int(self._bounds[-1]), first.observation_space, first.action_space)
+
+    @property
+    def simulator_steps(self) -> int:
+        """Control steps of dt played by all worlds of all parts so far."""
+        return sum(part.simulator_steps for part in self.parts)
 
     def reset(self) -> BatchObs:
         """Reset every part; observations in part order."""

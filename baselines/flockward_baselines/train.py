@@ -3,10 +3,15 @@
 A training config names the algorithm, its hyperparameters, the scenarios to train on (several
 scenarios make a randomised mix: each gets an equal share of the worlds), a seed, and a held-out
 validation suite evaluated periodically with the deterministic policy. A run directory receives
-TensorBoard and CSV logs, checkpoints, ``eval.csv``, the final ``model.zip``, the best-validated
-``best_model.zip`` and ``training_curve.png``. An optional ``[pretrain]`` table first clones a
-scripted expert's actions (behaviour cloning) so that reinforcement learning starts from a policy
-that already reaches the flock. ``--resume`` continues from the newest checkpoint.
+TensorBoard and CSV logs, checkpoints, ``eval.csv``, the learning curve ``curve.csv`` (success
+and breach-free rates on fixed seeded episodes of each training scenario against environment and
+simulator steps, see ``flockward_baselines.curves``), the final ``model.zip``, the best-validated
+``best_model.zip`` and ``training_curve.png``. One environment step is one decision: the action is
+held for ``decision_steps`` control steps, and the reward's shaping discount per control step is
+derived from the algorithm's gamma (``TrainConfig.env_overrides``). An optional ``[pretrain]``
+table first clones a scripted expert's actions (behaviour cloning) so that reinforcement learning
+starts from a policy that already reaches the flock. ``--resume`` continues from the newest
+checkpoint.
 """
 
 from __future__ import annotations
@@ -28,6 +33,7 @@ from flockward.config.schema import Origin, Spec, convert
 from flockward.controller import Controller, StateView
 from flockward.sim.types import Scenario
 from flockward.task.env_config import EnvConfig
+from flockward_baselines.curves import CurvePoint, curve_point, read_curve, write_curve
 
 if TYPE_CHECKING:  # Stable-Baselines3 is optional: imported where training needs it
     from stable_baselines3 import PPO, SAC
@@ -36,6 +42,7 @@ if TYPE_CHECKING:  # Stable-Baselines3 is optional: imported where training need
     from stable_baselines3.common.vec_env import VecEnv
 
 ALGORITHMS = ("ppo", "sac")
+CURVE_FILE = "curve.csv"
 
 
 def _int(lo: int, hi: int) -> Spec:
@@ -104,6 +111,13 @@ class TrainConfig:
     eval_suite: str = "validation"
     eval_every: int = 200_000  # environment steps between validation runs (0: only at the end)
     checkpoint_every: int = 200_000  # environment steps between checkpoints
+    # environment steps between learning-curve points (0: only at the start and the end): the
+    # deterministic policy plays curve_episodes fixed seeds per training scenario (curve.csv)
+    curve_every: int = 50_000
+    curve_episodes: int = 20
+    # control steps each action is held (None: each scenario's episode.decision_steps); one
+    # environment step of training is one decision
+    decision_steps: int | None = None
     torch_threads: int = 1
     net_arch: tuple[int, ...] = (64, 64)
     hyperparameters: dict[str, Any] = field(default_factory=dict)
@@ -115,7 +129,31 @@ class TrainConfig:
     @property
     def env_options(self) -> dict[str, Any]:
         """Environment arguments shared by training, demonstrations and validation."""
-        return {"observation": self.observation, "reward": self.reward}
+        options: dict[str, Any] = {"observation": self.observation, "reward": self.reward}
+        if self.decision_steps is not None:
+            options["decision_steps"] = self.decision_steps
+        return options
+
+    @property
+    def gamma(self) -> float:
+        """The algorithm's discount per decision: the config's, else Stable-Baselines3's default."""
+        if "gamma" in self.hyperparameters:
+            return float(self.hyperparameters["gamma"])
+        return sb3_default_gamma(self.algorithm)
+
+    @property
+    def env_overrides(self) -> dict[str, Any]:
+        """The training worlds' overrides: the config's, with reward.gamma set to the agent's
+        gamma so the shaping discount per control step is derived from it."""
+        return {**self.overrides, "reward.gamma": self.gamma}
+
+
+def sb3_default_gamma(algorithm: str) -> float:
+    """Stable-Baselines3's default gamma of an algorithm (read from its signature)."""
+    import inspect
+
+    cls = _algorithm_class(algorithm)
+    return float(inspect.signature(cls).parameters["gamma"].default)
 
 
 # Numeric top-level keys, each a TrainConfig field.
@@ -125,6 +163,9 @@ _TOP_KEYS: dict[str, Spec] = {
     "num_envs": _int(1, 4096),
     "eval_every": _int(0, 10**10),
     "checkpoint_every": _int(1, 10**10),
+    "curve_every": _int(0, 10**10),
+    "curve_episodes": _int(1, 1000),
+    "decision_steps": _int(1, 1000),
     "torch_threads": _int(1, 64),
 }
 
@@ -172,7 +213,29 @@ def load_train_config(path: str | Path) -> TrainConfig:
             config.num_envs,
             f"must be at least the number of scenarios ({len(scenarios)}), one world each at least",
         )
+    _check_discount(config, label)
     return config
+
+
+def _check_discount(config: TrainConfig, label: str) -> None:
+    """The shaping discount follows from the agent's gamma: an override of reward.gamma that
+    differs from it, or a reward.discount that differs from the derived value, is an error."""
+    given = config.overrides.get("reward.gamma")
+    if given is not None and given != config.gamma:
+        raise ConfigError(
+            f"{label}: key 'overrides' entry 'reward.gamma' = {given!r}: must equal the "
+            f"{config.algorithm} gamma ({config.gamma!r}) or be left out (training sets it)"
+        )
+    k = config.decision_steps
+    steps = {} if k is None else {"episode.decision_steps": k}
+    for scenario in config.scenarios:
+        try:
+            load_scenario(scenario, {**config.env_overrides, **steps})
+        except ConfigError as error:
+            raise ConfigError(
+                f"{label}: key 'scenarios' entry {scenario!r} with {config.algorithm} gamma "
+                f"{config.gamma!r}: {error}"
+            ) from None
 
 
 def _scenarios(raw: dict[str, object], label: str) -> tuple[list[str], dict[str, Any]]:
@@ -308,7 +371,7 @@ def make_training_env(config: TrainConfig) -> VecEnv:
                 num_envs=worlds,
                 seed=first_seed,
                 scenario=scenario,
-                overrides=config.overrides,
+                overrides=config.env_overrides,
                 **config.env_options,
             )
         )
@@ -453,13 +516,23 @@ def _latest_checkpoint(run_dir: Path) -> Path | None:
 
 
 def plot_curve(run_dir: Path) -> Path:
-    """training_curve.png: validation score and mean training episode return over timesteps."""
+    """training_curve.png: success and breach-free rates over simulator steps (curve.csv),
+    validation score and mean training episode return over timesteps."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    fig = Figure(figsize=(8, 3.5), dpi=100)
+    fig = Figure(figsize=(12, 3.5), dpi=100)
     FigureCanvasAgg(fig)
-    left, right = fig.subplots(1, 2)
+    rates, left, right = fig.subplots(1, 3)
+    points = read_curve(run_dir / CURVE_FILE)
+    for scenario in dict.fromkeys(p.scenario for p in points):
+        mine = [p for p in points if p.scenario == scenario]
+        x = [p.simulator_steps for p in mine]
+        (line,) = rates.plot(x, [p.success_rate for p in mine], marker="o", label=scenario)
+        rates.plot(x, [p.breach_free_rate for p in mine], linestyle="--", color=line.get_color())
+    rates.set(title="success (solid), breach-free (dashed)", xlabel="simulator steps", ylim=(0, 1))
+    if points:
+        rates.legend(fontsize="small")
     evals = _read_eval_log(run_dir / "eval.csv")
     if evals:
         steps, scores, _ = zip(*evals, strict=True)
@@ -509,20 +582,25 @@ def train(
     log = _ValidationLog(
         config, run_dir, evals, time.perf_counter() - (evals[-1][2] if evals else 0.0)
     )
+    curve = _CurveLog(config, run_dir, read_curve(run_dir / CURVE_FILE) if resume else [], log)
     if not log.rows and checkpoint is None:
         log.evaluate(model, 0)  # the starting point: untrained, or freshly cloned
+    if not curve.points and checkpoint is None:
+        curve.evaluate(model, 0, 0)
 
     remaining = config.total_timesteps - model.num_timesteps
     if remaining > 0:
         model.learn(
             total_timesteps=remaining,
-            callback=_periodic_callback(model, config, run_dir, log, progress),
+            callback=_periodic_callback(model, config, run_dir, log, curve, progress),
             reset_num_timesteps=checkpoint is None,
         )
     final = run_dir / "model.zip"
     _save_atomic(model, final)
     if not log.rows or log.rows[-1][0] != model.num_timesteps:
         log.evaluate(model, model.num_timesteps)
+    if not curve.points or curve.points[-1].timesteps != model.num_timesteps:
+        curve.evaluate(model, model.num_timesteps, simulator_steps(env))
     plot_curve(run_dir)
     env.close()
     return final
@@ -578,8 +656,47 @@ class _ValidationLog:
         _write_eval_log(self.run_dir / "eval.csv", self.rows)
 
 
+def simulator_steps(env: VecEnv) -> int:
+    """Control steps played by the training worlds so far (0 for an env that does not count)."""
+    while not hasattr(env, "simulator_steps") and hasattr(env, "venv"):
+        env = env.venv  # through SB3's wrappers (VecMonitor)
+    return int(getattr(env, "simulator_steps", 0))
+
+
+@dataclass
+class _CurveLog:
+    """A run's learning curve so far (kept in curve.csv): success and breach-free rates of the
+    deterministic policy on each training scenario's fixed seeded episodes."""
+
+    config: TrainConfig
+    run_dir: Path
+    points: list[CurvePoint]
+    validation: _ValidationLog  # its start_wall is the run's clock
+
+    def evaluate(self, model: BaseAlgorithm, steps: int, sim_steps: int) -> None:
+        """Play the curve episodes of every training scenario and append their rates."""
+
+        def policy(obs: Any) -> np.ndarray:
+            action, _ = model.predict(obs, deterministic=True)
+            return np.asarray(action)
+
+        wall = time.perf_counter() - self.validation.start_wall
+        for scenario in self.config.scenarios:
+            env = EnvConfig(scenario=scenario, overrides=self.config.env_overrides,
+                            **self.config.env_options)  # fmt: skip
+            self.points.append(
+                curve_point(policy, env, self.config.curve_episodes, steps, sim_steps, wall)
+            )
+        write_curve(self.run_dir / CURVE_FILE, self.points)
+
+
 def _periodic_callback(
-    model: BaseAlgorithm, config: TrainConfig, run_dir: Path, log: _ValidationLog, progress: bool
+    model: BaseAlgorithm,
+    config: TrainConfig,
+    run_dir: Path,
+    log: _ValidationLog,
+    curve: _CurveLog,
+    progress: bool,
 ) -> BaseCallback:
     """The callback that, during learning, draws progress, checkpoints and validates."""
     from stable_baselines3.common.callbacks import BaseCallback
@@ -603,6 +720,11 @@ def _periodic_callback(
                 disable=not progress,
                 dynamic_ncols=True,
             )
+            self.next_curve = (
+                (model.num_timesteps // config.curve_every + 1) * config.curve_every
+                if config.curve_every
+                else math.inf
+            )
             self.last = model.num_timesteps
             self.tick = time.perf_counter()
 
@@ -622,6 +744,9 @@ def _periodic_callback(
             if now >= self.next_eval:
                 log.evaluate(self.model, now)
                 self.next_eval += config.eval_every
+            if now >= self.next_curve:
+                curve.evaluate(self.model, now, simulator_steps(self.training_env))
+                self.next_curve += config.curve_every
             return True
 
         def _on_training_end(self) -> None:

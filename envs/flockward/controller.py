@@ -39,8 +39,8 @@ class StateView:
     pursuer_pos: np.ndarray  # (P, 2) m, every drone; the controller flies drone 0
     pursuer_vel: np.ndarray  # (P, 2) m/s
     flock: FlockParams  # this episode's (possibly randomised) behaviour parameters
-    scenario: Scenario  # site geometry, pursuer limits, episode rules
-    step: int  # steps since reset
+    scenario: Scenario  # site geometry, pursuer limits, episode rules, decision_period
+    step: int  # control steps since reset (an act() comes every decision_steps of them)
 
 
 class Controller:

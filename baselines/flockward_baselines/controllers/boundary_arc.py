@@ -183,7 +183,7 @@ class BoundaryArc(Controller):
             self.reset(state.scenario)
         pos, vel = state.pursuer_pos[0], state.pursuer_vel[0]  # the drone this controller flies
         birds = state.bird_pos
-        dt = state.scenario.episode.dt
+        dt = state.scenario.episode.decision_period  # s until the next call
         centroid = birds.mean(axis=0)
         flock_vel = state.bird_vel.mean(axis=0)
         push = self.push_for(state.flock)

@@ -26,12 +26,13 @@ class EpisodeRecord:
     birds: int
     success: bool
     outcome: str  # success | breach | timeout | error
-    steps: int
+    steps: int  # control steps of dt played
+    decision_period: float  # s, how long each controller action was held (decision_steps * dt)
     time_to_success: float | None  # s, None unless success
     breached_birds: int  # distinct birds that entered the protected zone
     peak_components: int  # most flock fragments at any step
     min_largest_fraction: float  # lowest share of birds in the largest fragment
-    collision_steps: int  # steps with a drone inside its safety radius of a bird
+    collision_steps: int  # control steps with a drone inside its safety radius of a bird
     closest_approach: float  # m, closest drone to nearest bird over the episode
     diameter_growth: float  # largest diameter / initial diameter
     path_length: float  # m, drone track lengths summed over the drones
@@ -119,10 +120,13 @@ def play_episode(
     """Run ``controller`` for one episode from ``seed``; return its record and optional frames.
 
     ``on_action(observation, action)`` is called before each step (e.g. to record demonstrations).
-    The env flies the controller's ``drones`` (default 1; 0 for the unherded control).
+    The env flies the controller's ``drones`` (default 1; 0 for the unherded control). Each
+    action is held for the scenario's ``decision_steps`` control steps (or the ``decision_steps``
+    env argument's), as for a learned policy, so every controller decides equally often.
     """
     env = DivertEnv(scenario, **controller_env_kwargs(controller, env_kwargs))
     obs, info = env.reset(seed=seed)
+    scenario = env.task.scenario  # with the env argument's decision_steps, if one was given
     try:
         controller.reset(scenario, seed)
     except Exception as fault:  # a user's controller may raise anything
@@ -161,7 +165,7 @@ def play_episode(
                 state.pursuer_vel[0].copy(),
                 task.world.flocks[0],
                 scenario,
-                step,
+                step,  # control steps since reset
             )
         try:
             action = _checked_action(controller.act(obs, view))
@@ -175,15 +179,16 @@ def play_episode(
             on_action(obs, action)
         before = state.pursuer_pos[0].copy()  # (P, 2) m
         obs, reward, terminated, truncated, info = env.step(action)
-        step += 1
-        energy += _command_energy(action, max_accel, dt)
+        step = info["steps"]
+        energy += _command_energy(action, max_accel, dt * info["held_steps"])
         path += _track_length(before, state.pursuer_pos[0])
         total += reward
+        # Flock metrics are sampled once per decision, after its last control step.
         peak_components = max(peak_components, info["n_components"])
         min_largest = min(min_largest, info["largest_fraction"])
         max_diameter = max(max_diameter, info["diameter"])
         closest = min(closest, info["nearest_distance"])
-        collisions += int(info["collision"])
+        collisions += int(info["collision_steps"])
         breached = info["breached_birds"]
         clearance = min(clearance, _zone_clearance(task))
         if record_frames:
@@ -200,6 +205,7 @@ def play_episode(
         success=outcome == Outcome.SUCCESS,
         outcome=outcome,
         steps=step,
+        decision_period=scenario.episode.decision_period,
         time_to_success=success_time,
         time_limit=task.max_steps * dt,
         breached_birds=int(breached),
@@ -242,6 +248,7 @@ def _failed(scenario: Scenario, seed: int, env: DivertEnv, error: str) -> Episod
         success=False,
         outcome=Outcome.ERROR,
         steps=0,
+        decision_period=env.task.scenario.episode.decision_period,
         time_to_success=None,
         time_limit=env.task.max_steps * scenario.episode.dt,
         breached_birds=0,

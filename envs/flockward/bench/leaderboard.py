@@ -73,6 +73,7 @@ ROW_KEYS = (
     "controller",
     "information_level",
     "changed_parameters",
+    "decision_period",
     "episodes",
     "success_rate",
     "breach_free_rate",
@@ -297,10 +298,15 @@ def _row(result: Mapping[str, Any], reps: int, seed: int) -> dict[str, Any]:
     times = [float(ep["time_to_success"]) for ep in eps if ep["success"]]
     # An error episode counts as the worst case: not breach-free, fully fragmented.
     fragmentation = sum(1.0 - float(ep["min_largest_fraction"]) for ep in ok) + (n - len(ok))
+    # How often the controller decided: one value for the whole file, None if the records do not
+    # say (files written before the decision interval) or disagree.
+    periods = {ep.get("decision_period") for ep in eps}
+    period = periods.pop() if len(periods) == 1 else None
     return {
         "controller": row_name(result),
         "information_level": result["information_level"],
         "changed_parameters": changed_parameters(result),
+        "decision_period": float(period) if isinstance(period, int | float) else None,
         "episodes": n,
         "success_rate": sum(1 for ep in eps if ep["success"]) / n,
         "breach_free_rate": sum(1 for ep in ok if ep["breached_birds"] == 0) / n,
@@ -320,6 +326,7 @@ def build_rows(
     """One row per result file (keys ``ROW_KEYS``), best ``score_iqm`` first.
 
     Rates are shares of all episodes: success, no bird breached, at least one collision step.
+    ``decision_period`` (s) is how long each action was held, None when the records do not say.
     ``mean_peak_fragmentation`` is the mean over episodes of 1 - min_largest_fraction (0 = the
     flock never split; an error counts as 1). ``median_time_to_success`` (s) is over successful
     episodes, None when there are none; ``median_zone_clearance`` (m) over episodes that did not
@@ -417,15 +424,17 @@ def render_markdown(
     lines += [
         SCORE_NOTE,
         "",
-        "| rank | controller | information | parameters | episodes | score IQM | 95 % CI | "
-        "success | breach-free | collision | fragmentation | median time to success | "
+        "| rank | controller | information | parameters | decides every | episodes | score IQM | "
+        "95 % CI | success | breach-free | collision | fragmentation | median time to success | "
         "median zone clearance |",
-        "|---:|---|---|---|---:|---:|---|---:|---:|---:|---:|---:|---:|",
+        "|---:|---|---|---|---:|---:|---:|---|---:|---:|---:|---:|---:|---:|",
     ]
     for rank, r in enumerate(rows, 1):
+        d = r["decision_period"]
         lines.append(
             f"| {rank} | {r['controller']} | {r['information_level']} | "
-            f"{_params(r['changed_parameters'])} | {r['episodes']} | "
+            f"{_params(r['changed_parameters'])} | {'-' if d is None else f'{d:g} s'} | "
+            f"{r['episodes']} | "
             f"{r['score_iqm']:.3f} | [{r['score_ci_low']:.3f}, {r['score_ci_high']:.3f}] | "
             f"{_pct(r['success_rate'])} | {_pct(r['breach_free_rate'])} | "
             f"{_pct(r['collision_rate'])} | {r['mean_peak_fragmentation']:.3f} | "

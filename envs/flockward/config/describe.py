@@ -28,6 +28,7 @@ def describe(scenario: Scenario) -> str:
         f"  pursuer:   start {point_text(scenario.pursuer.start)} m, "
         f"max {n(scenario.pursuer.max_speed)} m/s, {n(scenario.pursuer.max_accel)} m/s^2",
         f"  episode:   dt {n(ep.dt)} s x {ep.max_steps} steps = {n(ep.dt * ep.max_steps)} s",
+        f"  decisions: every {ep.decision_steps} steps = {round(ep.decision_period, 6):g} s",
     ]
     drawn = [
         f"{name} {n(span[0])}..{n(span[1])}"

@@ -9,6 +9,7 @@ raising a one-line ``ValueError``; derived values are properties computed in one
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field, fields
 from typing import TYPE_CHECKING
 
@@ -44,6 +45,22 @@ def _check(record: DataclassInstance) -> None:
     from flockward.sim.limits import check_record
 
     check_record(record)
+
+
+def _check_discount(scenario: Scenario) -> None:
+    """An explicit reward.discount must equal the one derived from gamma and the interval."""
+    given = scenario.reward.discount
+    derived = scenario.shaping_discount
+    if given is not None and not math.isclose(given, derived, rel_tol=1e-9, abs_tol=1e-12):
+        from flockward.sim.limits import ParameterError
+
+        keys = ("reward.discount", "reward.gamma", "episode.decision_steps")
+        values = (given, scenario.reward.gamma, scenario.episode.decision_steps)
+        rule = (
+            f"must equal reward.gamma ** (1 / episode.decision_steps) = {derived!r} "
+            "(or be left out to derive it)"
+        )
+        raise ParameterError("Scenario", keys, values, lambda _key: rule)
 
 
 @dataclass(frozen=True)
@@ -263,28 +280,42 @@ class EpisodeParams:
     success_fraction: float = param(0.9, positive(1.0))
     # distinct birds allowed inside the protected zone before failure
     max_breaching_birds: int = param(0, Spec("int", 0, 5000, "birds"))
+    # control steps one action is held (a decision every decision_steps * dt s); 8 (0.8 s) chosen
+    # by measurement for learned policies, see README "Decision interval"
+    decision_steps: int = param(8, Spec("int", 1, 1000, "steps"))
 
     def __post_init__(self) -> None:
         _check(self)
 
+    @property
+    def decision_period(self) -> float:
+        """s, the time one action is held: decision_steps control steps of dt."""
+        return self.decision_steps * self.dt
+
 
 @dataclass(frozen=True)
 class RewardWeights:
-    """Weights of the named reward terms (see flockward.task.reward)."""
+    """Weights of the named reward terms (see flockward.task.reward), and the discounts."""
 
-    # per unit of potential (potential = -distance to goal / length scale)
-    progress: float = param(1.0, number(0.0, 1000.0))
-    # per unit of potential (-drone distance beyond alarm radius / scale)
-    approach: float = param(1.0, number(0.0, 1000.0))
-    # per step, times (1 - largest-cluster fraction)
+    # per unit of potential (potential = -centroid distance to goal / site scale)
+    progress: float = param(5.0, number(0.0, 1000.0))
+    # per unit of potential (-drone distance beyond alarm radius / site scale); off by default:
+    # potential-based, so it adds the same to every policy's return and cannot guide
+    approach: float = param(0.0, number(0.0, 1000.0))
+    # per control step, times (drone distance beyond the alarm radius / site scale): plain cost
+    proximity: float = param(0.02, number(0.0, 1000.0))
+    # per control step, times (1 - largest-cluster fraction)
     fragmentation: float = param(0.05, number(0.0, 1000.0))
-    # per step with the pursuer inside the safety radius of a bird
+    # per control step with the pursuer inside the safety radius of a bird
     collision: float = param(0.5, number(0.0, 1000.0))
-    # per bird entering the protected zone for the first time
-    breach: float = param(5.0, number(0.0, 1000.0))
-    time: float = param(0.002, number(0.0, 1000.0))  # per step
+    # once per episode, on the step it fails by breach (however many birds cross on that step)
+    breach: float = param(10.0, number(0.0, 1000.0))
+    time: float = param(0.002, number(0.0, 1000.0))  # per control step
     success: float = param(10.0, number(0.0, 1000.0))  # once, on success
-    discount: float = param(0.99, number(0.0, 1.0))  # gamma of the potential-based shaping term
+    # the agent's discount per decision; shaping discounts gamma^(1/decision_steps) per control step
+    gamma: float = param(0.99, number(0.0, 1.0))
+    # shaping discount per control step; None: derived from gamma (must match it if given)
+    discount: float | None = param(None, number(0.0, 1.0, opt=True))
 
     def __post_init__(self) -> None:
         _check(self)
@@ -327,6 +358,13 @@ class Scenario:
 
     def __post_init__(self) -> None:
         _check(self)
+        _check_discount(self)
+
+    @property
+    def shaping_discount(self) -> float:
+        """The shaping discount per control step: reward.gamma ** (1 / episode.decision_steps),
+        so that over one held decision the shaping discounts by the agent's gamma."""
+        return float(self.reward.gamma ** (1.0 / self.episode.decision_steps))
 
     @property
     def max_birds(self) -> int:

@@ -7,7 +7,7 @@ faces over this one class; none of them holds physics or task logic of its own.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import gymnasium as gym
@@ -16,7 +16,7 @@ import numpy.typing as npt
 
 from flockward.sim.geometry import zone_arrays, zone_center
 from flockward.sim.metrics import StepMetrics, step_metrics
-from flockward.sim.types import WorldState
+from flockward.sim.types import Scenario, WorldState
 from flockward.sim.world import World
 from flockward.task.context import Scales, StepContext, TaskSetting
 from flockward.task.env_config import EnvConfig
@@ -52,6 +52,8 @@ class DivertTask:
         self.config = config
         scenario = config.load_scenario()
         config.check_scenario(scenario)
+        if config.decision_steps is not None:
+            scenario = with_decision_steps(scenario, config.decision_steps)
         self.scenario = scenario
         self.n_worlds = worlds
         self.world = World(scenario, worlds, config.neighbour_search, drones=config.drones)
@@ -147,18 +149,77 @@ class DivertTask:
             "goal_distance": m.goal_distance,
         }
 
-    def step(self, action: np.ndarray, live: np.ndarray | None = None) -> StepBatch:
-        """Advance the live worlds under ``action`` (B, P, 2) finite; return the batch's outcome.
+    @property
+    def decision_steps(self) -> int:
+        """Control steps one action is held (the scenario's, or the env argument's)."""
+        return self.scenario.episode.decision_steps
 
+    def step(self, action: np.ndarray, live: np.ndarray | None = None) -> StepBatch:
+        """Hold ``action`` (B, P, 2) finite for ``decision_steps`` control steps of the live
+        worlds; return the batch's outcome.
+
+        A world whose episode ends within the hold stops there: its reward and each term are
+        sums over the control steps it played, its info is that of its last control step.
         info holds per-world arrays: ``reward_terms`` (a dict of the named terms), ``outcome``,
         and the flock metrics ``n_components``, ``largest_fraction``, ``diameter``,
         ``polarisation``, ``nearest_distance``, ``birds_inside``, ``breached_birds``,
-        ``birds_in_goal``, ``goal_distance``, ``collision``, ``steps``.
+        ``birds_in_goal``, ``goal_distance``, ``collision`` (after the last control step),
+        ``collision_steps`` (control steps of this hold with a collision), ``held_steps``
+        (control steps played in this hold), ``steps`` (control steps since reset).
 
         In worlds without a drone the (B, 1, 2) action of the one-drone faces is ignored.
         """
         if self.world.n_drones == 0:
             action = np.zeros((self.n_worlds, 0, 2))
+        stepped = self._all if live is None else np.asarray(live, dtype=np.bool_)
+        active = stepped.copy()
+        reward = np.zeros(self.n_worlds)
+        terms: dict[str, np.ndarray] = {}
+        info: dict[str, Any] = {}
+        terminated = np.zeros(self.n_worlds, dtype=np.bool_)
+        truncated = np.zeros(self.n_worlds, dtype=np.bool_)
+        held = np.zeros(self.n_worlds, dtype=np.int64)
+        collisions = np.zeros(self.n_worlds, dtype=np.int64)
+        context: StepContext | None = None
+        for hold_step in range(self.decision_steps):
+            # The first control step runs even with no live world (all restarting after an
+            # autoreset), so that every batch has its metrics and info.
+            if hold_step and not active.any():
+                break
+            context, step_terms, step_info = self._control_step(action, active, hold_step)
+            # Summed in the order a caller repeating the action by hand would sum them.
+            reward = reward + np.where(active, total(step_terms, self.n_worlds), 0.0)
+            for name, value in step_terms.items():
+                terms[name] = terms.get(name, np.zeros(self.n_worlds)) + np.where(
+                    active, value, 0.0
+                )
+            for key, value in step_info.items():
+                info[key] = value if key not in info else np.where(active, value, info[key])
+            terminated = np.where(active, context.terminated, terminated)
+            truncated = np.where(active, context.truncated, truncated)
+            held += active
+            collisions += active & context.collided
+            active = active & ~(context.terminated | context.truncated)
+        if context is None:  # decision_steps >= 1, so the loop ran
+            raise RuntimeError("no control step was played")
+        info = {"reward_terms": terms, **info, "collision_steps": collisions, "held_steps": held}
+        success = info["outcome"] == Outcome.SUCCESS
+        context = replace(
+            context,
+            live=stepped,
+            terminated=terminated,
+            success=success,
+            failure=info["outcome"] == Outcome.BREACH,
+            truncated=truncated,
+            collided=info["collision"],
+        )
+        observation = self.observation.build(context)
+        return StepBatch(observation, reward, terminated, truncated, info)
+
+    def _control_step(
+        self, action: np.ndarray, live: np.ndarray, hold_step: int
+    ) -> tuple[StepContext, dict[str, np.ndarray], dict[str, Any]]:
+        """Advance the live worlds by one control step: its context, reward terms and info."""
         self.world.step(action, live)
         before = self.metrics
         m = self.measure()
@@ -180,13 +241,14 @@ class DivertTask:
             state=self.world.state,
             before=before,
             metrics=m,
-            live=self._all if live is None else live,
+            live=live,
             terminated=terminated,
             success=success,
             failure=failure,
             truncated=truncated,
             new_breaches=new_breaches,
             collided=collided,
+            hold_step=hold_step,
         )
         terms = self.reward.terms(context)
         outcome = np.where(
@@ -197,7 +259,6 @@ class DivertTask:
             ),
         )
         info = {
-            "reward_terms": terms,
             "outcome": outcome,
             "n_components": m.n_components,
             "largest_fraction": m.largest_fraction,
@@ -211,9 +272,17 @@ class DivertTask:
             "collision": collided,
             "steps": self.world.steps.copy(),
         }
-        observation = self.observation.build(context)
-        reward = total(terms, self.n_worlds)
-        return StepBatch(observation, reward, terminated, truncated, info)
+        return context, terms, info
+
+
+def with_decision_steps(scenario: Scenario, steps: int) -> Scenario:
+    """The scenario with its actions held for ``steps`` control steps (checked like a key)."""
+    if steps == scenario.episode.decision_steps:
+        return scenario
+    try:
+        return replace(scenario, episode=replace(scenario.episode, decision_steps=steps))
+    except ValueError as error:
+        raise ValueError(f"decision_steps = {steps}: {error}") from None
 
 
 def check_actions(action: npt.ArrayLike, worlds: int) -> np.ndarray:

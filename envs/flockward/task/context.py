@@ -76,6 +76,9 @@ class StepContext:
     truncated: np.ndarray  # (B,) bool, step limit reached without termination
     new_breaches: np.ndarray  # (B,) int, birds that entered the protected zone for the first time
     collided: np.ndarray  # (B,) bool, pursuer inside its safety radius of a bird
+    # this control step's place within the held decision: 0 for its first step, up to
+    # decision_steps - 1 (potential-based shaping discounts by it; see task.reward)
+    hold_step: int = 0
 
     @property
     def scales(self) -> Scales:
@@ -86,6 +89,11 @@ class StepContext:
     def weights(self) -> RewardWeights:
         """The scenario's reward weights (``setting.weights``)."""
         return self.setting.weights
+
+    @property
+    def shaping_discount(self) -> float:
+        """The shaping discount per control step (``Scenario.shaping_discount``)."""
+        return self.setting.scenario.shaping_discount
 
     @property
     def worlds(self) -> int:

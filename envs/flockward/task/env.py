@@ -31,7 +31,9 @@ class DivertEnv(gym.Env):
     ## Action space
     ``Box(-1, 1, (2,), float32)``: the drone's acceleration as a fraction of its limit (x, y).
     Finite values outside [-1, 1] are clipped per component, then the norm is capped at 1; NaN or
-    inf raises ValueError.
+    inf raises ValueError. Each action is held for ``decision_steps`` control steps of ``dt``
+    (default 8 x 0.1 s: a decision every 0.8 s, ``scenario.episode.decision_period``); one
+    ``step`` is one decision.
 
     ## Observation space
     ``observation="vector"`` (default): a float32 vector of 14 + 3k entries, k = ``rim_birds``,
@@ -59,10 +61,13 @@ class DivertEnv(gym.Env):
     ``flockward.task.observation.Observation``.
 
     ## Rewards
-    The sum of named terms, each in ``info["reward_terms"]``, weights from the scenario's
-    ``[reward]`` table: ``progress`` (potential-based shaping toward the goal), ``approach``
-    (the same shaping on the drone's distance to the flock beyond the alarm radius),
-    ``fragmentation``, ``collision``, ``breach``, ``time``, ``success`` (see
+    The sum of named terms, each in ``info["reward_terms"]`` summed over the held control steps,
+    weights from the scenario's ``[reward]`` table: ``progress`` (potential-based shaping toward
+    the goal, discounted per control step by ``reward.gamma ** (1 / decision_steps)`` so that it
+    is exact shaping in the agent's gamma per decision), ``approach`` (the same shaping on the
+    drone's distance to the flock, off by default), ``proximity`` (a plain cost of the drone's
+    distance to the flock beyond the alarm radius), ``fragmentation``, ``collision``, ``breach``
+    (once, when the episode fails by breach), ``time``, ``success`` (see
     ``flockward.task.reward``). ``reward=`` takes another object (or import path) following
     ``flockward.task.reward.Reward``.
 
@@ -73,7 +78,9 @@ class DivertEnv(gym.Env):
     ## Episode end
     Terminated on success (``success_fraction`` of the birds inside the goal region) or breach
     (more than ``max_breaching_birds`` distinct birds have entered the protected zone); truncated
-    at the scenario's step limit or ``max_episode_steps``.
+    at the scenario's step limit or ``max_episode_steps`` (both in control steps). An episode
+    that ends within a held decision ends on that control step: ``info`` is that step's, with
+    ``held_steps`` the control steps played and ``steps`` the control steps since reset.
 
     ## State
     ``env.unwrapped.state``: a read-only ``WorldView`` of the world after the latest reset or step
@@ -85,7 +92,9 @@ class DivertEnv(gym.Env):
     The fields of ``flockward.task.env_config.EnvConfig``, as keywords or as one EnvConfig:
     ``scenario`` (shipped name, TOML path or Scenario), ``overrides`` (dotted config keys, checked
     like the file's), ``observation``, ``reward``, ``rim_birds``, ``max_birds``,
-    ``neighbour_search`` ("auto", "all-pairs", "grid"), ``max_episode_steps``, ``render_mode``,
+    ``neighbour_search`` ("auto", "all-pairs", "grid"), ``max_episode_steps``, ``decision_steps``
+    (control steps each action is held; None: the scenario's ``episode.decision_steps``),
+    ``render_mode``,
     ``drones`` (1, or 0 for the unherded control: no pursuer in the world, actions ignored,
     observations taken from a still point at the flock centroid).
 
@@ -98,6 +107,12 @@ class DivertEnv(gym.Env):
     separation, Motsch-Tadmor alignment, a prioritised acceleration budget in which dodge and
     flight act as distinct regimes, white heading noise, sourced species speeds, drones faster
     than a fleeing bird. Observation layout and reward terms are unchanged; every number differs.
+    Later in v1: a decision interval (each action held for ``decision_steps`` control steps,
+    default 8, a decision every 0.8 s: at 0.1 s a breach lay hundreds of decisions ahead and
+    PPO from scratch never learned), rewards summed over the hold; a plain ``proximity`` cost in
+    place of the ``approach`` shaping (now weight 0), ``progress`` weight 5, ``breach`` charged
+    once per failed episode (10) instead of 5 per bird, the shaping discount derived from the
+    agent's ``reward.gamma`` and the interval. Observation layout unchanged.
 
     >>> import gymnasium as gym, flockward
     >>> env = gym.make("flockward/Divert-v1", scenario="headon")

@@ -24,6 +24,7 @@ RENDER_MODES = ("human", "rgb_array")
 REWARDS: dict[str, type[Reward]] = {"herding": HerdingReward}  # shipped rewards by name
 RIM_BIRDS_RANGE = (1, 64)
 PartT = TypeVar("PartT", Observation, Reward)
+DECISION_STEPS_RANGE = (1, 1000)  # as the scenario key episode.decision_steps
 DRONE_COUNTS = (0, 1)  # 0: the unherded control, no pursuer in the world
 
 
@@ -119,7 +120,10 @@ class EnvConfig:
     rim_birds: int = 4  # k, rim birds in the vector observation
     max_birds: int | None = None  # bird slots of the dict observation (None: scenario's largest)
     neighbour_search: str = "auto"  # "auto", "all-pairs" or "grid"
-    max_episode_steps: int | None = None  # step limit (None: the scenario's)
+    max_episode_steps: int | None = None  # step limit in control steps (None: the scenario's)
+    # control steps each action is held, a decision every decision_steps * dt s (None: the
+    # scenario's episode.decision_steps)
+    decision_steps: int | None = None
     render_mode: str | None = None  # None, "human" or "rgb_array" (single env only)
     # drones per world: 1, or 0 for the unherded control (actions accepted and ignored; see
     # StepContext.drone_pos for what observations use in place of the drone)
@@ -138,6 +142,8 @@ class EnvConfig:
             _positive_int("max_birds", self.max_birds, 1)
         if self.max_episode_steps is not None:
             _positive_int("max_episode_steps", self.max_episode_steps, 1)
+        if self.decision_steps is not None:
+            _positive_int("decision_steps", self.decision_steps, *DECISION_STEPS_RANGE)
         if self.neighbour_search not in NEIGHBOUR_SEARCH:
             raise ValueError(
                 f"neighbour_search = {self.neighbour_search!r}: allowed "

@@ -1,21 +1,27 @@
 """The reward: a sum of named terms, each reported in ``info["reward_terms"]``.
 
 A reward is an object with ``terms(context)`` returning a dict name -> (B,) array (see
-``Reward``); the task adds the terms in the order the dict lists them. The default,
+``Reward``); the task calls it once per control step and, when an action is held for several
+control steps (``decision_steps``), sums each term over the held steps. The default,
 ``HerdingReward``, has these terms (weights from the scenario's ``[reward]`` table):
 
-- progress: potential-based shaping F = gamma * phi(s') - phi(s) with phi = -(centroid distance
-  to the goal region, 0 inside) / site scale, and phi = 0 at a terminal state, so the optimal policy
-  is that of the unshaped task (Ng, Harada & Russell 1999, ICML);
-- approach: the same shaping with phi = -(drone distance to the flock centroid beyond the flock's
-  alarm radius) / site scale: it rewards closing in on the flock (the birds only react to a drone
-  within that radius) and is flat inside it, so it never pays to dive into the flock;
-- fragmentation: -(1 - largest-cluster fraction) each step;
-- collision: -1 for each step the pursuer is inside its safety radius of any bird;
-- breach: -1 for each bird entering the protected zone for the first time (a potential strike;
-  large, because an episode ends at its first breaches beyond tolerance and must not look like a
-  shortcut past the time cost);
-- time: -1 each step;
+- progress: potential-based shaping with phi = -(centroid distance to the goal region, 0 inside)
+  / site scale and phi = 0 at a terminal state. On the i-th control step of a held decision
+  (i = 0, 1, ...) it pays g^i (g phi(s') - phi(s)) with g = gamma^(1/decision_steps) the
+  scenario's shaping discount, so one decision's sum is gamma phi(s_next) - phi(s_decision):
+  exactly shaping in the agent's own discount, which leaves its optimal policy unchanged
+  (Ng, Harada & Russell 1999, ICML). Being potential-based it adds the same to every policy's
+  discounted return from a given start: it speeds learning up but cannot by itself make
+  approaching the flock preferable; that is the proximity cost's job;
+- approach: the same shaping with phi = -(drone distance beyond the flock's alarm radius) / site
+  scale (weight 0 by default, kept for comparison);
+- proximity: a plain cost -(drone distance to the flock centroid beyond the alarm radius) / site
+  scale per control step: unlike a potential it makes every step spent far from the flock cost;
+- fragmentation: -(1 - largest-cluster fraction) per control step;
+- collision: -1 for each control step the pursuer is inside its safety radius of any bird;
+- breach: -1 once, on the step the episode fails by breach, whatever the number of birds that
+  crossed on that step;
+- time: -1 per control step;
 - success: +1 on the step the flock reaches the goal region.
 """
 
@@ -27,7 +33,16 @@ import numpy as np
 
 from flockward.task.context import StepContext, TaskSetting
 
-REWARD_TERMS = ("progress", "approach", "fragmentation", "collision", "breach", "time", "success")
+REWARD_TERMS = (
+    "progress",
+    "approach",
+    "proximity",
+    "fragmentation",
+    "collision",
+    "breach",
+    "time",
+    "success",
+)
 
 
 class Reward(ABC):
@@ -68,17 +83,20 @@ def approach_potential(
 def _shaping(
     weight: float,
     discount: float,
+    hold_step: int,
     before: np.ndarray,
     after: np.ndarray,
     terminated: np.ndarray,
 ) -> np.ndarray:
-    """Weighted potential-based shaping, with phi = 0 after a terminal step."""
-    shaped: np.ndarray = weight * (discount * np.where(terminated, 0.0, after) - before)
+    """Weighted potential-based shaping of the ``hold_step``-th control step of a decision,
+    discounted to the decision's start; phi = 0 after a terminal step."""
+    gap = discount * np.where(terminated, 0.0, after) - before
+    shaped: np.ndarray = weight * discount**hold_step * gap
     return shaped
 
 
 class HerdingReward(Reward):
-    """The default reward: the seven terms of REWARD_TERMS, in that order (module docstring)."""
+    """The default reward: the terms of REWARD_TERMS, in that order (module docstring)."""
 
     def setup(self, setting: TaskSetting) -> None:
         """Room for each world's last potentials."""
@@ -98,17 +116,20 @@ class HerdingReward(Reward):
         self._approach[indices] = approach[indices]
 
     def terms(self, context: StepContext) -> dict[str, np.ndarray]:
-        """The seven weighted terms; live worlds' potentials are kept for the next step."""
+        """The weighted terms; live worlds' potentials are kept for the next step."""
         w = context.weights
-        g = w.discount
+        g = context.shaping_discount
+        i = context.hold_step
         progress, approach = self._potentials(context)
         ended = context.terminated
         terms = {
-            "progress": _shaping(w.progress, g, self._progress, progress, ended),
-            "approach": _shaping(w.approach, g, self._approach, approach, ended),
+            "progress": _shaping(w.progress, g, i, self._progress, progress, ended),
+            "approach": _shaping(w.approach, g, i, self._approach, approach, ended),
+            # -phi_approach is the drone's distance beyond the alarm radius over the site scale
+            "proximity": w.proximity * approach,
             "fragmentation": -w.fragmentation * (1.0 - context.metrics.largest_fraction),
             "collision": -w.collision * context.collided.astype(np.float64),
-            "breach": -w.breach * context.new_breaches,
+            "breach": -w.breach * context.failure.astype(np.float64),
             "time": np.full(context.worlds, -w.time),
             "success": w.success * context.success.astype(np.float64),
         }
