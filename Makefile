@@ -45,8 +45,9 @@ bench: $(STAMP)
 	$(BIN)/flockward bench
 
 # Regenerate every committed result with the shipped commands (tens of minutes on 2 cores): the
-# standard suite played by each scripted baseline, its leaderboard, the verification report and
-# the bench figures (verify last: it exits non-zero when a check fails). Run it after any change to dynamics, reward, observation or a suite.
+# standard suite played by each scripted baseline, its leaderboard, the herding envelope sweep,
+# the bench figures and the verification report (last: it exits non-zero when a check fails).
+# Run it after any change to dynamics, reward, observation or a suite.
 BOARD_CONTROLLERS := boundary-arc collect-drive direct-pursuit idle no-drone
 results: $(STAMP)
 	rm -f $(addprefix results/standard/,$(addsuffix .json,$(BOARD_CONTROLLERS)))
@@ -54,6 +55,10 @@ results: $(STAMP)
 		$(BIN)/flockward run --suite standard --controller $$c --workers 2 || exit 1; \
 	done
 	$(BIN)/flockward board --suite standard
+	rm -f results/sweeps/envelope-push-count.json
+	$(BIN)/flockward sweep --scenario headon --controller boundary-arc \
+		--axis push_distance=10:70:7 --axis flock.count=10,30,50,100 --seeds 20 \
+		--name envelope-push-count --workers 2
 	$(BIN)/flockward bench > results/bench.tmp && mv results/bench.tmp results/bench.txt
 	$(BIN)/flockward verify
 
