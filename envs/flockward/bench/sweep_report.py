@@ -23,9 +23,17 @@ from matplotlib.figure import Figure
 
 from flockward.bench.sweep import CellSummary
 from flockward.config.atomic import atomic_path
+from flockward.config.schema import SCHEMA
 from flockward.sim.types import Scenario
 
-__all__ = ["RADIUS_AXES", "render_csv", "render_json", "render_markdown", "write_figure"]
+__all__ = [
+    "RADIUS_AXES",
+    "axis_label",
+    "render_csv",
+    "render_json",
+    "render_markdown",
+    "write_figure",
+]
 
 # Controller parameters measured as a distance from the flock, in metres.
 RADIUS_AXES = ("push_distance", "standoff")
@@ -107,14 +115,37 @@ def render_json(summaries: Sequence[CellSummary]) -> str:
     return json.dumps(cells, indent=1) + "\n"
 
 
-def _radii(ax: Any, scenario: Scenario, vertical: bool) -> None:
-    """The flock's dodge and alarm radii as lines across a distance axis."""
+def _radii(ax: Any, scenario: Scenario, vertical: bool, values: Sequence[float] | None) -> None:
+    """The flock's dodge and alarm radii as lines across a distance axis; ``values`` maps the
+    axis's values to cell positions 0, 1, ... (None: the axis is in metres already)."""
     for radius, label, style in (
         (scenario.flock.dodge_radius, "dodge radius", ":"),
         (scenario.flock.alarm_radius, "alarm radius", "--"),
     ):
+        where = radius if values is None else _position(values, radius)
         line = ax.axvline if vertical else ax.axhline
-        line(radius, color="0.25", linestyle=style, linewidth=1.0, label=label)
+        line(where, color="tab:blue", linestyle=style, linewidth=1.6, label=label, zorder=5)
+
+
+def _position(values: Sequence[float], x: float) -> float:
+    """Where ``x`` falls among cells at positions 0..n-1 holding ``values`` (ascending),
+    linearly between neighbouring cells and beyond the ends."""
+    v = np.asarray(values, dtype=float)
+    if len(v) == 1:
+        return 0.0
+    if x <= v[0]:
+        return float((x - v[0]) / (v[1] - v[0]))
+    if x >= v[-1]:
+        return float(len(v) - 1 + (x - v[-1]) / (v[-1] - v[-2]))
+    return float(np.interp(x, v, np.arange(len(v))))
+
+
+def axis_label(key: str) -> str:
+    """An axis title: the key and its unit where one is known."""
+    section, _, field = key.partition(".")
+    spec = SCHEMA.get(section, {}).get(field) if field else None
+    unit = "m" if key in RADIUS_AXES else (spec.unit if spec is not None else "")
+    return f"{key} ({unit})" if unit else key
 
 
 def write_figure(
@@ -137,14 +168,16 @@ def write_figure(
             ax.plot(xs, [r.value for r in rates], "o-", color=colour, label=name)
             ax.fill_between(xs, [r.low for r in rates], [r.high for r in rates], color=colour,
                             alpha=0.15, linewidth=0)  # fmt: skip
-        ax.set_xlabel(axes[0]["key"])
+        ax.set_xlabel(axis_label(axes[0]["key"]))
         ax.set_ylabel("share of episodes (Wilson 95 % band)")
         ax.set_ylim(-0.02, 1.02)
         if axes[0]["key"] in RADIUS_AXES:
-            _radii(ax, scenario, vertical=True)
+            _radii(ax, scenario, vertical=True, values=None)
     else:
-        xs = np.array([float(v) for v in axes[0]["values"]])
-        ys = np.array([float(v) for v in axes[1]["values"]])
+        # Cells at positions 0..n-1 whatever the spacing of the values, labelled with them.
+        x_values = [float(v) for v in axes[0]["values"]]
+        y_values = [float(v) for v in axes[1]["values"]]
+        xs, ys = np.arange(len(x_values), dtype=float), np.arange(len(y_values), dtype=float)
         grids = {
             name: np.full((len(ys), len(xs)), np.nan) for name in ("success", "split", "spill")
         }
@@ -163,14 +196,16 @@ def write_figure(
                 ax.plot([], [], color=colour, label=f"{name} rate 0.5")
         jj, ii = np.nonzero(undecided)
         ax.scatter(xs[ii], ys[jj], marker="x", color="0.3", label="undecided")
-        ax.set_xlabel(axes[0]["key"])
-        ax.set_ylabel(axes[1]["key"])
+        ax.set_xticks(xs, [f"{v:g}" for v in x_values])
+        ax.set_yticks(ys, [f"{v:g}" for v in y_values])
+        ax.set_xlabel(axis_label(axes[0]["key"]))
+        ax.set_ylabel(axis_label(axes[1]["key"]))
         if axes[0]["key"] in RADIUS_AXES:
-            _radii(ax, scenario, vertical=True)
+            _radii(ax, scenario, vertical=True, values=x_values)
         if axes[1]["key"] in RADIUS_AXES:
-            _radii(ax, scenario, vertical=False)
+            _radii(ax, scenario, vertical=False, values=y_values)
     ax.set_title(title, fontsize=10)
-    ax.legend(fontsize=8, loc="best")
+    ax.legend(fontsize=8, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=3)
     ax.grid(True, alpha=0.3)
     fig.tight_layout()
     out = Path(out_path)
