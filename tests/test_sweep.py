@@ -121,3 +121,15 @@ def test_sweep_command_writes_table_and_figures(
         assert (tmp_path / f"idle-grid.{suffix}").stat().st_size > 0
     assert main([*args[:-4], "--axis", "flock.count=0"]) == 2  # three axes: refused
     assert "one or two axes" in capsys.readouterr().err
+
+
+def test_radii_fall_between_the_cells_they_lie_between() -> None:
+    from flockward.bench.sweep_report import _position, axis_label
+
+    values = [10.0, 30.0, 50.0, 100.0]
+    assert _position(values, 40.0) == pytest.approx(1.5)
+    assert _position(values, 100.0) == pytest.approx(3.0)
+    assert _position(values, 150.0) == pytest.approx(4.0)  # beyond the end, by the last spacing
+    assert _position(values, 0.0) == pytest.approx(-0.5)
+    assert axis_label("push_distance") == "push_distance (m)"
+    assert axis_label("flock.count") == "flock.count (birds)"
