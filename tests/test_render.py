@@ -208,3 +208,19 @@ def test_first_event_times_mark_the_first_split_and_breach() -> None:
     ]
     assert first_event_times(frames, 0.1) == pytest.approx({"split": 0.5, "breach": 0.9})
     assert first_event_times(frames[:1], 0.1) == {}
+
+
+@pytest.mark.parametrize(("suffix", "magic"), [(".svg", b"<?xml"), (".pdf", b"%PDF")])
+def test_episode_still_writes_vector_formats_for_papers(tmp_path, suffix, magic):
+    out = tmp_path / f"still{suffix}"
+    episode_still(POLYGON_SCENARIO, episode_frames(20), out, label="idle, seed 3")
+    assert out.read_bytes().startswith(magic)
+    with pytest.raises(ValueError, match=r"a still ends in .png, .svg or .pdf"):
+        episode_still(POLYGON_SCENARIO, episode_frames(5), tmp_path / "still.bmp")
+
+
+def test_scale_bar_lengths_are_round() -> None:
+    from flockward.render import scale_length
+
+    # A fifth of the span rounded down to 1, 2 or 5 times a power of ten (common practice).
+    assert [scale_length(s) for s in (1000.0, 480.0, 2000.0, 7.0)] == [200.0, 50.0, 200.0, 1.0]

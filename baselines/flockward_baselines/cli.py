@@ -153,8 +153,9 @@ def _cmd_show(args: argparse.Namespace) -> int:
     from flockward.render import episode_animation, episode_still
 
     out = Path(args.out)
-    if out.suffix.lower() not in (".gif", ".png"):
-        print(f"--out {out}: must end in .gif (animation) or .png (still)", file=sys.stderr)
+    if out.suffix.lower() not in (".gif", ".png", ".svg", ".pdf"):
+        print(f"--out {out}: must end in .gif (animation) or .png, .svg or .pdf (still)",
+              file=sys.stderr)  # fmt: skip
         return EXIT_INVALID
     if args.controller is not None and args.model is not None:
         print("give one of --controller NAME and --model FILE.zip, not both", file=sys.stderr)
@@ -326,7 +327,7 @@ def _cmd_board(args: argparse.Namespace) -> int:
         print(exc, file=sys.stderr)
         return EXIT_INVALID
     print(board.render(args.format, families=args.families), end="")
-    written = board.write(args.results)
+    written = board.write(args.results, args.figure or ["png"])
     if args.profiles:
         names = [r["controller"] for r in board.rows]
         by_name = {row_name(r): r for r in board.results}
@@ -628,7 +629,9 @@ def build_parser() -> argparse.ArgumentParser:
         help="controller constructor argument (repeatable)",
     )
     show.add_argument("--seed", type=int, default=0, help="episode seed")
-    show.add_argument("--out", default="episode.gif", help="output file, .gif or .png")
+    show.add_argument(
+        "--out", default="episode.gif", help="output file: .gif, or a still as .png, .svg, .pdf"
+    )
     show.set_defaults(handler=_cmd_show)
 
     demo = sub.add_parser(
@@ -787,6 +790,10 @@ def build_parser() -> argparse.ArgumentParser:
     board.add_argument(
         "--profiles", metavar="PNG", help="also draw every row's performance profile to PNG"
     )
+    board.add_argument(
+        "--figure", action="append", choices=("png", "svg", "pdf"), default=None,
+        help="chart formats (default png; repeatable)",
+    )  # fmt: skip
     board.set_defaults(handler=_cmd_board)
 
     compare = sub.add_parser(

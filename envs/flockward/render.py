@@ -163,12 +163,30 @@ def velocity_ticks(pos: np.ndarray, vel: np.ndarray) -> np.ndarray:
     return np.stack([pos, pos + TICK_SECONDS * vel], axis=1)
 
 
+def scale_length(span: float) -> float:
+    """A round length (1, 2 or 5 times a power of ten metres) near a fifth of ``span``."""
+    target = max(span / 5.0, 1e-9)
+    power = 10.0 ** np.floor(np.log10(target))
+    return float(max(m * power for m in (1.0, 2.0, 5.0) if m * power <= target))
+
+
+def draw_scale_bar(ax: Axes, extent: Extent) -> None:
+    """A labelled bar of a round length in the lower-left corner of a map without axes."""
+    x0, x1, y0, y1 = extent
+    length = scale_length(x1 - x0)
+    left, base = x0 + 0.04 * (x1 - x0), y0 + 0.05 * (y1 - y0)
+    ax.plot([left, left + length], [base, base], color=INK, linewidth=2.0, zorder=7)
+    ax.text(left + length / 2, base + 0.015 * (y1 - y0), f"{length:g} m", ha="center",
+            va="bottom", fontsize=7, color=INK, zorder=7)  # fmt: skip
+
+
 def status_line(scenario: Scenario, info: Mapping[str, Any], label: str = "") -> str:
-    """The text printed on a frame: scenario, ``label`` (such as the controller and seed), step
-    and the INFO_LABELS entries in ``info``."""
-    parts = [scenario.name, *([label] if label else []), f"step {info.get('steps', 0)}"]
-    parts += [f"{label} {info[key]}".strip() for key, label in INFO_LABELS.items() if key in info]
-    return "   ".join(parts)
+    """The text printed on a frame: scenario and ``label`` (such as the controller and seed) on
+    one line, the step and the INFO_LABELS entries in ``info`` on the next."""
+    head = "   ".join([scenario.name, *([label] if label else [])])
+    parts = [f"step {info.get('steps', 0)}"]
+    parts += [f"{label_} {info[key]}".strip() for key, label_ in INFO_LABELS.items() if key in info]
+    return head + "\n" + "   ".join(parts)
 
 
 class FrameRenderer:
@@ -215,6 +233,7 @@ class FrameRenderer:
         ax.set_aspect("equal", adjustable="box")
         ax.set_autoscale_on(False)
         draw_site(ax, scenario)
+        draw_scale_bar(ax, (x0, x1, y0, y1))
         self.ax = ax
         self.track = LineCollection([], linewidths=1.2, zorder=3)
         ax.add_collection(self.track)
@@ -320,13 +339,25 @@ def first_event_times(frames: Sequence[Mapping[str, Any]], dt: float) -> dict[st
     return events
 
 
+STILL_FORMATS = ("png", "svg", "pdf")
+
+
+def _still_format(out_path: str | os.PathLike[str]) -> str:
+    """The still's file format from its suffix (PNG when there is none)."""
+    fmt = Path(out_path).suffix.lstrip(".").lower() or "png"
+    if fmt not in STILL_FORMATS:
+        raise ValueError(f"{out_path}: a still ends in .png, .svg or .pdf")
+    return fmt
+
+
 def episode_still(
     scenario: Scenario,
     frames: Sequence[Mapping[str, Any]],
     out_path: str | os.PathLike[str],
     label: str = "",
 ) -> Path:
-    """Write a PNG summary of one episode: a map of trails and three metrics over time.
+    """Write a summary of one episode (PNG, SVG or PDF by the suffix of ``out_path``): a map of
+    trails and three metrics over time.
 
     ``frames`` holds one dict per recorded step with ``bird_pos`` (n, 2), ``bird_vel`` (n, 2),
     ``pursuer_pos`` (P, 2) (or (2,) for one drone), ``step``, ``goal_distance`` (m), ``diameter``
@@ -434,7 +465,7 @@ def episode_still(
             panel.set_xlabel("time (s)", fontsize=9, color=INK)
 
     with atomic_path(out_path) as tmp:
-        fig.savefig(tmp, format="png", facecolor=PAPER)
+        fig.savefig(tmp, format=_still_format(out_path), facecolor=PAPER)
     return Path(out_path)
 
 

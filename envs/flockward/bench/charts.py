@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from flockward.bench.leaderboard import save_png, scores_by_family
+from flockward.bench.leaderboard import save_figure, scores_by_family
 from flockward.bench.statistics import performance_profile
 
 PALETTE = ("#1b7f79", "#c8553d", "#3d5a98", "#d4a017", "#7a4e9c", "#555555", "#8c564b")
@@ -60,7 +60,7 @@ def write_family_chart(
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=min(4, max(1, len(names))),
               fontsize=8, frameon=False)  # fmt: skip
     fig.tight_layout()
-    return save_png(fig, Path(path))
+    return save_figure(fig, Path(path))
 
 
 def write_profiles(
@@ -92,4 +92,4 @@ def write_profiles(
     ax.grid(color="#eeeeee", lw=0.8)
     ax.legend(fontsize=8, frameon=False)
     fig.tight_layout()
-    return save_png(fig, Path(path))
+    return save_figure(fig, Path(path))

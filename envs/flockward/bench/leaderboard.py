@@ -530,13 +530,19 @@ def write_chart(
     ax.legend(handles=handles, loc="lower center", bbox_to_anchor=(0.5, 1.0), ncol=2,
               fontsize=8, frameon=False)  # fmt: skip
     fig.tight_layout()
-    return save_png(fig, out)
+    return save_figure(fig, out)
 
 
-def save_png(fig: Any, out: Path) -> Path:
-    """Write a matplotlib figure to ``out`` as PNG, atomically."""
+FIGURE_FORMATS = ("png", "svg", "pdf")
+
+
+def save_figure(fig: Any, out: Path) -> Path:
+    """Write a matplotlib figure to ``out`` atomically, as PNG, SVG or PDF by its suffix."""
+    fmt = out.suffix.lstrip(".").lower()
+    if fmt not in FIGURE_FORMATS:
+        raise LeaderboardError(f"{out}: a figure ends in one of .{', .'.join(FIGURE_FORMATS)}")
     buf = io.BytesIO()
-    fig.savefig(buf, format="png")
+    fig.savefig(buf, format=fmt)
     write_atomic(out, buf.getvalue())
     return out
 
@@ -577,19 +583,29 @@ class Leaderboard:
             return render_json(rows, keys)
         raise LeaderboardError(f"unknown format {fmt!r}; use one of: {', '.join(FORMATS)}")
 
-    def write(self, results_dir: str | os.PathLike[str]) -> tuple[Path, ...]:
-        """Write ``<results_dir>/<suite>/leaderboard.md``, ``leaderboard.png`` (pooled) and
-        ``leaderboard-families.png`` atomically; return the paths."""
+    def write(
+        self, results_dir: str | os.PathLike[str], formats: Sequence[str] = ("png",)
+    ) -> tuple[Path, ...]:
+        """Write ``<results_dir>/<suite>/leaderboard.md`` and, in each figure format,
+        ``leaderboard.FMT`` (pooled) and ``leaderboard-families.FMT``, atomically; return the
+        paths."""
         from flockward.bench.charts import write_family_chart
 
         folder = Path(results_dir) / self.suite
         md = folder / f"{OUTPUT_STEM}.md"
         write_atomic(md, self.render("markdown"))
-        png = write_chart(self.rows, folder / f"{OUTPUT_STEM}.png", self.chart_note)
-        fam = write_family_chart(
-            self.family_rows, folder / f"{OUTPUT_STEM}-families.png", self.suite, self.chart_note
-        )
-        return md, png, fam
+        written = [md]
+        for fmt in formats:
+            written.append(write_chart(self.rows, folder / f"{OUTPUT_STEM}.{fmt}", self.chart_note))
+            written.append(
+                write_family_chart(
+                    self.family_rows,
+                    folder / f"{OUTPUT_STEM}-families.{fmt}",
+                    self.suite,
+                    self.chart_note,
+                )
+            )
+        return tuple(written)
 
 
 def resolve_suite(suite: str | os.PathLike[str]) -> tuple[str, int, str]:
