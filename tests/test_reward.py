@@ -41,13 +41,14 @@ def test_shaping_discount_is_gamma_to_the_one_over_decision_steps(gamma, k):
 
 
 def test_explicit_shaping_discount_must_match_the_derived_one():
-    ok = load_scenario("trio", {"reward.discount": 0.99 ** (1 / 8)})
+    k = load_scenario("trio").episode.decision_steps
+    ok = load_scenario("trio", {"reward.discount": 0.99 ** (1 / k)})
     assert ok.reward.discount is not None
     with pytest.raises(ConfigError, match=r"reward\.discount.*must equal reward\.gamma") as err:
         load_scenario("trio", {"reward.discount": 0.99})
     assert "\n" not in str(err.value)
-    with pytest.raises(ValueError, match="decision_steps = 4") as err:
-        DivertEnv(load_scenario("trio", {"reward.discount": 0.99 ** (1 / 8)}), decision_steps=4)
+    with pytest.raises(ValueError, match=f"decision_steps = {2 * k}") as err:
+        DivertEnv(ok, decision_steps=2 * k)
     assert "\n" not in str(err.value)
 
 

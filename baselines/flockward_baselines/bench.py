@@ -277,8 +277,10 @@ def env_rates(worlds: int = 64, steps: int = 200, repeats: int = 5) -> dict[str,
     rng = np.random.default_rng(0)
     batch_actions = rng.uniform(-1, 1, (steps, worlds, 2))
     out: dict[str, float] = {}
+    # One decision per control step, so that every face's step is one world-step of the kernel.
+    one = {"decision_steps": 1}
 
-    single = DivertEnv("headon")
+    single = DivertEnv("headon", **one)
     single.reset(seed=0)
 
     def run_single() -> int:
@@ -290,7 +292,7 @@ def env_rates(worlds: int = 64, steps: int = 200, repeats: int = 5) -> dict[str,
 
     out["single env"] = _median_rate(run_single, repeats)
 
-    vector = DivertVectorEnv(worlds, "headon")
+    vector = DivertVectorEnv(worlds, "headon", **one)
     vector.reset(seed=0)
 
     def run_vector() -> int:
@@ -300,7 +302,7 @@ def env_rates(worlds: int = 64, steps: int = 200, repeats: int = 5) -> dict[str,
 
     out["vector env"] = _median_rate(run_vector, repeats)
 
-    adapter = make_vec_env(num_envs=worlds, seed=0, scenario="headon")
+    adapter = make_vec_env(num_envs=worlds, seed=0, scenario="headon", decision_steps=1)
     adapter.reset()
 
     def run_adapter() -> int:
@@ -334,7 +336,8 @@ def ppo_rates(worlds: int = 16, timesteps: int = 16 * 256, repeats: int = 3) -> 
 
     torch.set_num_threads(1)
     envs = {
-        ENV_ID: make_vec_env(num_envs=worlds, seed=0, scenario="headon"),
+        # one decision per control step: an env step costs what CartPole's costs the trainer
+        ENV_ID: make_vec_env(num_envs=worlds, seed=0, scenario="headon", decision_steps=1),
         "CartPole-v1": sb3_make_vec_env("CartPole-v1", n_envs=worlds, seed=0),
     }
     out: dict[str, float] = {}

@@ -280,9 +280,9 @@ class EpisodeParams:
     success_fraction: float = param(0.9, positive(1.0))
     # distinct birds allowed inside the protected zone before failure
     max_breaching_birds: int = param(0, Spec("int", 0, 5000, "birds"))
-    # control steps one action is held (a decision every decision_steps * dt s); 8 (0.8 s) chosen
+    # control steps one action is held (a decision every decision_steps * dt s); 4 (0.4 s) chosen
     # by measurement for learned policies, see README "Decision interval"
-    decision_steps: int = param(8, Spec("int", 1, 1000, "steps"))
+    decision_steps: int = param(4, Spec("int", 1, 1000, "steps"))
 
     def __post_init__(self) -> None:
         _check(self)

@@ -32,7 +32,7 @@ class DivertEnv(gym.Env):
     ``Box(-1, 1, (2,), float32)``: the drone's acceleration as a fraction of its limit (x, y).
     Finite values outside [-1, 1] are clipped per component, then the norm is capped at 1; NaN or
     inf raises ValueError. Each action is held for ``decision_steps`` control steps of ``dt``
-    (default 8 x 0.1 s: a decision every 0.8 s, ``scenario.episode.decision_period``); one
+    (default 4 x 0.1 s: a decision every 0.4 s, ``scenario.episode.decision_period``); one
     ``step`` is one decision.
 
     ## Observation space
@@ -108,8 +108,8 @@ class DivertEnv(gym.Env):
     flight act as distinct regimes, white heading noise, sourced species speeds, drones faster
     than a fleeing bird. Observation layout and reward terms are unchanged; every number differs.
     Later in v1: a decision interval (each action held for ``decision_steps`` control steps,
-    default 8, a decision every 0.8 s: at 0.1 s a breach lay hundreds of decisions ahead and
-    PPO from scratch never learned), rewards summed over the hold; a plain ``proximity`` cost in
+    default 4, a decision every 0.4 s: at 0.1 s a breach lay hundreds of decisions ahead and
+    PPO from scratch hardly learned), rewards summed over the hold; a plain ``proximity`` cost in
     place of the ``approach`` shaping (now weight 0), ``progress`` weight 5, ``breach`` charged
     once per failed episode (10) instead of 5 per bird, the shaping discount derived from the
     agent's ``reward.gamma`` and the interval. Observation layout unchanged.
