@@ -56,7 +56,7 @@ def test_installed_wheel_runs_outside_the_repo(wheel, tmp_path):
         "from flockward.config.scenarios import list_scenarios, load_scenario\n"
         "assert 'headon' in list_scenarios(); load_scenario('headon')\n"
         "import gymnasium as gym\n"
-        "env = gym.make('flockward/Divert-v1', scenario='trio'); env.reset(seed=0)\n"
+        "env = gym.make('flockward/Divert-v2', scenario='trio'); env.reset(seed=0)\n"
         "raise SystemExit(cli.main(['check', '--quiet', "
         f"{str(site / 'flockward/_configs/scenarios/headon.toml')!r}]))\n"
     )

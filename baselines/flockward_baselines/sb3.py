@@ -30,7 +30,7 @@ BatchStep = tuple[BatchObs, np.ndarray, np.ndarray, list[dict[str, Any]]]
 
 
 class FlockwardVecEnv(VecEnv):
-    """B worlds of ``flockward/Divert-v1`` as one SB3 VecEnv (no subprocesses needed).
+    """B worlds of ``flockward/Divert-v2`` as one SB3 VecEnv (no subprocesses needed).
 
     Attributes and methods reached through get_attr / set_attr / env_method belong to the shared
     batched task, so every index sees the same object: get_attr returns one value per index.

@@ -7,4 +7,4 @@ or the end-of-episode rules. A new parameter whose default reproduces today's be
 bump (hashes leave out values equal to a record's default).
 """
 
-MODEL_VERSION = 1
+MODEL_VERSION = 2

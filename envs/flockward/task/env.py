@@ -107,15 +107,18 @@ class DivertEnv(gym.Env):
     separation, Motsch-Tadmor alignment, a prioritised acceleration budget in which dodge and
     flight act as distinct regimes, white heading noise, sourced species speeds, drones faster
     than a fleeing bird. Observation layout and reward terms are unchanged; every number differs.
-    Later in v1: a decision interval (each action held for ``decision_steps`` control steps,
-    default 4, a decision every 0.4 s: at 0.1 s a breach lay hundreds of decisions ahead and
-    PPO from scratch hardly learned), rewards summed over the hold; a plain ``proximity`` cost in
-    place of the ``approach`` shaping (now weight 0), ``progress`` weight 5, ``breach`` charged
-    once per failed episode (10) instead of 5 per bird, the shaping discount derived from the
-    agent's ``reward.gamma`` and the interval. Observation layout unchanged.
+    v2 (model version 2): a decision interval (each action held for ``decision_steps`` control
+    steps, default 4, a decision every 0.4 s: at 0.1 s a breach lay hundreds of decisions ahead
+    and PPO from scratch hardly learned), rewards summed over the hold; a plain ``proximity``
+    cost in place of the ``approach`` shaping (now weight 0), ``progress`` weight 5, ``breach``
+    charged once per failed episode (10) instead of 5 per bird, the shaping discount derived
+    from the agent's ``reward.gamma`` and the interval. Fright's forward thrust is
+    power-limited (no bird is driven past its burst speed), the starlings' separation radius
+    gives wild flocks' spacing, and the pair loop sums in a vectorised order. Observation
+    layout unchanged; every number differs from v1.
 
     >>> import gymnasium as gym, flockward
-    >>> env = gym.make("flockward/Divert-v1", scenario="headon")
+    >>> env = gym.make("flockward/Divert-v2", scenario="headon")
     >>> obs, info = env.reset(seed=0)
     >>> obs.shape
     (26,)

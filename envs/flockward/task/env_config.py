@@ -106,7 +106,7 @@ def _positive_int(name: str, value: object, low: int, high: int | None = None) -
 
 @dataclass(frozen=True)
 class EnvConfig:
-    """Arguments of ``flockward/Divert-v1``, validated on construction.
+    """Arguments of ``flockward/Divert-v2``, validated on construction.
 
     ``observation`` and ``reward`` are a shipped name, an import path ``package.module:Name`` of a
     class built with no arguments, or an object (see ``flockward.task.observation.Observation``

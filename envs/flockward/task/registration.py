@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import gymnasium as gym
 
-ENV_ID = "flockward/Divert-v1"  # the herding task
+ENV_ID = "flockward/Divert-v2"  # the herding task
 ENV_IDS = (ENV_ID,)
 
 

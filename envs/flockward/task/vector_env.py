@@ -34,7 +34,7 @@ def world_seeds(seed: int | list[int | None] | None, worlds: int) -> list[int | 
 
 
 class DivertVectorEnv(VectorEnv):
-    """``flockward/Divert-v1`` batched natively (see DivertEnv for the task and its arguments).
+    """``flockward/Divert-v2`` batched natively (see DivertEnv for the task and its arguments).
 
     ``state(i)`` is world i's read-only WorldView. Note that with next-step autoreset a world
     that just ended still shows its final state until the next step resets it.
