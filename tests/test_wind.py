@@ -232,3 +232,21 @@ def test_wind_keys_load_from_a_scenario_file(tmp_path: Path) -> None:
         load_scenario(path)
     message = str(err.value)
     assert "\n" not in message and "wind.turbulence" in message and "gale" in message
+
+
+def test_rendering_draws_the_wind_arrow_toward_where_it_blows() -> None:
+    from matplotlib.figure import Figure
+    from matplotlib.text import Annotation
+
+    from flockward.render import draw_wind
+
+    extent = (-100.0, 100.0, -100.0, 100.0)
+    ax = Figure().add_subplot()
+    draw_wind(ax, Scenario(name="calm"), extent)
+    assert not ax.texts
+    ax = Figure().add_subplot()
+    draw_wind(ax, Scenario(name="breezy", wind=WindParams(speed=6.0, from_deg=270.0)), extent)
+    (arrow,) = [t for t in ax.texts if isinstance(t, Annotation)]
+    tip, tail = np.asarray(arrow.xy), np.asarray(arrow.xyann)
+    # from 270 deg (from -y): the arrow points toward +y
+    assert (tip - tail) / np.linalg.norm(tip - tail) == pytest.approx([0.0, 1.0])
