@@ -358,9 +358,9 @@ class WindParams:
 
     speed: float = param(0.0, number(0.0, 40.0, "m/s"))  # steady (mean) wind speed
     from_deg: float = param(0.0, number(-360.0, 360.0, "deg"))  # where the wind blows from
-    # Dryden intensity preset (W20 of MIL-F-8785C's low-altitude model), or none
+    # Dryden gusts: the presets set W20 to 0, 15, 30, 45 kt (MIL-F-8785C low altitude)
     turbulence: str = param("none", Spec("choice", choices=TURBULENCE_LEVELS))
-    # Height of the flock above ground: sets the turbulence's length scale and sigma
+    # flight height above ground: sets the gusts' length scale and intensity
     altitude: float = param(50.0, number(3.0, 300.0, "m"))
 
     def __post_init__(self) -> None:
