@@ -250,3 +250,12 @@ def test_rendering_draws_the_wind_arrow_toward_where_it_blows() -> None:
     tip, tail = np.asarray(arrow.xy), np.asarray(arrow.xyann)
     # from 270 deg (from -y): the arrow points toward +y
     assert (tip - tail) / np.linalg.norm(tip - tail) == pytest.approx([0.0, 1.0])
+
+
+def test_gust_series_does_not_depend_on_how_it_is_asked_for() -> None:
+    # Regression test: blocks of 4 substeps (a world's step) give the one long series.
+    length, sigma = dryden_scales(ALTITUDE, W20)
+    whole = DrydenGusts(sigma, length, SPEED, DT, np.random.default_rng(9)).next(1000)
+    parts = DrydenGusts(sigma, length, SPEED, DT, np.random.default_rng(9))
+    pieces = np.concatenate([parts.next(4) for _ in range(250)])
+    assert np.array_equal(whole, pieces)

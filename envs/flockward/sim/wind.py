@@ -35,11 +35,13 @@ import math
 
 import numpy as np
 
+from flockward.sim.jit import compiled
 from flockward.sim.types import TURBULENCE_W20_KT, WindParams
 
 FOOT = 0.3048  # m
 KNOT = 1852.0 / 3600.0  # m/s
 MIN_ALTITUDE_FT = 10.0  # the low-altitude formulas' floor (from memory)
+GUST_BLOCK = 256  # substeps of gusts made per call of the compiled filter
 
 
 def dryden_scales(altitude: float, w20: float) -> tuple[float, float]:
@@ -94,6 +96,31 @@ def _lateral_filter(sigma: float, length: float, speed: float, h: float) -> tupl
     return a_d, np.linalg.cholesky(q_d), c, p
 
 
+@compiled
+def _filter_steps(
+    a_u: float,
+    sd_u: float,
+    a_v: np.ndarray,
+    chol_v: np.ndarray,
+    c_v: np.ndarray,
+    state: np.ndarray,
+    noise: np.ndarray,
+    out: np.ndarray,
+) -> None:
+    """Advance the filters by one step per row of ``noise`` (k, 3), writing (u, v) rows of
+    ``out`` (k, 2); ``state`` (u, z1, z2) is updated in place."""
+    for j in range(noise.shape[0]):
+        state[0] = a_u * state[0] + sd_u * noise[j, 0]
+        n1 = noise[j, 1]
+        n2 = noise[j, 2]
+        z1 = a_v[0, 0] * state[1] + a_v[0, 1] * state[2] + chol_v[0, 0] * n1 + chol_v[0, 1] * n2
+        z2 = a_v[1, 0] * state[1] + a_v[1, 1] * state[2] + chol_v[1, 0] * n1 + chol_v[1, 1] * n2
+        state[1] = z1
+        state[2] = z2
+        out[j, 0] = state[0]
+        out[j, 1] = c_v[0] * z1 + c_v[1] * z2
+
+
 class DrydenGusts:
     """One world's gust generator: (u, v) gust velocities (m/s) per substep of ``h`` seconds,
     from its own generator ``rng``."""
@@ -106,18 +133,28 @@ class DrydenGusts:
         self.a_u = math.exp(-speed * h / length)
         self.sd_u = sigma * math.sqrt(1.0 - self.a_u**2)
         self.a_v, self.chol_v, self.c_v, p = _lateral_filter(sigma, length, speed, h)
-        self.u = sigma * float(rng.standard_normal())
-        self.z = np.linalg.cholesky(p) @ rng.standard_normal(2)
+        # (u, z1, z2): the longitudinal gust and the lateral filter's state, stationary at start
+        self.state = np.empty(3)
+        self.state[0] = sigma * float(rng.standard_normal())
+        self.state[1:] = np.linalg.cholesky(p) @ rng.standard_normal(2)
+        self._block = np.empty((0, 2))  # gusts made but not yet handed out
+        self._row = 0
 
     def next(self, k: int) -> np.ndarray:
-        """The next ``k`` substeps' gusts, (k, 2): longitudinal u, lateral v."""
-        noise = self.rng.standard_normal((k, 3))
-        out = np.empty((k, 2))
-        for j in range(k):
-            self.u = self.a_u * self.u + self.sd_u * noise[j, 0]
-            self.z = self.a_v @ self.z + self.chol_v @ noise[j, 1:]
-            out[j, 0] = self.u
-            out[j, 1] = self.c_v @ self.z
+        """The next ``k`` substeps' gusts, (k, 2): longitudinal u, lateral v. Made in blocks of
+        at least ``GUST_BLOCK`` rows; the noise is drawn in order, so the series does not
+        depend on how it is asked for."""
+        if self._row + k > self._block.shape[0]:
+            rows = max(k, GUST_BLOCK)
+            noise = self.rng.standard_normal((rows, 3))
+            fresh = np.empty((rows, 2))
+            _filter_steps(
+                self.a_u, self.sd_u, self.a_v, self.chol_v, self.c_v, self.state, noise, fresh
+            )
+            self._block = np.concatenate([self._block[self._row :], fresh])
+            self._row = 0
+        out = self._block[self._row : self._row + k]
+        self._row += k
         return out
 
 
