@@ -259,3 +259,23 @@ def test_gust_series_does_not_depend_on_how_it_is_asked_for() -> None:
     parts = DrydenGusts(sigma, length, SPEED, DT, np.random.default_rng(9))
     pieces = np.concatenate([parts.next(4) for _ in range(250)])
     assert np.array_equal(whole, pieces)
+
+
+def _gusty_episode_in_worker(seed: int) -> np.ndarray:
+    from flockward.task.env import DivertEnv
+
+    overrides = {"episode.max_steps": 40, "wind.speed": 5.0, "wind.turbulence": "moderate"}
+    env = DivertEnv("pigeons-cluster", overrides=overrides)
+    obs, _ = env.reset(seed=seed)
+    for _ in range(40):
+        obs, *_ = env.step(np.array([0.4, 0.1], np.float32))
+    return np.asarray(obs)
+
+
+def test_gusty_episode_is_the_same_in_a_worker_process() -> None:
+    import multiprocessing as mp
+
+    here = _gusty_episode_in_worker(3)
+    with mp.get_context("spawn").Pool(1) as pool:
+        there = pool.apply(_gusty_episode_in_worker, (3,))
+    assert np.array_equal(here, there)

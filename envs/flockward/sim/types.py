@@ -228,6 +228,7 @@ class PursuerParams:
     start: tuple[float, float] = param((0.0, 0.0), POINT)
     # A small multirotor (configs/pursuers/multirotor.toml; max 20-25 m/s, common practice).
     # The bound 44.7 m/s = 87 kn is the groundspeed limit for small drones in US 14 CFR 107.51.
+    # The kernel limits airspeed: in wind the ground speed is airspeed plus wind.
     max_speed: float = param(22.0, positive(44.7, "m/s"))
     max_accel: float = param(10.0, positive(50.0, "m/s^2"))
     # closer than this to any bird counts as a collision
