@@ -271,7 +271,7 @@ def scalar_step_worlds(
         pv = pursuer_vel[b]
         scalar_flock_acceleration(x, v, n, prm, destination[b], p, pv, use_grid, keys, order, a)
         for k in range(substeps):
-            _drone_substep(p, pv, action[b], pursuer_limits[b], h)
+            _drone_substep(p, pv, action[b], pursuer_limits[b], h, 0.0, 0.0)  # still air only
             for i in range(n):
                 for c in range(2):
                     v_half = v[i, c] + half * a[i, c]

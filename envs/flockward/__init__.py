@@ -32,6 +32,7 @@ _PUBLIC: dict[str, str] = {
     "EpisodeParams": "flockward.sim.types",
     "RewardWeights": "flockward.sim.types",
     "Randomisation": "flockward.sim.types",
+    "WindParams": "flockward.sim.types",
     "Circle": "flockward.sim.types",
     "Polygon": "flockward.sim.types",
     "WorldState": "flockward.sim.types",

@@ -10,6 +10,7 @@ its drones. Drone tracks are (T, P, 2): T time samples of P drones; a (T, 2) tra
 
 from __future__ import annotations
 
+import math
 import os
 from collections.abc import Mapping, Sequence
 from pathlib import Path
@@ -180,6 +181,28 @@ def draw_scale_bar(ax: Axes, extent: Extent) -> None:
             va="bottom", fontsize=7, color=INK, zorder=7)  # fmt: skip
 
 
+def draw_wind(ax: Axes, scenario: Scenario, extent: Extent) -> None:
+    """An arrow in the upper-right corner along the steady wind (pointing where it blows to),
+    labelled with its speed, origin and turbulence; nothing in still air."""
+    wind = scenario.wind
+    if wind.calm:
+        return
+    x0, x1, y0, y1 = extent
+    length = 0.07 * (x1 - x0)
+    cx, cy = x1 - 0.12 * (x1 - x0), y1 - 0.1 * (y1 - y0)
+    wx, wy = wind.velocity
+    speed = math.hypot(wx, wy)
+    if speed > 0.0:
+        dx, dy = 0.5 * length * wx / speed, 0.5 * length * wy / speed
+        ax.annotate("", xy=(cx + dx, cy + dy), xytext=(cx - dx, cy - dy), zorder=7,
+                    arrowprops=dict(arrowstyle="-|>", color=INK, linewidth=1.5))  # fmt: skip
+    text = f"wind {wind.speed:g} m/s\nfrom {wind.from_deg:g} deg"
+    if wind.turbulence != "none":
+        text += f"\n{wind.turbulence} gusts"
+    ax.text(cx, cy - 0.06 * (y1 - y0), text, ha="center", va="top", fontsize=7, color=INK,
+            zorder=7)  # fmt: skip
+
+
 def status_line(scenario: Scenario, info: Mapping[str, Any], label: str = "") -> str:
     """The text printed on a frame: scenario and ``label`` (such as the controller and seed) on
     one line, the step and the INFO_LABELS entries in ``info`` on the next."""
@@ -234,6 +257,7 @@ class FrameRenderer:
         ax.set_autoscale_on(False)
         draw_site(ax, scenario)
         draw_scale_bar(ax, (x0, x1, y0, y1))
+        draw_wind(ax, scenario, (x0, x1, y0, y1))
         self.ax = ax
         self.track = LineCollection([], linewidths=1.2, zorder=3)
         ax.add_collection(self.track)
@@ -390,6 +414,7 @@ def episode_still(
     ax.set_xlabel("x (m)", fontsize=9, color=INK)
     ax.set_ylabel("y (m)", fontsize=9, color=INK)
     draw_site(ax, scenario)
+    draw_wind(ax, scenario, (x0, x1, y0, y1))
 
     thin = max(1, -(-len(frames) // STILL_MAX_TRAIL_POINTS))  # ceil: keep at most the cap
     keep = np.unique(np.r_[np.arange(0, len(frames), thin), len(frames) - 1])

@@ -37,4 +37,10 @@ def describe(scenario: Scenario) -> str:
     ]
     if drawn:
         lines.append(f"  randomise: {', '.join(drawn)}")
+    wind = scenario.wind
+    if not wind.calm:
+        lines.append(
+            f"  wind:      {n(wind.speed)} m/s from {n(wind.from_deg)} deg, "
+            f"turbulence {wind.turbulence} at {n(wind.altitude)} m"
+        )
     return "\n".join(lines)

@@ -49,6 +49,7 @@ from flockward.sim.types import (
     RewardWeights,
     Scenario,
     SiteParams,
+    WindParams,
 )
 
 __all__ = [
@@ -321,6 +322,7 @@ def scenario_from(
             "pursuer": _record(PursuerParams, values["pursuer"], within("pursuer")),
             "episode": _record(EpisodeParams, values["episode"], within("episode")),
             "reward": _record(RewardWeights, values["reward"], within("reward")),
+            "wind": _record(WindParams, values["wind"], within("wind")),
             "source_file": str(file),
         },
         where,

@@ -60,8 +60,20 @@ start of the next (first same as last); each control step starts from a fresh ev
 state written between steps is honoured exactly.
 
 Drones: the commanded acceleration held over the control step, integrated exactly (velocity
-Verlet) and kept within the autopilot's speed limit. A bird fears only the nearest drone (the
+Verlet) and kept within the autopilot's airspeed limit. A bird fears only the nearest drone (the
 lowest index on a tie); a world with no drone has no fear at all.
+
+Wind (``step_worlds``' ``wind``, one vector per world per substep, the same over the site;
+made by ``flockward.sim.wind``): velocities are through the air, positions over the ground.
+Birds hold airspeed, so every term above reads air velocities: alignment (a uniform wind
+cancels in v_j - v_i anyway), speed regulation, the destination turn (the heading), the
+airspeed clamp and the noise; a bird's position moves by its air velocity plus the wind. The
+drone's command accelerates it through the air, its speed limit is an airspeed limit, and its
+position moves by its air velocity plus the wind, so a headwind slows its ground track. The
+dodge's "relative" frame (drone minus bird) is the same in air and over the ground; the
+"ground" frame uses the drone's velocity through the air, the frame of the air mass the bird
+flies in (with wind this is a modelling choice). Zero wind adds exact zeros: still air is
+the still-air path bit for bit.
 
 Neighbour search: all pairs for small flocks; for large flocks a cell grid with cell size equal
 to the interaction cut-off (birds sorted by cell key, neighbouring cells found by binary search,
@@ -676,14 +688,17 @@ def flock_acceleration_threaded(
         _flock_slots(lo, min(lo + BIRD_BLOCK, n), n, ctx, runs, np.empty(MAX_NEIGHBOURS), out)
 
 
-# One substep of the integrator for a given force function: x, v, a, v_pred, n, h, ctx.
-Substep = Callable[[np.ndarray, np.ndarray, np.ndarray, np.ndarray, int, float, ForceContext], None]
+# One substep of the integrator for a given force function: x, v, a, v_pred, n, h, ctx, wx, wy.
+Substep = Callable[
+    [np.ndarray, np.ndarray, np.ndarray, np.ndarray, int, float, ForceContext, float, float], None
+]
 
 
 @functools.cache
 def verlet_heun_substep(force: Force) -> Substep:
     """The integrator's substep for ``force``, compiled for it: velocity Verlet with a
-    Heun-predicted velocity, in place.
+    Heun-predicted velocity, in place. ``v`` is the velocity through the air; the positions
+    move over the ground, by the air velocity plus the wind (wx, wy) held over the substep.
 
     ``a`` holds force(x, v~) from the previous substep on entry and the new one on return (first
     same as last). ``force(x, v, n, ctx, out)`` writes accelerations; ``v_pred`` is work space.
@@ -700,12 +715,15 @@ def verlet_heun_substep(force: Force) -> Substep:
         n: int,
         h: float,
         ctx: ForceContext,
+        wx: float,
+        wy: float,
     ) -> None:
         half = 0.5 * h
         for i in range(n):
             for c in range(2):
                 v_half = v[i, c] + half * a[i, c]
-                x[i, c] += h * v_half
+                # v_half + 0.0 is v_half exactly: still air keeps the still-air path bit for bit.
+                x[i, c] += h * (v_half + (wx if c == 0 else wy))
                 v_pred[i, c] = v_half + half * a[i, c]
                 v[i, c] = v_half
         force(x, v_pred, n, ctx, a)
@@ -726,18 +744,26 @@ def integrate(
     force(x, v, n, ctx, a)
     substep = verlet_heun_substep(force)
     for _ in range(steps):
-        substep(x, v, a, v_pred, n, h, ctx)
+        substep(x, v, a, v_pred, n, h, ctx, 0.0, 0.0)
 
 
 @compiled
 def _drone_substep(
-    drones: np.ndarray, drone_vel: np.ndarray, action: np.ndarray, limits: np.ndarray, h: float
+    drones: np.ndarray,
+    drone_vel: np.ndarray,
+    action: np.ndarray,
+    limits: np.ndarray,
+    h: float,
+    wx: float,
+    wy: float,
 ) -> None:
     """Every drone: its held command over one substep, within its speed limit.
 
-    The autopilot never flies past its speed limit: the new velocity v' = v + h a is scaled back
-    onto the limit when it would exceed it, and the position advances by h (v + v') / 2, which
-    is exact for a constant command (velocity Verlet) and for flight at the limit.
+    The command accelerates the drone through the air, and the autopilot never flies past its
+    airspeed limit: the new air velocity v' = v + h a is scaled back onto the limit when it
+    would exceed it, and the position advances over the ground by h ((v + v') / 2 + w) in the
+    wind (wx, wy), which is exact for a constant command (velocity Verlet) and for flight at
+    the limit.
     """
     for q in range(drones.shape[0]):
         ux = min(max(action[q, 0], -1.0), 1.0)
@@ -754,8 +780,8 @@ def _drone_substep(
         if speed > vmax:
             nvx *= vmax / speed
             nvy *= vmax / speed
-        drones[q, 0] += 0.5 * h * (drone_vel[q, 0] + nvx)
-        drones[q, 1] += 0.5 * h * (drone_vel[q, 1] + nvy)
+        drones[q, 0] += 0.5 * h * (drone_vel[q, 0] + nvx) + h * wx
+        drones[q, 1] += 0.5 * h * (drone_vel[q, 1] + nvy) + h * wy
         drone_vel[q, 0] = nvx
         drone_vel[q, 1] = nvy
 
@@ -827,6 +853,7 @@ def _world_stepper(force: Force, substep: Substep) -> WorldStep:
         params: np.ndarray,
         pursuer_limits: np.ndarray,
         action: np.ndarray,
+        wind: np.ndarray,
         noise: np.ndarray,
         noise_row: np.ndarray,
         dt: float,
@@ -857,8 +884,10 @@ def _world_stepper(force: Force, substep: Substep) -> WorldStep:
         force(pos, vel, n, ctx, accel)
         for k in range(substeps):
             # The drones move first: the birds' force evaluation sees them at the substep's end.
-            _drone_substep(pursuer_pos[b], pursuer_vel[b], action[b], pursuer_limits[b], h)
-            substep(pos, vel, accel, v_pred, n, h, ctx)
+            wx = wind[b, k, 0]
+            wy = wind[b, k, 1]
+            _drone_substep(pursuer_pos[b], pursuer_vel[b], action[b], pursuer_limits[b], h, wx, wy)
+            substep(pos, vel, accel, v_pred, n, h, ctx, wx, wy)
             row = noise_row[b] + k
             clamps[b] += _noise_and_clamp(vel, n, params[b], noise[b], row, sqrt_h, has_noise)
 
@@ -880,6 +909,7 @@ def _step_worlds(
     params: np.ndarray,
     pursuer_limits: np.ndarray,
     action: np.ndarray,
+    wind: np.ndarray,
     noise: np.ndarray,
     noise_row: np.ndarray,
     dt: float,
@@ -895,8 +925,8 @@ def _step_worlds(
     for b in range(bird_pos.shape[0]):
         if live[b]:
             _step_world(b, bird_pos, bird_vel, pursuer_pos, pursuer_vel, count, destination,
-                        params, pursuer_limits, action, noise, noise_row, dt, substeps, use_grid,
-                        vec_work, slot_work, index_work, clamps)  # fmt: skip
+                        params, pursuer_limits, action, wind, noise, noise_row, dt, substeps,
+                        use_grid, vec_work, slot_work, index_work, clamps)  # fmt: skip
 
 
 @compiled_parallel(set())
@@ -910,6 +940,7 @@ def _step_worlds_by_world(
     params: np.ndarray,
     pursuer_limits: np.ndarray,
     action: np.ndarray,
+    wind: np.ndarray,
     noise: np.ndarray,
     noise_row: np.ndarray,
     dt: float,
@@ -927,8 +958,8 @@ def _step_worlds_by_world(
     for b in numba.prange(bird_pos.shape[0]):
         if live[b]:
             _step_world(b, bird_pos, bird_vel, pursuer_pos, pursuer_vel, count, destination,
-                        params, pursuer_limits, action, noise, noise_row, dt, substeps, use_grid,
-                        vec_work, slot_work, index_work, clamps)  # fmt: skip
+                        params, pursuer_limits, action, wind, noise, noise_row, dt, substeps,
+                        use_grid, vec_work, slot_work, index_work, clamps)  # fmt: skip
 
 
 @compiled
@@ -942,6 +973,7 @@ def _step_worlds_by_bird(
     params: np.ndarray,
     pursuer_limits: np.ndarray,
     action: np.ndarray,
+    wind: np.ndarray,
     noise: np.ndarray,
     noise_row: np.ndarray,
     dt: float,
@@ -958,7 +990,8 @@ def _step_worlds_by_bird(
     for b in range(bird_pos.shape[0]):
         if live[b]:
             _step_world_threaded(b, bird_pos, bird_vel, pursuer_pos, pursuer_vel, count,
-                                 destination, params, pursuer_limits, action, noise, noise_row,
+                                 destination, params, pursuer_limits, action, wind, noise,
+                                 noise_row,
                                  dt, substeps, use_grid, vec_work, slot_work, index_work,
                                  clamps)  # fmt: skip
 
@@ -1000,6 +1033,7 @@ def step_worlds(
     work: StepWork,  # work space for B worlds of N birds
     clamps: np.ndarray,  # (B,) int64: airspeed safety-net activations, incremented
     threads: int = 1,  # worker threads (1: serial); the result does not depend on it
+    wind: np.ndarray | None = None,  # (B, substeps, 2) m/s per substep; None: still air
 ) -> None:
     """Advance every live world by one control step, in place.
 
@@ -1016,6 +1050,8 @@ def step_worlds(
             body = _step_worlds_by_world
         if body is not _step_worlds:
             numba.set_num_threads(min(threads, max_threads()))
+    if wind is None:
+        wind = np.zeros((bird_pos.shape[0], substeps, 2))
     body(
         bird_pos,
         bird_vel,
@@ -1026,6 +1062,7 @@ def step_worlds(
         params,
         pursuer_limits,
         action,
+        wind,
         noise,
         noise_row,
         dt,

@@ -39,6 +39,7 @@ from flockward.sim.types import (
     RewardWeights,
     Scenario,
     SiteParams,
+    WindParams,
     Zone,
 )
 
@@ -123,6 +124,7 @@ RECORD_SECTIONS: dict[type, str] = {
     EpisodeParams: "episode",
     RewardWeights: "reward",
     Randomisation: "randomise",
+    WindParams: "wind",
 }
 
 

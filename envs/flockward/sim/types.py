@@ -33,6 +33,10 @@ ALIGNMENT_MODELS = ("motsch-tadmor", "cucker-smale")
 DODGE_FRAMES = ("relative", "ground")
 ESCAPE_THRUSTS = ("free", "power-limited")
 NOISE_MODELS = ("heading", "vector")
+# Dryden turbulence presets: the wind speed at 20 ft, W20, of MIL-F-8785C's low-altitude model
+# (light 15 kt, moderate 30 kt, severe 45 kt; MathWorks Aerospace Blockset Dryden help).
+TURBULENCE_W20_KT = {"none": 0.0, "light": 15.0, "moderate": 30.0, "severe": 45.0}
+TURBULENCE_LEVELS = tuple(TURBULENCE_W20_KT)
 # Most topological neighbours a bird can follow (the kernel keeps their distances sorted per bird).
 MAX_NEIGHBOURS = 16
 # Largest heading noise: beyond about 3 rad/s^0.5 a flock's polarisation sits at its noise floor.
@@ -224,6 +228,7 @@ class PursuerParams:
     start: tuple[float, float] = param((0.0, 0.0), POINT)
     # A small multirotor (configs/pursuers/multirotor.toml; max 20-25 m/s, common practice).
     # The bound 44.7 m/s = 87 kn is the groundspeed limit for small drones in US 14 CFR 107.51.
+    # The kernel limits airspeed: in wind the ground speed is airspeed plus wind.
     max_speed: float = param(22.0, positive(44.7, "m/s"))
     max_accel: float = param(10.0, positive(50.0, "m/s^2"))
     # closer than this to any bird counts as a collision
@@ -343,6 +348,38 @@ class Randomisation:
 
 
 @dataclass(frozen=True)
+class WindParams:
+    """The air mass the site sits in: a steady wind plus Dryden turbulence (flockward.sim.wind).
+
+    The wind is one vector per world per physics substep, the same over the whole site. The
+    direction is the one the wind blows FROM (aviation practice), as an angle in the site frame
+    counter-clockwise from +x, like the flock's ``heading_deg``: ``from_deg`` = 180 blows toward
+    +x. The default is still air.
+    """
+
+    speed: float = param(0.0, number(0.0, 40.0, "m/s"))  # steady (mean) wind speed
+    from_deg: float = param(0.0, number(-360.0, 360.0, "deg"))  # where the wind blows from
+    # Dryden gusts: the presets set W20 to 0, 15, 30, 45 kt (MIL-F-8785C low altitude)
+    turbulence: str = param("none", Spec("choice", choices=TURBULENCE_LEVELS))
+    # flight height above ground: sets the gusts' length scale and intensity
+    altitude: float = param(50.0, number(3.0, 300.0, "m"))
+
+    def __post_init__(self) -> None:
+        _check(self)
+
+    @property
+    def velocity(self) -> tuple[float, float]:
+        """The steady wind vector (m/s) in the site frame: toward from_deg + 180."""
+        a = math.radians(self.from_deg)
+        return (-self.speed * math.cos(a), -self.speed * math.sin(a))
+
+    @property
+    def calm(self) -> bool:
+        """Still air: no steady wind and no turbulence."""
+        return self.speed == 0.0 and self.turbulence == "none"
+
+
+@dataclass(frozen=True)
 class Scenario:
     """A complete, validated episode description."""
 
@@ -354,6 +391,7 @@ class Scenario:
     episode: EpisodeParams = field(default_factory=EpisodeParams)
     reward: RewardWeights = field(default_factory=RewardWeights)
     randomise: Randomisation = field(default_factory=Randomisation)
+    wind: WindParams = field(default_factory=WindParams)
     source_file: str | None = None  # where it was read from, for messages and provenance
 
     def __post_init__(self) -> None:
@@ -377,13 +415,15 @@ class WorldState:
     """The batched state of B independent worlds with room for N birds and P drones each.
 
     Birds beyond ``count[b]`` in world b are padding and are ignored everywhere. Every world flies
-    the same number of drones, so the drone axis has no padding.
+    the same number of drones, so the drone axis has no padding. Positions are over the ground,
+    velocities through the air; in still air (the default) the two frames coincide. A world's
+    ground velocity is the velocity plus its wind (``flockward.sim.world.World.wind_now``).
     """
 
-    bird_pos: np.ndarray  # (B, N, 2) m
-    bird_vel: np.ndarray  # (B, N, 2) m/s
-    pursuer_pos: np.ndarray  # (B, P, 2) m, drone positions
-    pursuer_vel: np.ndarray  # (B, P, 2) m/s, drone velocities
+    bird_pos: np.ndarray  # (B, N, 2) m, over the ground
+    bird_vel: np.ndarray  # (B, N, 2) m/s, through the air (airspeed vector)
+    pursuer_pos: np.ndarray  # (B, P, 2) m, drone positions over the ground
+    pursuer_vel: np.ndarray  # (B, P, 2) m/s, drone velocities through the air
     count: np.ndarray  # (B,) int64, active birds per world
 
     @classmethod

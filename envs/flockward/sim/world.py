@@ -4,6 +4,10 @@ Each world owns its random generator. Resets draw the world's randomised scenari
 the flight noise is drawn from it too, in blocks of ``NOISE_BLOCK`` control steps (each with one row
 per physics substep) counted from the world's own reset, so a world's trajectory depends on its own
 seed only: B worlds stepped together equal B worlds stepped alone, bit for bit.
+
+The wind (``flockward.sim.wind``) is the scenario's steady wind plus, with turbulence, each
+world's own Dryden gusts; a reset seeds the world's gust generator from the world's generator,
+so gusts follow the world's seed too. Still air draws nothing and steps with zero wind.
 """
 
 from __future__ import annotations
@@ -15,6 +19,7 @@ import numpy as np
 from flockward.sim.dynamics import StepWork, choose_grid, step_worlds
 from flockward.sim.resets import sample_reset
 from flockward.sim.types import FlockParams, Scenario, WorldState
+from flockward.sim.wind import DrydenGusts, gust_generator, wind_axes
 
 NOISE_BLOCK = 64  # steps of noise drawn per generator call: amortises the per-world draw
 THREADS_VARIABLE = "FLOCKWARD_THREADS"  # environment variable: default worker threads
@@ -90,6 +95,17 @@ class World:
         self._noise = np.zeros(shape)
         self._noise_row = np.zeros(worlds, dtype=np.int64)
         self._work = StepWork(worlds, self.max_birds)
+        # (B, substeps, 2) m/s: each world's wind over the current step's substeps
+        self.steady_wind = np.asarray(scenario.wind.velocity, dtype=np.float64)
+        self.wind = np.tile(self.steady_wind, (worlds, self.substeps, 1))
+        self._wind_axes = wind_axes(scenario.wind)
+        self.gusts: list[DrydenGusts | None] = [None] * worlds
+
+    @property
+    def wind_now(self) -> np.ndarray:
+        """(B, 2) m/s: each world's wind at the end of its last step (the steady wind before the
+        first); a bird's or drone's ground velocity is its state velocity plus this."""
+        return self.wind[:, -1]
 
     def reset(self, index: int, rng: np.random.Generator | None = None) -> None:
         """Start world ``index`` afresh, from ``rng`` if given, else from its own generator.
@@ -115,6 +131,12 @@ class World:
         if self.has_noise:
             self._noise[index] = 0.0
             self._noise_row[index] = self._block_rows  # the first step draws a fresh block
+        self.wind[index] = self.steady_wind
+        if self.scenario.wind.turbulence != "none":
+            gust_rng = np.random.default_rng(int(self.rngs[index].integers(2**63)))
+            h = self.dt / self.substeps
+            cruise = self.scenario.flock.cruise_speed
+            self.gusts[index] = gust_generator(self.scenario.wind, cruise, h, gust_rng)
 
     def step(self, action: np.ndarray, live: np.ndarray | None = None) -> None:
         """Advance the ``live`` worlds (default all) by one step under ``action`` (B, P, 2): each
@@ -131,6 +153,10 @@ class World:
                 n = int(self.state.count[b])
                 self._noise[b, :, :n] = self.rngs[b].standard_normal((self._block_rows, n, 2))
                 self._noise_row[b] = 0
+        for b in np.flatnonzero(live):
+            gusts = self.gusts[b]
+            if gusts is not None:
+                self.wind[b] = self.steady_wind + gusts.next(self.substeps) @ self._wind_axes.T
         s = self.state
         step_worlds(
             s.bird_pos,
@@ -151,6 +177,7 @@ class World:
             self._work,
             self.clamps,
             self.threads,
+            self.wind,
         )
         if self.has_noise:
             self._noise_row += live * self.substeps
