@@ -60,6 +60,12 @@ KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
     ("standard", 2): "dd498d4ec615d126f1465a0a9ea0a6e5d8157d8faa6f02c93671fe49afeee81b",
     ("stress", 2): "7ce62d900038c2d36ff5f072ca66467d549e71423fe9e6ccdf862b405e186d01",
     ("validation", 2): "4ff2e9f7b05e649087da87186d963ddb3c4f34eb48f092afdddae5fe0570908b",
+    # Model version 2 (flockward/Divert-v2): every suite's episodes changed.
+    ("ladder", 1): "6527f570d8d2546ee8c0c93dd1e8666786f4398ecbe8d6beeba65fc17ea869b4",
+    ("smoke", 3): "233cfffa8338ae841f9421650d0d2fa889354533daf127a399954125a00c56fc",
+    ("standard", 3): "67671cc93d2a9415815c4687ca74e336a84b72fbf317af5053c5f265a179d1fd",
+    ("stress", 3): "fc5f74a338932c19837c828ce45b89888601c82241abd5bac0fd621e0f422fd2",
+    ("validation", 3): "ee9f4da0047d055068f389cf86ab107fd7c906b4d1f12b74a456566a8a490531",
 }
 
 _MAX_SEED = 2**31 - 1
