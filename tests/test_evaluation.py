@@ -508,6 +508,7 @@ def test_records_carry_zone_clearance_and_time_limit(tiny: Path, tmp_path: Path)
     path = run_suite(load_suite(tiny), IDLE, "idle", tmp_path, progress=False)
     for ep in read_results(path)["episodes"]:
         assert ep["time_limit"] == pytest.approx({"trio": 6.0, "headon": 4.0}[ep["scenario"]])
+        assert ep["duration"] == pytest.approx(ep["steps"] * 0.1) and ep["duration"] <= 6.0 + 1e-9
         # headon starts the flock 600 m west of a 150 m circle, +-40 m jitter, a 12-bird disc
         # some tens of metres wide, and 4 s of flight cannot close the gap: clearance < 450 m but
         # far from the zone.

@@ -46,9 +46,12 @@ PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
 
 def _ep(family: str, outcome: str, birds: int = 10, breached: int = 0, mlf: float = 1.0,
         collisions: int = 0, t: float | None = None, seed: int = 0,
-        clearance: float | None = None, limit: float = 150.0) -> dict[str, Any]:  # fmt: skip
+        clearance: float | None = None, limit: float = 150.0,
+        duration: float | None = None) -> dict[str, Any]:  # fmt: skip
     if clearance is None:
         clearance = -5.0 if breached else 120.0
+    if duration is None:
+        duration = {"success": t, "timeout": limit, "error": 0.0}.get(outcome, 30.0)
     return {
         "family": family,
         "scenario": family,
@@ -60,6 +63,7 @@ def _ep(family: str, outcome: str, birds: int = 10, breached: int = 0, mlf: floa
         "steps": 100,
         "time_to_success": t if outcome == "success" else None,
         "time_limit": limit,
+        "duration": duration,
         "breached_birds": breached,
         "min_zone_clearance": clearance,
         "peak_components": 1 if mlf == 1.0 else 2,
@@ -121,12 +125,14 @@ def test_episode_score_known_cases() -> None:
     # 0.4 + 0.35 * (1 - 0.5 * 0.2) + 0.1 + 0.1 + 0.05.
     assert episode_score(_ep("f", "success", t=30.0)) == pytest.approx(0.965)
     assert episode_score(_ep("f", "error")) == 0.0
-    # Breach, largest group held half the birds: only contact and cohesion terms remain.
-    assert episode_score(_ep("f", "breach", breached=5, mlf=0.5)) == pytest.approx(0.125)
+    # Breach at 30 s of 150 s, largest group held half the birds: the breach's delay, contact and
+    # cohesion remain: 0.4 * 0.5 * 30/150 + 0.1 + 0.05 * 0.5.
+    assert episode_score(_ep("f", "breach", breached=5, mlf=0.5)) == pytest.approx(0.165)
     # Timeout, flock 40 m from the zone, 3 contact steps, whole flock: 0.4 + 0.1 * 0.4 + 0.05.
     assert episode_score(_ep("f", "timeout", clearance=40.0, collisions=3)) == pytest.approx(0.49)
-    # A single breaching bird forfeits the breach and clearance terms.
-    assert episode_score(_ep("f", "timeout", birds=50, breached=1)) == pytest.approx(0.15)
+    # A single breaching bird (tolerated until the time limit) forfeits half the kept-out term
+    # and the clearance: 0.4 * 0.5 + 0.1 + 0.05.
+    assert episode_score(_ep("f", "timeout", birds=50, breached=1)) == pytest.approx(0.35)
     terms = lb.score_terms(_ep("f", "success", t=75.0, clearance=50.0, mlf=0.6))
     assert terms == pytest.approx(
         {"breach_free": 1.0, "success_speed": 0.75, "clearance": 0.5, "contact_free": 1.0,
@@ -172,12 +178,12 @@ def test_any_breach_scores_below_any_breach_free_episode(a: dict, b: dict) -> No
 
 
 def test_breach_ordering_extreme_hand_built_records() -> None:
-    # The best breached episode imaginable (a success in no time with a tolerated breach, no
-    # contact, whole flock) against the worst breach-free one (timeout on the zone edge, contact,
-    # flock shattered to one bird in 500).
-    best_breach = _ep("f", "success", birds=500, breached=1, t=0.0, clearance=-0.01)
+    # The best breached episode imaginable (a tolerated breach at the very end, even a success,
+    # no contact, whole flock) against the worst breach-free one (timeout on the zone edge,
+    # contact, flock shattered to one bird in 500).
+    best_breach = _ep("f", "success", birds=500, breached=1, t=150.0, clearance=-0.01)
     worst_kept = _ep("f", "timeout", birds=500, mlf=1 / 500, collisions=999, clearance=0.0)
-    assert episode_score(best_breach) == pytest.approx(0.15)
+    assert episode_score(best_breach) == pytest.approx(0.35)
     assert episode_score(worst_kept) == pytest.approx(0.4 + 0.05 / 500)
     assert episode_score(best_breach) < episode_score(worst_kept)
 

@@ -40,6 +40,7 @@ class EpisodeRecord:
     episode_return: float
     min_zone_clearance: float  # m, least signed distance of any bird to the zone (< 0: inside)
     time_limit: float  # s, the longest the episode could last: step budget * dt
+    duration: float  # s, how long the episode lasted: control steps * dt
     error: str | None = None  # why the controller failed the episode, if it did
 
     def as_dict(self) -> dict[str, Any]:
@@ -208,6 +209,7 @@ def play_episode(
         decision_period=scenario.episode.decision_period,
         time_to_success=success_time,
         time_limit=task.max_steps * dt,
+        duration=step * dt,
         breached_birds=int(breached),
         min_zone_clearance=clearance,
         peak_components=int(peak_components),
@@ -251,6 +253,7 @@ def _failed(scenario: Scenario, seed: int, env: DivertEnv, error: str) -> Episod
         decision_period=env.task.scenario.episode.decision_period,
         time_to_success=None,
         time_limit=env.task.max_steps * scenario.episode.dt,
+        duration=0.0,
         breached_birds=0,
         min_zone_clearance=_zone_clearance(env.task),
         peak_components=1,

@@ -5,21 +5,24 @@ Episode score
 -------------
 Every episode gets one score in [0, 1], a weighted sum of five terms, each in [0, 1]::
 
-    score = 0.40 * breach_free                  no bird entered the protected zone
+    score = 0.40 * kept_out                     1 with no breach, else 0.5 * t_breach / T
           + 0.35 * success * (1 - t / (2 T))   the flock reached the goal, sooner is better
           + 0.10 * clearance                    min(1, max(0, d_min / 100 m))
           + 0.10 * contact_free                 no step with the drone within its safety radius
           + 0.05 * cohesion                     lowest share of the flock in its largest group
 
-``t`` is the time to success and ``T`` the episode's time limit (both s, in the record);
+``t`` is the time to success, ``t_breach`` the time the episode ended in a breach and ``T`` the
+episode's time limit (all s, in the record: ``time_to_success``, ``duration``, ``time_limit``);
 ``d_min`` is the record's ``min_zone_clearance``: the smallest signed distance of any bird to the
 protected zone over the episode (m). After a breach the success and clearance terms are 0. An
 episode that ended in an error scores 0.
 
 Why these terms and weights. A bird in the protected zone is the hazard the whole task exists to
-prevent, so ``breach_free`` carries the largest weight and a breach forfeits success and
-clearance too: a breached episode can collect at most 0.10 + 0.05 = 0.15, below the 0.40 that
-every breach-free episode starts from, so any breach ranks below any breach-free episode.
+prevent, so ``kept_out`` carries the largest weight and a breach forfeits success and clearance
+too: a breached episode can collect at most 0.40 * 0.5 + 0.10 + 0.05 = 0.35, below the 0.40 that
+every breach-free episode starts from, so any breach ranks below any breach-free episode. Among
+breaches, a later one scores higher: it leaves the airfield more time for its other measures
+(runway holds, pyrotechnics), and it keeps the score continuous where every control fails.
 Turning the flock is the job, so success carries the next largest weight; a success is worth at
 least half of it however late it comes (a turned flock beats one merely held off until the time
 limit), and the other half rewards speed, since a flock turned sooner leaves less time for
@@ -131,8 +134,9 @@ def score_terms(ep: Mapping[str, Any]) -> dict[str, float]:
     speed = 0.0
     if ep["success"] and kept:
         speed = _unit(1.0 - 0.5 * float(ep["time_to_success"]) / float(ep["time_limit"]))
+    delay = 0.5 * _unit(float(ep["duration"]) / float(ep["time_limit"]))
     return {
-        "breach_free": float(kept),
+        "breach_free": 1.0 if kept else delay,
         "success_speed": speed,
         "clearance": _unit(float(ep["min_zone_clearance"]) / CLEARANCE_SCALE) if kept else 0.0,
         "contact_free": float(ep["collision_steps"] == 0),
@@ -402,9 +406,9 @@ def _params(changed: Mapping[str, Any]) -> str:
 
 
 SCORE_NOTE = (
-    "Score per episode = 0.40 breach-free + 0.35 success x (1 - t/2T) + 0.10 zone clearance "
-    f"(min(1, d/{CLEARANCE_SCALE:g} m); both 0 after a breach) + 0.10 no drone-bird contact + 0.05 "
-    "lowest largest-group share; an error scores 0. IQM of all episodes with a 95 % stratified "
+    "Score per episode = 0.40 kept out (1, or 0.5 t_breach/T after a breach) + 0.35 success x "
+    f"(1 - t/2T) + 0.10 zone clearance (min(1, d/{CLEARANCE_SCALE:g} m); both 0 after a breach) "
+    "+ 0.10 no drone-bird contact + 0.05 lowest largest-group share; an error scores 0. IQM of all episodes with a 95 % stratified "
     "bootstrap CI (episodes resampled within each scenario family)."
 )
 

@@ -122,13 +122,15 @@ def _is_num(v: object) -> TypeGuard[int | float]:
 
 def _score_fields_problem(ep: dict[str, Any]) -> str | None:
     """Why the fields the score added after the first result files are missing or bad, or None."""
-    for key in ("min_zone_clearance", "time_limit"):
+    for key in ("min_zone_clearance", "time_limit", "duration"):
         if key not in ep:
             return f"has no {key!r} (written before the score used it); re-run the controller"
     if not _is_num(ep["min_zone_clearance"]):
         return "has 'min_zone_clearance' that is not a finite number (m)"
     if not (_is_num(ep["time_limit"]) and ep["time_limit"] > 0):
         return "has 'time_limit' that is not a positive number (s)"
+    if not (_is_num(ep["duration"]) and 0 <= ep["duration"] <= ep["time_limit"] + 1e-9):
+        return "has 'duration' that is not a number in [0, time_limit] (s)"
     return None
 
 
