@@ -408,8 +408,9 @@ def _params(changed: Mapping[str, Any]) -> str:
 SCORE_NOTE = (
     "Score per episode = 0.40 kept out (1, or 0.5 t_breach/T after a breach) + 0.35 success x "
     f"(1 - t/2T) + 0.10 zone clearance (min(1, d/{CLEARANCE_SCALE:g} m); both 0 after a breach) "
-    "+ 0.10 no drone-bird contact + 0.05 lowest largest-group share; an error scores 0. IQM of all episodes with a 95 % stratified "
-    "bootstrap CI (episodes resampled within each scenario family)."
+    "+ 0.10 no drone-bird contact + 0.05 lowest largest-group share; an error scores 0. IQM of "
+    "all episodes with a 95 % stratified bootstrap CI (episodes resampled within each scenario "
+    "family)."
 )
 
 
