@@ -22,8 +22,8 @@ demo: $(STAMP)
 	$(BIN)/flockward demo
 
 test: $(STAMP)
-	$(BIN)/ruff check envs baselines tests examples
-	$(BIN)/ruff format --check envs baselines tests examples
+	$(BIN)/ruff check envs baselines tests examples scripts
+	$(BIN)/ruff format --check envs baselines tests examples scripts
 	$(BIN)/mypy
 	$(BIN)/python -m pytest -q
 
@@ -32,14 +32,14 @@ soak: $(STAMP)
 	$(BIN)/python -m pytest -q -m expensive
 
 lint: $(STAMP)
-	$(BIN)/ruff check envs baselines tests examples
+	$(BIN)/ruff check envs baselines tests examples scripts
 
 type: $(STAMP)
 	$(BIN)/mypy
 
 format: $(STAMP)
-	$(BIN)/ruff format envs baselines tests examples
-	$(BIN)/ruff check --fix envs baselines tests examples
+	$(BIN)/ruff format envs baselines tests examples scripts
+	$(BIN)/ruff check --fix envs baselines tests examples scripts
 
 bench: $(STAMP)
 	$(BIN)/flockward bench
@@ -60,7 +60,7 @@ results: $(STAMP)
 		--axis push_distance=10:70:7 --axis flock.count=10,30,50,100 --seeds 20 \
 		--name envelope-push-count --workers 2
 	$(BIN)/flockward bench > results/bench.tmp && mv results/bench.tmp results/bench.txt
-	$(BIN)/flockward verify
+	$(BIN)/flockward verify; status=$$?; $(BIN)/python scripts/readme_tables.py; exit $$status
 
 clean:
 	rm -rf $(VENV) build dist .pytest_cache .ruff_cache
