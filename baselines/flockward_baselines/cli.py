@@ -7,6 +7,7 @@ To add a subcommand, write ``_cmd_NAME(args) -> int`` and register its parser in
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import os
 import sys
 from collections.abc import Callable, Iterator, Sequence
@@ -517,12 +518,47 @@ def _cmd_train(args: argparse.Namespace) -> int:
 
     try:
         config = load_train_config(args.config)
-        out = Path(args.out) if args.out else Path("runs") / config.name
+        name = config.name
+        if args.seed is not None:
+            if args.seed < 0:
+                raise ValueError(f"--seed {args.seed}: must be an integer >= 0")
+            config = dataclasses.replace(config, seed=args.seed)
+            name = f"{config.name}-s{args.seed}"
+        out = Path(args.out) if args.out else Path("runs") / name
         final = train(config, out, resume=args.resume, progress=not args.quiet)
     except (ConfigError, ValueError) as exc:
         print(" ".join(str(exc).split()), file=sys.stderr)
         return EXIT_INVALID
     print(f"model written to {final}; curve and logs in {final.parent}")
+    return EXIT_OK
+
+
+def _cmd_curves(args: argparse.Namespace) -> int:
+    """Summarise the learning curves of several training runs: mean and 95 % interval."""
+    from flockward_baselines.curves import read_curve, summarise_seeds, write_seed_summary
+
+    runs = []
+    for folder in args.runs:
+        points = read_curve(Path(folder) / "curve.csv")
+        if not points:
+            print(f"{folder}: no curve.csv (a training run directory?)", file=sys.stderr)
+            return EXIT_INVALID
+        runs.append(points)
+    rows = summarise_seeds(runs)
+    if not rows:
+        print("the runs share no curve point (different curve_every?)", file=sys.stderr)
+        return EXIT_INVALID
+    out = Path(args.out)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    csv_path, png_path = out.with_suffix(".csv"), out.with_suffix(".png")
+    write_seed_summary(csv_path, png_path, rows, args.title or out.stem)
+    last = rows[-1]
+    print(
+        f"{len(runs)} runs, {len(rows)} shared points; at {last['simulator_steps']:,.0f} "
+        f"simulator steps: success {last['success_mean']:.2f} [{last['success_low']:.2f}, "
+        f"{last['success_high']:.2f}], breach-free {last['breach_free_mean']:.2f} -> "
+        f"{csv_path}, {png_path}"
+    )
     return EXIT_OK
 
 
@@ -751,6 +787,18 @@ def build_parser() -> argparse.ArgumentParser:
     )  # fmt: skip
     sweep.set_defaults(handler=_cmd_sweep)
 
+    curves = sub.add_parser(
+        "curves",
+        help="mean learning curve over training seeds, with a 95 % interval",
+        description="Read curve.csv of several training runs (one per seed), average each "
+        "run's success and breach-free rates over its scenarios, and write their mean over the "
+        "runs with a Student-t 95 % interval against simulator steps as OUT.csv and OUT.png.",
+    )
+    curves.add_argument("runs", nargs="+", metavar="RUN_DIR", help="training run directory")
+    curves.add_argument("--out", required=True, help="output path without suffix")
+    curves.add_argument("--title", help="figure title (default: the file name)")
+    curves.set_defaults(handler=_cmd_curves)
+
     audit = sub.add_parser(
         "audit",
         help="replay a sample of a result file's episodes and compare",
@@ -826,6 +874,9 @@ def build_parser() -> argparse.ArgumentParser:
     train.add_argument("--config", required=True, help="training config TOML")
     train.add_argument("--out", help="run directory (default runs/<config name>)")
     train.add_argument("--resume", action="store_true", help="continue from the last checkpoint")
+    train.add_argument(
+        "--seed", type=int, help="training seed in place of the config's (default out dir gets -sN)"
+    )
     train.add_argument("--quiet", action="store_true", help="no progress bar")
     train.set_defaults(handler=_cmd_train)
     verify = sub.add_parser(

@@ -118,3 +118,97 @@ def read_curve(path: Path) -> list[CurvePoint]:
             )
             for r in csv.DictReader(handle)
         ]
+
+
+# ---------------------------------------------------------------------------------------------
+# Several training seeds: mean and 95 % interval.
+
+SUMMARY_COLUMNS = (
+    "timesteps",
+    "simulator_steps",
+    "seeds",
+    "success_mean",
+    "success_low",
+    "success_high",
+    "breach_free_mean",
+    "breach_free_low",
+    "breach_free_high",
+)
+
+
+def run_rates(points: Sequence[CurvePoint]) -> dict[int, tuple[int, float, float]]:
+    """One run's rates averaged over its scenarios, by timesteps: (simulator steps, success,
+    breach-free)."""
+    grouped: dict[int, list[CurvePoint]] = {}
+    for p in points:
+        grouped.setdefault(p.timesteps, []).append(p)
+    return {
+        t: (
+            max(p.simulator_steps for p in ps),
+            float(np.mean([p.success_rate for p in ps])),
+            float(np.mean([p.breach_free_rate for p in ps])),
+        )
+        for t, ps in sorted(grouped.items())
+    }
+
+
+def _interval(values: Sequence[float]) -> tuple[float, float, float]:
+    """Mean and Student-t 95 % interval of the mean (the mean twice for a single value)."""
+    from scipy import stats
+
+    x = np.asarray(values, dtype=float)
+    mean = float(x.mean())
+    if len(x) < 2:
+        return mean, mean, mean
+    half = float(stats.t.ppf(0.975, len(x) - 1) * x.std(ddof=1) / np.sqrt(len(x)))
+    return mean, mean - half, mean + half
+
+
+def summarise_seeds(runs: Sequence[Sequence[CurvePoint]]) -> list[dict[str, float]]:
+    """Rows of SUMMARY_COLUMNS at every curve point all runs share: the mean over seeds of each
+    run's scenario-averaged rates, with a 95 % interval over seeds."""
+    rates = [run_rates(points) for points in runs]
+    shared = sorted(set.intersection(*(set(r) for r in rates))) if rates else []
+    rows = []
+    for t in shared:
+        success = _interval([r[t][1] for r in rates])
+        kept = _interval([r[t][2] for r in rates])
+        rows.append(
+            dict(zip(SUMMARY_COLUMNS, (t, max(r[t][0] for r in rates), len(rates), *success,
+                                       *kept), strict=True))
+        )  # fmt: skip
+    return rows
+
+
+def write_seed_summary(csv_path: Path, png_path: Path, rows: Sequence[dict[str, float]],
+                       title: str) -> None:  # fmt: skip
+    """The summary as CSV and as a figure of both rates against simulator steps with bands."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    with atomic_path(csv_path) as tmp, tmp.open("w", newline="") as handle:
+        writer = csv.DictWriter(handle, fieldnames=SUMMARY_COLUMNS)
+        writer.writeheader()
+        writer.writerows(rows)
+    fig = Figure(figsize=(7.0, 4.0), dpi=120)
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot(1, 1, 1)
+    steps = np.array([r["simulator_steps"] for r in rows]) / 1e6
+    for key, label, colour in (("success", "success", "tab:green"),
+                               ("breach_free", "breach-free", "tab:blue")):  # fmt: skip
+        ax.plot(steps, [r[f"{key}_mean"] for r in rows], color=colour, label=f"{label} (mean)")
+        low = [r[f"{key}_low"] for r in rows]
+        high = [r[f"{key}_high"] for r in rows]
+        ax.fill_between(
+            steps, low, high, color=colour, alpha=0.2, linewidth=0, label=f"{label} 95 % interval"
+        )
+    seeds = int(rows[0]["seeds"]) if rows else 0
+    ax.set_title(f"{title}: {seeds} training seeds", fontsize=10)
+    ax.set_xlabel("simulator steps (millions, summed over the training worlds)")
+    ax.set_ylabel("share of curve episodes (mean over scenarios)")
+    ax.set_ylim(-0.02, 1.02)
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize=8, loc="lower right")
+    fig.tight_layout()
+    with atomic_path(png_path) as tmp:
+        fig.savefig(tmp, format="png")
