@@ -19,6 +19,7 @@ from typing import TYPE_CHECKING, Any, TypedDict
 
 import numpy as np
 
+from flockward.sim.types import EpisodeParams
 from flockward.task.registration import ENV_ID
 
 if TYPE_CHECKING:
@@ -36,9 +37,10 @@ SIM_SIZES = ((1, 50), (64, 50), (16, 300), (1, 2000))
 SCALING_SIZES = (250, 500, 1000, 2000)  # birds in one murmuration world
 SCALING_WARMUP = 5  # steps before timing, so the flock has left its initial formation
 BENCH_THREADS = 2  # the thread count the scaling figure compares with one thread
-# Control steps per policy decision for the per-decision figure; 1 until the environment holds
-# actions for several steps (then pass its default decision interval here).
-CONTROL_STEPS_PER_DECISION = 1
+# Control steps per policy decision for the per-decision figures: the environment's default.
+CONTROL_STEPS_PER_DECISION = EpisodeParams().decision_steps
+PPO_PER_CONTROL_STEP = f"{ENV_ID}, 1 step/decision"
+PPO_DEFAULT = f"{ENV_ID}, {CONTROL_STEPS_PER_DECISION} steps/decision"
 NEIGHBOUR_SEARCHES = ("auto", "all-pairs", "grid")
 
 # What scaling_table returns. Its "table" holds one list per column: "N" (flock sizes), one per
@@ -336,8 +338,12 @@ def ppo_rates(worlds: int = 16, timesteps: int = 16 * 256, repeats: int = 3) -> 
 
     torch.set_num_threads(1)
     envs = {
-        # one decision per control step: an env step costs what CartPole's costs the trainer
-        ENV_ID: make_vec_env(num_envs=worlds, seed=0, scenario="headon", decision_steps=1),
+        # One decision per control step (an env step costs the simulator what CartPole's costs),
+        # and the default decision interval (what training pays per decision).
+        PPO_PER_CONTROL_STEP: make_vec_env(
+            num_envs=worlds, seed=0, scenario="headon", decision_steps=1
+        ),
+        PPO_DEFAULT: make_vec_env(num_envs=worlds, seed=0, scenario="headon"),
         "CartPole-v1": sb3_make_vec_env("CartPole-v1", n_envs=worlds, seed=0),
     }
     out: dict[str, float] = {}
@@ -652,11 +658,11 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
     results["step_split_2000"] = split
 
     if not quick:
-        emit("\nPPO (MlpPolicy, CPU, 16 worlds, same hyperparameters), steps/s:")
+        emit("\nPPO (MlpPolicy, CPU, 16 worlds, same hyperparameters), decisions/s:")
         ppo = ppo_rates()
         for name, rate in ppo.items():
-            emit(f"  {name:<24} {rate:10,.0f}")
-        ratio = ppo[ENV_ID] / ppo["CartPole-v1"]
-        emit(f"  flockward / CartPole:      {ratio:6.2f}")
+            emit(f"  {name:<40} {rate:10,.0f}")
+        for name in (PPO_PER_CONTROL_STEP, PPO_DEFAULT):
+            emit(f"  {name} / CartPole: {ppo[name] / ppo['CartPole-v1']:6.2f}")
         results["ppo"] = ppo
     return results
