@@ -164,15 +164,21 @@ def _interval(values: Sequence[float]) -> tuple[float, float, float]:
     return mean, mean - half, mean + half
 
 
+def _clipped(interval: tuple[float, float, float]) -> tuple[float, float, float]:
+    mean, low, high = interval
+    return mean, max(0.0, low), min(1.0, high)
+
+
 def summarise_seeds(runs: Sequence[Sequence[CurvePoint]]) -> list[dict[str, float]]:
     """Rows of SUMMARY_COLUMNS at every curve point all runs share: the mean over seeds of each
-    run's scenario-averaged rates, with a 95 % interval over seeds."""
+    run's scenario-averaged rates, with a 95 % interval over seeds clipped to [0, 1] (a rate
+    cannot leave it; with few seeds the t interval can)."""
     rates = [run_rates(points) for points in runs]
     shared = sorted(set.intersection(*(set(r) for r in rates))) if rates else []
     rows = []
     for t in shared:
-        success = _interval([r[t][1] for r in rates])
-        kept = _interval([r[t][2] for r in rates])
+        success = _clipped(_interval([r[t][1] for r in rates]))
+        kept = _clipped(_interval([r[t][2] for r in rates]))
         rows.append(
             dict(zip(SUMMARY_COLUMNS, (t, max(r[t][0] for r in rates), len(rates), *success,
                                        *kept), strict=True))
