@@ -164,7 +164,8 @@ def step_split(birds: int = 2000, repeats: int = 5, seconds: float = 0.3) -> dic
     bookkeeping) is the difference."""
     from flockward.task.vector_env import DivertVectorEnv
 
-    overrides = {"flock.count": birds, "episode.max_steps": 10**6}
+    # One control step per env step, so the env step and the kernel cover the same simulated time.
+    overrides = {"flock.count": birds, "episode.max_steps": 10**6, "episode.decision_steps": 1}
     env = DivertVectorEnv(1, "murmuration", overrides=overrides)
     env.reset(seed=0)
     action = np.zeros((1, 2))
