@@ -68,7 +68,8 @@ def test_cli_run_with_ray(
 ) -> None:
     args = ["run", "--suite", "smoke", "--controller", "idle", "--results", str(tmp_path)]
     assert main([*args, "--ray"]) == 0
-    assert capsys.readouterr().out.startswith("idle on smoke v2: 8/8 episodes")
+    version = load_suite("smoke").version
+    assert capsys.readouterr().out.startswith(f"idle on smoke v{version}: 8/8 episodes")
     assert _episodes(tmp_path / "smoke" / "idle.json") == _episodes(pool_runs["idle"])
     assert local_ray.is_initialized()  # Ray was already running, so the command left it so
 

@@ -57,6 +57,7 @@ __all__ = [
     "ControllerFactory",
     "ResultsBusy",
     "ResultsConflict",
+    "collect_rows",
     "controller_slug",
     "play_row",
     "play_rows",
@@ -392,20 +393,36 @@ def _play_pending(
     if limit is not None:
         pending = pending[:limit]
 
+    scenarios = suite.scenarios
+    calls = [
+        (controller_factory, scenarios[spec.scenario_name], spec, environment) for spec in pending
+    ]
+    bar = progress_bar(len(specs), len(done), f"{suite.name}/{path.stem}", progress)
+    collect_rows(calls, data, path, workers, backend, bar)
+
+
+def collect_rows(
+    calls: list[tuple[Any, ...]],
+    data: dict[str, Any],
+    path: Path,
+    workers: int,
+    backend: Backend | None,
+    bar: _ProgressBar,
+    shape: Callable[[dict[str, Any]], dict[str, Any]] = lambda row: row,
+) -> None:
+    """Play ``calls`` and add each finished row, through ``shape``, to ``data["episodes"]``,
+    rewriting the file at ``path`` every few rows and at the end (sorted by index), so an
+    interrupted run keeps what it finished. Shared by suites and sweeps."""
+
     def save() -> None:
         data["episodes"].sort(key=lambda row: row["index"])
         write_results(path, data)
 
-    scenarios = suite.scenarios
-    bar = progress_bar(len(specs), len(done), f"{suite.name}/{path.stem}", progress)
-    unsaved, last_save = 0, time.monotonic()
-    calls = [
-        (controller_factory, scenarios[spec.scenario_name], spec, environment) for spec in pending
-    ]
     rows = play_rows(calls, workers) if backend is None else backend(play_row, calls)
+    unsaved, last_save = 0, time.monotonic()
     try:
         for row in rows:
-            data["episodes"].append(row)
+            data["episodes"].append(shape(row))
             unsaved += 1
             bar.update(1)
             if unsaved >= SAVE_EVERY or time.monotonic() - last_save > SAVE_INTERVAL:

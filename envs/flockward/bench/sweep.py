@@ -18,7 +18,6 @@ from __future__ import annotations
 
 import json
 import math
-import time
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -28,16 +27,13 @@ import numpy as np
 from scipy.stats import binomtest
 
 from flockward.bench.evaluation import (
-    SAVE_EVERY,
-    SAVE_INTERVAL,
     Backend,
     ControllerFactory,
-    play_row,
-    play_rows,
+    collect_rows,
     progress_bar,
     provenance,
 )
-from flockward.bench.results import read_json, write_results, writer_lock
+from flockward.bench.results import read_json, writer_lock
 from flockward.bench.suites import EpisodeSpec
 from flockward.config.files import ConfigError
 from flockward.config.hashing import scenario_hash
@@ -235,31 +231,14 @@ def _play(
     backend: Backend | None,
     progress: bool,
 ) -> None:
-    """Play ``calls``, adding each row (with its cell) to ``data``, saving as rows come."""
+    """Play ``calls``, adding each row (with its cell in place of the family) to ``data``."""
 
-    def save() -> None:
-        data["episodes"].sort(key=lambda row: row["index"])
-        write_results(path, data)
+    def with_cell(row: dict[str, Any]) -> dict[str, Any]:
+        row.pop("family", None)
+        return {"cell": cell_of[row["index"]], **row}
 
     bar = progress_bar(len(calls), 0, f"sweep {path.stem}", progress)
-    rows = play_rows(calls, workers) if backend is None else backend(play_row, calls)
-    unsaved, last_save = 0, time.monotonic()
-    try:
-        for row in rows:
-            row.pop("family", None)
-            data["episodes"].append({"cell": cell_of[row["index"]], **row})
-            unsaved += 1
-            bar.update(1)
-            if unsaved >= SAVE_EVERY or time.monotonic() - last_save > SAVE_INTERVAL:
-                save()
-                unsaved, last_save = 0, time.monotonic()
-    finally:
-        bar.close()
-        if unsaved or not path.exists():
-            save()
-        close = getattr(rows, "close", None)
-        if callable(close):
-            close()
+    collect_rows(calls, data, path, workers, backend, bar, with_cell)
 
 
 # ---------------------------------------------------------------------------------------------
