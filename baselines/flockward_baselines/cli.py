@@ -657,13 +657,7 @@ def build_parser() -> argparse.ArgumentParser:
         help="controller name or module:Name (default boundary-arc, unless --model)",
     )
     show.add_argument("--model", help="a Stable-Baselines3 model .zip to play instead")
-    show.add_argument(
-        "--param",
-        action="append",
-        default=[],
-        metavar="KEY=VALUE",
-        help="controller constructor argument (repeatable)",
-    )
+    _add_param_option(show, "controller constructor argument (repeatable)")
     show.add_argument("--seed", type=int, default=0, help="episode seed")
     show.add_argument(
         "--out", default="episode.gif", help="output file: .gif, or a still as .png, .svg, .pdf"
@@ -716,12 +710,8 @@ def build_parser() -> argparse.ArgumentParser:
         help="play the episodes as Ray tasks: on a new local Ray instance, or on the running "
         "cluster at ADDRESS (HEAD:6379); results are written on this machine (needs the ray extra)",
     )
-    run.add_argument(
-        "--param",
-        action="append",
-        default=[],
-        metavar="KEY=VALUE",
-        help="controller constructor argument; numbers and true/false are parsed (repeatable)",
+    _add_param_option(
+        run, "controller constructor argument; numbers and true/false are parsed (repeatable)"
     )
     run.add_argument(
         "--label",
@@ -766,10 +756,7 @@ def build_parser() -> argparse.ArgumentParser:
     sweep.add_argument(
         "--controller", default="boundary-arc", help="controller name or module:Name"
     )
-    sweep.add_argument(
-        "--param", action="append", default=[], metavar="KEY=VALUE",
-        help="a fixed controller argument (repeatable)",
-    )  # fmt: skip
+    _add_param_option(sweep, "a fixed controller argument (repeatable)")
     sweep.add_argument("--seeds", type=int, default=20, help="episodes per cell (default 20)")
     sweep.add_argument("--first-seed", type=int, default=5000, help="first seed (default 5000)")
     sweep.add_argument("--name", help="file stem (default: from the axes)")
@@ -781,10 +768,7 @@ def build_parser() -> argparse.ArgumentParser:
     sweep.add_argument(
         "--format", choices=("markdown", "csv", "json"), default="markdown", help="table format"
     )
-    sweep.add_argument(
-        "--figure", action="append", choices=("png", "svg", "pdf"), default=None,
-        help="figure formats (default png; repeatable)",
-    )  # fmt: skip
+    _add_figure_option(sweep, "figure formats")
     sweep.set_defaults(handler=_cmd_sweep)
 
     curves = sub.add_parser(
@@ -838,10 +822,7 @@ def build_parser() -> argparse.ArgumentParser:
     board.add_argument(
         "--profiles", metavar="PNG", help="also draw every row's performance profile to PNG"
     )
-    board.add_argument(
-        "--figure", action="append", choices=("png", "svg", "pdf"), default=None,
-        help="chart formats (default png; repeatable)",
-    )  # fmt: skip
+    _add_figure_option(board, "chart formats")
     board.set_defaults(handler=_cmd_board)
 
     compare = sub.add_parser(
@@ -918,6 +899,22 @@ def kernels_cached() -> bool:
         return False
     cache = Path(spec.origin).parent / "__pycache__"
     return any(cache.glob("dynamics._step_worlds-*.nbi"))
+
+
+def _add_param_option(parser: argparse.ArgumentParser, help_text: str) -> None:
+    """The repeatable ``--param KEY=VALUE`` (controller constructor arguments)."""
+    parser.add_argument("--param", action="append", default=[], metavar="KEY=VALUE", help=help_text)
+
+
+def _add_figure_option(parser: argparse.ArgumentParser, what: str) -> None:
+    """The repeatable ``--figure png|svg|pdf`` (figure formats, PNG when none is given)."""
+    parser.add_argument(
+        "--figure",
+        action="append",
+        choices=("png", "svg", "pdf"),
+        default=None,
+        help=f"{what} (default png; repeatable)",
+    )
 
 
 def main(argv: Sequence[str] | None = None) -> int:
