@@ -134,6 +134,7 @@ def _record(success: bool, fraction: float, breached: int) -> EpisodeRecord:
         0.0,
         min_zone_clearance=-1.0 if breached else 20.0,
         time_limit=150.0,
+        duration=1.0,
     )
 
 

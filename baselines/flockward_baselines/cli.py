@@ -773,7 +773,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     curves = sub.add_parser(
         "curves",
-        help="mean learning curve over training seeds, with a 95 % interval",
+        help="mean learning curve over training seeds, with a 95 %% interval",
         description="Read curve.csv of several training runs (one per seed), average each "
         "run's success and breach-free rates over its scenarios, and write their mean over the "
         "runs with a Student-t 95 % interval against simulator steps as OUT.csv and OUT.png.",
