@@ -14,6 +14,8 @@ ROOT = Path(__file__).resolve().parents[1]
 BUDGETS = {
     "own_controller.py": ["--episodes", "1"],
     "custom_scenario.py": ["--steps", "200"],
+    "train_sb3.py": ["--timesteps", "4096", "--episodes", "1"],
+    "compare_two.py": ["--seeds", "2"],
 }
 
 
