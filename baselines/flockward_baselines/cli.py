@@ -173,7 +173,10 @@ def _cmd_show(args: argparse.Namespace) -> int:
     label = f"{name}, seed {args.seed}"
     print(f"drawing {out} ({len(frames)} frames)...", file=sys.stderr, flush=True)
     if out.suffix.lower() == ".gif":
-        episode_animation(scenario, frames, out, label=label)
+        # Frames are recorded once per decision: keep every one when a decision spans several
+        # control steps, so the animation does not run faster than needed.
+        stride = 1 if scenario.episode.decision_steps > 1 else 2
+        episode_animation(scenario, frames, out, label=label, stride=stride)
     else:
         episode_still(scenario, frames, out, label=label)
     print(
