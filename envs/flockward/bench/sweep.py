@@ -24,7 +24,6 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-from scipy.stats import binomtest
 
 from flockward.bench.evaluation import (
     Backend,
@@ -34,6 +33,7 @@ from flockward.bench.evaluation import (
     provenance,
 )
 from flockward.bench.results import read_json, writer_lock
+from flockward.bench.statistics import wilson_interval
 from flockward.bench.suites import EpisodeSpec
 from flockward.config.files import ConfigError
 from flockward.config.hashing import scenario_hash
@@ -259,8 +259,8 @@ class Rate:
         """The rate and interval of k successes in n trials (n = 0 gives [0, 1])."""
         if n == 0:
             return cls(0, 0, 0.0, 1.0)
-        ci = binomtest(k, n).proportion_ci(method="wilson")
-        return cls(k, n, float(ci.low), float(ci.high))
+        low, high = wilson_interval(k, n)
+        return cls(k, n, low, high)
 
     @property
     def value(self) -> float:
