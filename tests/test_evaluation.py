@@ -516,3 +516,22 @@ def test_records_carry_zone_clearance_and_time_limit(tiny: Path, tmp_path: Path)
             assert 250.0 < ep["min_zone_clearance"] < 450.0
         if ep["breached_birds"] > 0:
             assert ep["min_zone_clearance"] < 0.0
+
+
+def test_board_audits_before_ranking(
+    tiny: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    run = ["run", "--suite", str(tiny), "--controller", "idle", "--results", str(tmp_path)]
+    assert main(run) == 0
+    board = ["board", "--suite", str(tiny), "--results", str(tmp_path), "--audit", "6"]
+    capsys.readouterr()
+    assert main(board) == 0
+    out, err = capsys.readouterr()
+    assert out.startswith("# flockward leaderboard") and "6 of 6 episodes replayed" in err
+    path = tmp_path / "tiny" / "idle.json"
+    data = json.loads(path.read_text())
+    data["episodes"][0]["breached_birds"] += 1
+    path.write_text(json.dumps(data))
+    assert main(board) == 1
+    out, err = capsys.readouterr()
+    assert out == "" and "not ranked, an audit failed" in err

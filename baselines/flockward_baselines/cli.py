@@ -11,7 +11,7 @@ import dataclasses
 import os
 import sys
 from collections.abc import Callable, Iterator, Sequence
-from contextlib import contextmanager
+from contextlib import contextmanager, redirect_stdout
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -330,6 +330,10 @@ def _cmd_board(args: argparse.Namespace) -> int:
     except LeaderboardError as exc:
         print(exc, file=sys.stderr)
         return EXIT_INVALID
+    if args.audit is not None:
+        status = _audit_board(args, board.suite)
+        if status != EXIT_OK:
+            return status
     print(board.render(args.format, families=args.families), end="")
     written = board.write(args.results, args.figure or ["png"])
     if args.profiles:
@@ -338,6 +342,25 @@ def _cmd_board(args: argparse.Namespace) -> int:
         written += (write_profiles([by_name[n] for n in names], names, args.profiles),)
     print(f"wrote {', '.join(str(p) for p in written)}", file=sys.stderr)
     return EXIT_OK
+
+
+def _audit_board(args: argparse.Namespace, suite_name: str) -> int:
+    """``board --audit K``: replay K episodes of every result file before ranking them."""
+    from flockward.bench.leaderboard import OUTPUT_STEM
+
+    files = sorted(
+        str(p)
+        for p in (Path(args.results) / suite_name).glob("*.json")
+        if not p.name.startswith(OUTPUT_STEM)
+    )
+    audit_args = argparse.Namespace(
+        files=files, sample=args.audit, seed=0, suite=args.suite, models=args.models
+    )
+    with redirect_stdout(sys.stderr):  # stdout carries the table alone
+        status = _cmd_audit(audit_args)
+    if status != EXIT_OK:
+        print("board: not ranked, an audit failed (see above)", file=sys.stderr)
+    return status
 
 
 def _cmd_compare(args: argparse.Namespace) -> int:
@@ -826,6 +849,16 @@ def build_parser() -> argparse.ArgumentParser:
         "--profiles", metavar="PNG", help="also draw every row's performance profile to PNG"
     )
     _add_figure_option(board, "chart formats")
+    board.add_argument(
+        "--audit",
+        type=int,
+        metavar="K",
+        help="first replay K episodes of every result file (as flockward audit) and rank only "
+        "if all match",
+    )
+    board.add_argument(
+        "--models", default="results/models", help="saved models for --audit (default %(default)s)"
+    )
     board.set_defaults(handler=_cmd_board)
 
     compare = sub.add_parser(
