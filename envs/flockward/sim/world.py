@@ -153,10 +153,11 @@ class World:
                 n = int(self.state.count[b])
                 self._noise[b, :, :n] = self.rngs[b].standard_normal((self._block_rows, n, 2))
                 self._noise_row[b] = 0
-        for b in np.flatnonzero(live):
-            gusts = self.gusts[b]
-            if gusts is not None:
-                self.wind[b] = self.steady_wind + gusts.next(self.substeps) @ self._wind_axes.T
+        if self.scenario.wind.turbulence != "none":  # still air and steady wind: nothing to draw
+            for b in np.flatnonzero(live):
+                gusts = self.gusts[b]
+                if gusts is not None:
+                    self.wind[b] = self.steady_wind + gusts.next(self.substeps) @ self._wind_axes.T
         s = self.state
         step_worlds(
             s.bird_pos,
