@@ -47,12 +47,18 @@ bench: $(STAMP)
 # Regenerate every committed result with the shipped commands (tens of minutes on 2 cores): the
 # standard suite played by each scripted baseline, its leaderboard, the herding envelope sweep,
 # the bench figures and the verification report (last: it exits non-zero when a check fails).
-# Run it after any change to dynamics, reward, observation or a suite.
+# Run it after any change to dynamics, reward, observation or a suite. The committed models
+# (results/models/*.zip) are played as they are: retrain them first when the change breaks them
+# (`flockward train --config configs/train/ppo-standard.toml --seed S`, then copy model.zip).
 BOARD_CONTROLLERS := boundary-arc collect-drive direct-pursuit idle no-drone
 results: $(STAMP)
 	rm -f $(addprefix results/standard/,$(addsuffix .json,$(BOARD_CONTROLLERS)))
+	rm -f results/standard/model-*.json
 	for c in $(BOARD_CONTROLLERS); do \
 		$(BIN)/flockward run --suite standard --controller $$c --workers 2 || exit 1; \
+	done
+	for m in results/models/*.zip; do \
+		$(BIN)/flockward run --suite standard --model $$m --workers 2 || exit 1; \
 	done
 	$(BIN)/flockward board --suite standard
 	rm -f results/sweeps/envelope-push-count.json
