@@ -296,9 +296,9 @@ def information_label(level: str, sensors: Sequence[str] = ()) -> str:
     """What an entry saw: its information level, and when any of the suite's scenarios senses
     imperfectly (``sensors``: their sensors' names, ``SensorParams.name``), through what.
 
-    Observation-level entries saw the birds through the scenarios' sensors, state-level ones
-    the truth: ``observation (ground-radar)``, ``state (truth)``. With only perfect sensors the
-    level alone, as before sensors existed.
+    Observation- and sensed-level entries saw the birds through the scenarios' sensors,
+    state-level ones the truth: ``observation (ground-radar)``, ``sensed (ground-radar)``,
+    ``state (truth)``. With only perfect sensors the level alone, as before sensors existed.
     """
     names = sorted(set(sensors))
     if not names or names == ["perfect"]:
@@ -536,6 +536,7 @@ def render_json(rows: Sequence[Mapping[str, Any]], keys: Sequence[str] = ROW_KEY
 _LEVEL_STYLE = {  # information level -> (colour, marker)
     "observation": ("#1b7f79", "o"),
     "state": ("#c8553d", "D"),
+    "sensed": ("#6a4c93", "^"),
 }
 
 
