@@ -9,15 +9,19 @@ import numpy as np
 import pytest
 from scipy import stats
 
+from flockward.bench.episode import play_episode
+from flockward.bench.leaderboard import information_label
 from flockward.config.files import ConfigError
 from flockward.config.hashing import scenario_hash
 from flockward.config.reference import reference_rows
 from flockward.config.scenarios import load_scenario, load_sensor
+from flockward.controller import StateView
 from flockward.sim.sensing import Sensor
 from flockward.sim.types import SensorParams, WorldState
 from flockward.task.env import DivertEnv
 from flockward.task.observation import GLOBAL_SIZE, OFFSET, RIM_FIELDS
 from flockward.task.vector_env import DivertVectorEnv
+from flockward_baselines.controllers import BoundaryArc
 
 FIXTURES = Path(__file__).parent / "fixtures"
 RIM_PRESENT = 2  # index of rim_present within one rim bird's entries (offset x, offset y, present)
@@ -297,3 +301,38 @@ def test_schema_lists_every_sensor_key_with_its_meaning() -> None:
     for name in SensorParams.__dataclass_fields__:
         assert rows.get(f"sensor.{name}"), name
     assert "sensor.file" in rows
+
+
+def test_leaderboard_names_what_each_entry_saw() -> None:
+    assert information_label("observation", ["perfect", "perfect"]) == "observation"
+    assert information_label("state", []) == "state"
+    mixed = ["perfect", "ground-radar", "drone-camera"]
+    shown = "observation (drone-camera, ground-radar, perfect)"
+    assert information_label("observation", mixed) == shown
+    assert information_label("sensed", ["ground-radar"]) == "sensed (ground-radar)"
+    assert information_label("state", mixed) == "state (truth)"
+
+
+def test_sensed_controllers_see_the_sensors_birds() -> None:
+    seen: list[int] = []
+
+    class Counting(BoundaryArc):
+        def act(self, observation: object, state: StateView | None) -> np.ndarray:
+            assert state is not None
+            seen.append(len(state.bird_pos))
+            return super().act(observation, state)
+
+    scenario = load_scenario("headon-camera", {"episode.max_steps": 200})
+    play_episode(scenario, Counting(information="sensed"), seed=0)
+    assert seen[0] == 0 and max(seen) > 0  # nothing in the camera's reach at first
+    seen.clear()
+    play_episode(scenario, Counting(), seed=0)
+    assert set(seen) == {50}  # state level: the truth, every bird
+
+
+def test_sensed_level_with_a_perfect_sensor_plays_like_state() -> None:
+    # Regression test: with the perfect sensor "sensed" is the truth, so the episodes agree.
+    scenario = load_scenario("headon", {"episode.max_steps": 300})
+    state_record, _ = play_episode(scenario, BoundaryArc(), seed=3)
+    sensed_record, _ = play_episode(scenario, BoundaryArc(information="sensed"), seed=3)
+    assert state_record == sensed_record
