@@ -55,7 +55,8 @@ def polar_measure(
     d = true_pos - origin
     r = np.hypot(d[:, 0], d[:, 1]) + range_noise * normals[:, 0]
     theta = np.arctan2(d[:, 1], d[:, 0]) + bearing_noise * normals[:, 1]
-    return origin + np.stack([r * np.cos(theta), r * np.sin(theta)], axis=1)
+    sensed: np.ndarray = origin + np.stack([r * np.cos(theta), r * np.sin(theta)], axis=1)
+    return sensed
 
 
 class Sensor:
@@ -94,7 +95,7 @@ class Sensor:
     def step(self, state: WorldState, steps: np.ndarray, live: np.ndarray) -> np.ndarray:
         """Update the live worlds whose update is due after a control step (``steps`` (B,) since
         each reset); return which worlds were updated, (B,) bool."""
-        due = live & (steps % self.update_steps == 0)
+        due: np.ndarray = live & (steps % self.update_steps == 0)
         for b in np.flatnonzero(due):
             self._update(int(b), state, step=int(steps[b]), fresh=False)
         return due
