@@ -392,13 +392,13 @@ class SensorParams:
     existed). Shipped presets: configs/sensors/ (``[sensor] file = "ground-radar"``).
     """
 
-    # the label leaderboards show beside an observation-level entry
+    # the label leaderboards show beside an observation- or sensed-level entry
     name: str = param("perfect", Spec("name"))
     # onboard: on drone 0 (at ground_position in a world without drones); ground: fixed
     position: str = param("onboard", Spec("choice", choices=SENSOR_POSITIONS))
     # where a ground sensor stands (unused onboard)
     ground_position: tuple[float, float] = param((0.0, 0.0), POINT)
-    # birds farther than this (true distance) are never sensed; None = unlimited
+    # birds farther than this (true distance) are never sensed; left out: unlimited
     detection_range: float | None = param(None, positive(100_000.0, "m", opt=True))
     # 1-sigma error of each measured range, Gaussian
     range_noise: float = param(0.0, number(0.0, 1000.0, "m"))
