@@ -16,9 +16,10 @@ import numpy.typing as npt
 
 from flockward.sim.geometry import zone_arrays, zone_center
 from flockward.sim.metrics import StepMetrics, step_metrics
+from flockward.sim.sensing import Sensor
 from flockward.sim.types import Scenario, WorldState
 from flockward.sim.world import World
-from flockward.task.context import Scales, StepContext, TaskSetting
+from flockward.task.context import Scales, SensedView, StepContext, TaskSetting
 from flockward.task.env_config import EnvConfig
 from flockward.task.outcome import Outcome
 from flockward.task.reward import total
@@ -57,6 +58,12 @@ class DivertTask:
         self.scenario = scenario
         self.n_worlds = worlds
         self.world = World(scenario, worlds, config.neighbour_search, drones=config.drones)
+        # What observations see of the birds; None: the truth (the perfect sensor, the default).
+        self.sensor = (
+            None
+            if scenario.sensor.perfect
+            else Sensor(scenario.sensor, worlds, self.world.max_birds, scenario.episode.dt)
+        )
         self.setting = TaskSetting(
             scenario=scenario,
             worlds=worlds,
@@ -94,9 +101,10 @@ class DivertTask:
         """The observation space of one world."""
         return self.observation.space()
 
-    def measure(self) -> StepMetrics:
-        """Flock metrics of every world in the current state (one compiled call)."""
-        s = self.world.state
+    def measure(self, state: WorldState | None = None) -> StepMetrics:
+        """Flock metrics of every world in ``state`` (default: the current true state), in one
+        compiled call."""
+        s = self.world.state if state is None else state
         return step_metrics(
             s.bird_pos,
             s.bird_vel,
@@ -115,6 +123,8 @@ class DivertTask:
         for k, index in enumerate(indices):
             self.world.reset(int(index), None if rngs is None else rngs[k])
             self.ever_inside[index] = False
+            if self.sensor is not None:
+                self.sensor.reset(int(index), self.world.rngs[index], self.world.state)
         self.metrics = self.measure()
         self.ever_inside[indices] |= self.metrics.in_protected[indices]
         none = self._none
@@ -130,12 +140,22 @@ class DivertTask:
             truncated=none,
             new_breaches=np.zeros(self.n_worlds, dtype=np.int64),
             collided=none,
+            sensed=self.sensed(),
         )
         for part in (self.reward, self.observation):
             hook = getattr(part, "reset", None)
             if callable(hook):
                 hook(context, indices)
         return self.observation.build(context)
+
+    def sensed(self) -> SensedView | None:
+        """The sensor's current picture of every world, with its flock metrics; None with the
+        perfect sensor (observations then read the truth)."""
+        if self.sensor is None:
+            return None
+        state, slots = self.sensor.picture(self.world.state)
+        age = self.sensor.age(self.world.steps)
+        return SensedView(self.scenario.sensor, state, self.measure(state), slots, age)
 
     def metrics_info(self) -> dict[str, np.ndarray]:
         """The latest flock metrics that a reset reports in its info."""
@@ -212,6 +232,7 @@ class DivertTask:
             failure=info["outcome"] == Outcome.BREACH,
             truncated=truncated,
             collided=info["collision"],
+            sensed=self.sensed(),
         )
         observation = self.observation.build(context)
         return StepBatch(observation, reward, terminated, truncated, info)
@@ -221,6 +242,8 @@ class DivertTask:
     ) -> tuple[StepContext, dict[str, np.ndarray], dict[str, Any]]:
         """Advance the live worlds by one control step: its context, reward terms and info."""
         self.world.step(action, live)
+        if self.sensor is not None:
+            self.sensor.step(self.world.state, self.world.steps, live)
         before = self.metrics
         m = self.measure()
         self.metrics = m
