@@ -8,6 +8,7 @@ import json
 import math
 from functools import partial
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
@@ -238,8 +239,8 @@ def test_goal_bearing_absent_leaves_hashes_and_episodes_unchanged() -> None:
 
 
 def _speed_plan(name: str, behind: Path) -> SweepPlan:
-    """The drone's top speed across the birds' escape speed, four seeds per cell."""
-    axis = parse_axis("pursuer.max_speed=6,14,22,30")
+    """The drone's top speed from 4 to 44 m/s in steps of 8, across the birds' escape speed."""
+    axis = parse_axis("pursuer.max_speed=4:44:6")
     return SweepPlan(name, str(behind), "boundary-arc", {}, (axis,), (5000, 5003))
 
 
@@ -247,24 +248,31 @@ def test_refinement_adds_cells_only_at_the_edge_and_costs_less(
     behind: Path, tmp_path: Path
 ) -> None:
     # Common practice: a drone slower than the birds' escape speed (18 m/s for gulls) starting
-    # behind them cannot catch them, a faster one can; the map has one edge, between 14 and 22.
+    # behind them cannot catch them, a faster one can: the map has one edge, above 18 m/s.
     plan = _speed_plan("refine", behind)
     path = run_sweep(plan, _factory("boundary-arc"), tmp_path / "r.json", progress=False,
-                     refine=2)  # fmt: skip
+                     refine=3)  # fmt: skip
     data = read_json(path)
-    coarse = {6: "spilled", 14: "spilled", 22: "diverted", 30: "diverted"}
     cells = {s.values["pursuer.max_speed"]: s for s in summarise(data)}
-    assert {v: cells[v].region for v in coarse} == coarse
+    coarse = [cells[v] for v in plan.axes[0].values]
+    assert [c.region for c in coarse[:2]] == ["spilled"] * 2  # 4 and 12 m/s
+    assert [c.region for c in coarse[-2:]] == ["diverted"] * 2  # 36 and 44 m/s
+    edges = [(a, b) for a, b in itertools.pairwise(coarse) if a.region != b.region]
+    assert len(edges) == 1
+    low = float(edges[0][0].values["pursuer.max_speed"])
+    high = float(edges[0][1].values["pursuer.max_speed"])
+    assert high > 18.0  # the edge lies above the birds' escape speed
     added = sorted(v for v, s in cells.items() if s.refined == "cell")
-    assert added and all(14 < v < 22 for v in added)  # only between the cells that disagree
-    assert 18.0 in added  # round 1: the midpoint of 14 and 22
-    assert {cells[v].refined for v in (6, 30)} == {""}  # far from the edge: nothing added
-    # The same resolution everywhere: spacing of the finest refined cells over 6-30 m/s.
+    assert added and all(low < v < high for v in added)  # only between the cells that disagree
+    assert (low + high) / 2 in added  # round 1: their midpoint
+    touched = [v for v, s in cells.items() if s.refined]
+    assert all(low <= v <= high for v in touched)  # far from the edge: nothing added
+    # The same resolution everywhere: the finest spacing refinement reached, over 4-44 m/s.
     values = sorted(cells)
     finest = min(b - a for a, b in itertools.pairwise(values))
-    uniform = (round((30 - 6) / finest) + 1) * 4
+    uniform = (round((44 - 4) / finest) + 1) * 4
     assert len(data["episodes"]) < uniform
-    assert data["refine"] == 2
+    assert data["refine"] == 3
     # The figure and tables name the refined cells.
     from flockward.bench.sweep_report import render_markdown, write_figure
 
@@ -311,3 +319,30 @@ def test_an_interrupted_refinement_resumes_to_the_same_file(behind: Path, tmp_pa
     assert not [r for r in read_json(coarse)["episodes"] if "round" in r]
     run_sweep(plan, _factory("boundary-arc"), coarse, progress=False, refine=1)
     assert read_json(coarse)["episodes"] == rows
+
+
+def test_committed_push_bands_are_the_committed_sweeps() -> None:
+    # Regression test: results/sweeps/envelope-bands.md (copied into the README) is what
+    # scripts/envelope_bands.py makes of the committed sweep files, so no band is typed by hand.
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("bands", ROOT / "scripts" / "envelope_bands.py")
+    assert spec is not None and spec.loader is not None
+    bands = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(bands)
+    assert (ROOT / "results" / "sweeps" / "envelope-bands.md").read_text() == bands.render()
+
+
+def test_push_band_rows_name_the_band_and_its_neighbours() -> None:
+    from flockward.bench.sweep_report import band_rows
+
+    # Hand-made: diverted at 40 and 50 m, split closer, spilled farther; dodge 40 m, alarm 80 m.
+    def cell(push: float, region: str) -> Any:
+        return SimpleNamespace(values={"push_distance": push, "flock.count": 5}, region=region)
+
+    data = {"name": "s", "axes": [{"key": "push_distance"}, {"key": "flock.count"}]}
+    cells = [cell(30.0, "split"), cell(40.0, "diverted"), cell(50.0, "diverted"),
+             cell(60.0, "spilled")]  # fmt: skip
+    assert band_rows(data, cells, 40.0, 80.0) == [
+        ["s", "flock.count = 5", "40-50", "1.00-1.25", "0.50-0.62", "split", "spilled"]
+    ]

@@ -28,8 +28,10 @@ from flockward.config.schema import SCHEMA
 from flockward.sim.types import Scenario
 
 __all__ = [
+    "BAND_HEADER",
     "RADIUS_AXES",
     "axis_label",
+    "band_rows",
     "render_csv",
     "render_json",
     "render_markdown",
@@ -69,6 +71,47 @@ def _rows(summaries: Sequence[CellSummary]) -> list[list[str]]:
              _rate(s.collision), _num(s.median_time), _num(s.clearance), s.region,
              *([s.refined or "-"] if extra else [])]
         )  # fmt: skip
+    return rows
+
+
+# The header of the push-band table (scripts/envelope_bands.py, copied into the README).
+BAND_HEADER = ("sweep", "where", "diverted at push (m)", "in dodge radii",
+               "in alarm radii", "closer", "farther")  # fmt: skip
+
+
+def _span(a: float, b: float, unit: float) -> str:
+    """a..b in units of ``unit``, two decimals ('1.00-1.25', or '1.25' when a == b)."""
+    return f"{a / unit:.2f}-{b / unit:.2f}" if a != b else f"{a / unit:.2f}"
+
+
+def band_rows(
+    data: Mapping[str, Any], summaries: Sequence[CellSummary], dodge: float, alarm: float
+) -> list[list[str]]:
+    """Per value of a two-axis sweep's second axis, the push distances (first axis, m) whose
+    cells are 'diverted', in metres and in the flock's dodge and alarm radii, and the regions of
+    the cells just closer and just farther than them ('-' for none diverted or no such cell)."""
+    first, second = (a["key"] for a in data["axes"])
+    by_value: dict[Any, list[CellSummary]] = {}
+    for s in summaries:
+        by_value.setdefault(s.values[second], []).append(s)
+    rows = []
+    for value, cells in by_value.items():
+        cells = sorted(cells, key=lambda c: float(c.values[first]))
+        hits = [k for k, c in enumerate(cells) if c.region == "diverted"]
+        label = f"{second} = {value:g}" if isinstance(value, float) else f"{second} = {value}"
+        if not hits:
+            rows.append([data["name"], label, "none", "-", "-", "-", "-"])
+            continue
+        lo, hi = hits[0], hits[-1]
+        a, b = float(cells[lo].values[first]), float(cells[hi].values[first])
+        gaps = [c.values[first] for c in cells[lo : hi + 1] if c.region != "diverted"]
+        where = f"{a:g}-{b:g}" if a != b else f"{a:g}"
+        where += f" (not {', '.join(f'{g:g}' for g in gaps)})" if gaps else ""
+        rows.append([
+            data["name"], label, where, _span(a, b, dodge), _span(a, b, alarm),
+            cells[lo - 1].region if lo > 0 else "-",
+            cells[hi + 1].region if hi + 1 < len(cells) else "-",
+        ])  # fmt: skip
     return rows
 
 
