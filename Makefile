@@ -74,6 +74,7 @@ results: $(STAMP)
 		--axis push_distance=10:70:7 --axis flock.cruise_speed=7.5:17.5:5 \
 		--seeds 10 --name envelope-push-speed --workers 2
 	$(BIN)/python scripts/envelope_bands.py
+	$(BIN)/python scripts/approach_angles.py
 	$(BIN)/flockward bench > results/bench.tmp && mv results/bench.tmp results/bench.txt
 	$(BIN)/flockward verify; status=$$?; $(BIN)/python scripts/readme_tables.py; exit $$status
 

@@ -321,16 +321,31 @@ def test_an_interrupted_refinement_resumes_to_the_same_file(behind: Path, tmp_pa
     assert read_json(coarse)["episodes"] == rows
 
 
+def _script(name: str) -> Any:
+    """A module of scripts/ loaded by path (scripts/ is no package)."""
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location(name, ROOT / "scripts" / f"{name}.py")
+    assert spec is not None and spec.loader is not None
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
 def test_committed_push_bands_are_the_committed_sweeps() -> None:
     # Regression test: results/sweeps/envelope-bands.md (copied into the README) is what
     # scripts/envelope_bands.py makes of the committed sweep files, so no band is typed by hand.
-    import importlib.util
+    made = _script("envelope_bands").render()
+    assert (ROOT / "results" / "sweeps" / "envelope-bands.md").read_text() == made
 
-    spec = importlib.util.spec_from_file_location("bands", ROOT / "scripts" / "envelope_bands.py")
-    assert spec is not None and spec.loader is not None
-    bands = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(bands)
-    assert (ROOT / "results" / "sweeps" / "envelope-bands.md").read_text() == bands.render()
+
+@pytest.mark.expensive
+@pytest.mark.filterwarnings("ignore::UserWarning")
+def test_committed_approach_angles_replay() -> None:
+    # Regression test: results/sweeps/approach-angles.md (copied into the README) is what its
+    # script measures when it plays the episodes again (about 60 headon episodes).
+    made = _script("approach_angles").render()
+    assert (ROOT / "results" / "sweeps" / "approach-angles.md").read_text() == made
 
 
 def test_push_band_rows_name_the_band_and_its_neighbours() -> None:
