@@ -361,3 +361,17 @@ def test_push_band_rows_name_the_band_and_its_neighbours() -> None:
     assert band_rows(data, cells, 40.0, 80.0) == [
         ["s", "flock.count = 5", "40-50", "1.00-1.25", "0.50-0.62", "split", "spilled"]
     ]
+
+
+def test_sweep_command_refines_and_refuses_negative_rounds(
+    behind: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    args = ["sweep", "--scenario", str(behind), "--controller", "boundary-arc", "--seeds", "4",
+            "--axis", "pursuer.max_speed=12,28", "--results", str(tmp_path),
+            "--name", "edge"]  # fmt: skip
+    assert main([*args, "--refine", "-1"]) == 2
+    assert "refine = -1: a number of rounds >= 0" in capsys.readouterr().err
+    assert main([*args, "--refine", "1"]) == 0
+    out = capsys.readouterr().out
+    assert "| refined |" in out and "| 20 | 4 |" in out  # the midpoint of 12 and 28 m/s
+    assert read_json(tmp_path / "edge.json")["refine"] == 1
