@@ -269,7 +269,7 @@ class SiteParams:
     # moves the goal to this bearing seen from flock_start, counter-clockwise from the flock's
     # heading before reset jitter (flock.heading_deg, or toward destination), at the configured
     # goal's distance from flock_start; boundary-arc pushes from the side opposite the goal, so
-    # this sets its approach: 0 from behind, 90 abeam, 180 head-on. None: goal as configured
+    # this sets the side it pushes from: 0 behind, 90 abeam, 180 ahead. None: goal as configured
     goal_bearing_deg: float | None = param(None, number(-180.0, 180.0, "deg", opt=True))
 
     def __post_init__(self) -> None:
