@@ -45,7 +45,7 @@ bench: $(STAMP)
 	$(BIN)/flockward bench
 
 # Regenerate every committed result with the shipped commands (tens of minutes on 2 cores): the
-# standard suite played by each scripted baseline, its leaderboard, the herding envelope sweep,
+# standard suite played by each scripted baseline, its leaderboard, the herding envelope sweeps,
 # the bench figures and the verification report (last: it exits non-zero when a check fails).
 # Run it after any change to dynamics, reward, observation or a suite. The committed models
 # (results/models/*.zip) are played as they are: retrain them first when the change breaks them
@@ -65,6 +65,16 @@ results: $(STAMP)
 	$(BIN)/flockward sweep --scenario headon --controller boundary-arc \
 		--axis push_distance=10:70:7 --axis flock.count=10,30,50,100 --seeds 20 \
 		--name envelope-push-count --workers 2
+	rm -f results/sweeps/envelope-push-approach.json
+	$(BIN)/flockward sweep --scenario headon --controller boundary-arc \
+		--axis push_distance=10:70:7 --axis site.goal_bearing_deg=30,60,90,120,150,180 \
+		--seeds 10 --name envelope-push-approach --workers 2
+	rm -f results/sweeps/envelope-push-speed.json
+	$(BIN)/flockward sweep --scenario headon --controller boundary-arc \
+		--axis push_distance=10:70:7 --axis flock.cruise_speed=7.5:17.5:5 \
+		--seeds 10 --name envelope-push-speed --workers 2
+	$(BIN)/python scripts/envelope_bands.py
+	$(BIN)/python scripts/approach_angles.py
 	$(BIN)/flockward bench > results/bench.tmp && mv results/bench.tmp results/bench.txt
 	$(BIN)/flockward verify; status=$$?; $(BIN)/python scripts/readme_tables.py; exit $$status
 

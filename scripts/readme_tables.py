@@ -1,8 +1,9 @@
 """Copy the committed result tables into README.md, so its figures are never typed by hand.
 
 Each README table whose header line matches one in a committed result file (the standard
-leaderboard, the verification report) is replaced whole by that file's table. Run by
-`make results` after regenerating; tests/test_readme.py checks that the two agree.
+leaderboard, the verification report, the envelope's push bands and approach angles) is
+replaced whole by that file's table. Run by `make results` after regenerating;
+tests/test_readme.py checks that the two agree.
 """
 
 from __future__ import annotations
@@ -15,6 +16,8 @@ README = ROOT / "README.md"
 SOURCES = (
     ("results/standard/leaderboard.md", "| rank | controller"),
     ("results/verify/report.md", "| check | measured"),
+    ("results/sweeps/envelope-bands.md", "| sweep | where"),
+    ("results/sweeps/approach-angles.md", "| goal bearing (deg)"),
 )
 
 

@@ -59,6 +59,8 @@ def _table_rows(text: str, header: str) -> list[str]:
     [
         ("results/standard/leaderboard.md", "| rank | controller"),
         ("results/verify/report.md", "| check | measured"),
+        ("results/sweeps/envelope-bands.md", "| sweep | where"),
+        ("results/sweeps/approach-angles.md", "| goal bearing (deg)"),
     ],
 )
 def test_readme_tables_are_the_committed_ones(committed: str, header: str) -> None:

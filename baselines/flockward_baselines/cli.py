@@ -259,6 +259,7 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
                 out,
                 workers,
                 backend,
+                refine=args.refine,
             )
         data = read_json(out)
         summaries = summarise(data)
@@ -795,6 +796,14 @@ def build_parser() -> argparse.ArgumentParser:
     _add_param_option(sweep, "a fixed controller argument (repeatable)")
     sweep.add_argument("--seeds", type=int, default=20, help="episodes per cell (default 20)")
     sweep.add_argument("--first-seed", type=int, default=5000, help="first seed (default 5000)")
+    sweep.add_argument(
+        "--refine",
+        type=int,
+        default=0,
+        metavar="R",
+        help="after the grid, R rounds adding midpoint cells and seeds only where neighbouring "
+        "cells disagree (default 0)",
+    )
     sweep.add_argument("--name", help="file stem (default: from the axes)")
     sweep.add_argument(
         "--results", default="results/sweeps", help="directory (default %(default)s)"

@@ -250,6 +250,22 @@ def _circle_overlaps(circle: Circle, zone: Zone) -> bool:
     return float(signed_distance(zone_arrays(zone), np.asarray(circle.center))) < circle.radius
 
 
+def zone_at_bearing(zone: Zone, origin: tuple[float, float], bearing: float) -> Zone:
+    """``zone`` moved (not turned) so that its centre lies at ``bearing`` (rad, counter-clockwise
+    from +x) from ``origin``, as far from it as before; centres rounded to the micrometre. A zone
+    already within a micrometre of that place is returned as it is."""
+    cx, cy = zone_center(zone)
+    reach = math.hypot(cx - origin[0], cy - origin[1])
+    tx = round(origin[0] + reach * math.cos(bearing), 6)
+    ty = round(origin[1] + reach * math.sin(bearing), 6)
+    dx, dy = tx - cx, ty - cy
+    if math.hypot(dx, dy) < 1e-6:
+        return zone
+    if isinstance(zone, Circle):
+        return Circle((tx, ty), zone.radius)
+    return Polygon(tuple((x + dx, y + dy) for x, y in zone.vertices))
+
+
 def zone_contains(zone: Zone, point: tuple[float, float]) -> bool:
     """Whether one point lies strictly inside a zone record."""
     return bool(contains(zone_arrays(zone), np.asarray(point, dtype=np.float64)))

@@ -309,6 +309,19 @@ def _check_scenario(scenario: Scenario) -> None:
     """Relations across the records of a scenario."""
     if not isinstance(scenario.name, str):
         _broken(scenario, ("name",), "must be a string")
+    site = scenario.site
+    if site.goal_bearing_deg is not None:
+        for clash, other in (
+            (geometry.zones_overlap(site.goal, site.protected), "the protected zone"),
+            (geometry.zone_contains(site.goal, site.flock_start), "site.flock_start"),
+        ):
+            if clash:
+                _broken(
+                    scenario,
+                    ("site.goal_bearing_deg",),
+                    f"puts the goal ({zone_text(site.goal)}) over {other}; choose a bearing "
+                    "whose goal lies clear of both",
+                )
     flock, span = scenario.flock, scenario.randomise.cruise_speed
     if span is not None and (span[0] < flock.min_speed or span[1] > flock.max_speed):
         _broken(

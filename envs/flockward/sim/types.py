@@ -267,6 +267,11 @@ class SiteParams:
     destination: tuple[float, float] = param((800.0, 0.0), POINT)
     # centre of the initial formation
     flock_start: tuple[float, float] = param((-600.0, 0.0), POINT)
+    # moves the goal to this bearing seen from flock_start, counter-clockwise from the flock's
+    # heading before reset jitter (flock.heading_deg, or toward destination), at the configured
+    # goal's distance from flock_start; boundary-arc pushes from the side opposite the goal, so
+    # this sets the side it pushes from: 0 behind, 90 abeam, 180 ahead. None: goal as configured
+    goal_bearing_deg: float | None = param(None, number(-180.0, 180.0, "deg", opt=True))
 
     def __post_init__(self) -> None:
         _check(self)
@@ -380,6 +385,25 @@ class WindParams:
         return self.speed == 0.0 and self.turbulence == "none"
 
 
+def _place_goal(scenario: Scenario) -> None:
+    """Move the goal to site.goal_bearing_deg, when that is set (see the field's comment).
+
+    Idempotent: a goal already within a micrometre of its place stays as it is, so a scenario
+    rebuilt from a placed one keeps bit-identical zones.
+    """
+    site = scenario.site
+    if site.goal_bearing_deg is None or not isinstance(site.goal_bearing_deg, int | float):
+        return  # a value of the wrong type is refused by the checks that follow
+    # Imported here: geometry reads the zone records of this module.
+    from flockward.sim.geometry import zone_at_bearing
+    from flockward.sim.limits import derived
+
+    bearing = scenario.nominal_heading + math.radians(site.goal_bearing_deg)
+    goal = zone_at_bearing(site.goal, site.flock_start, bearing)
+    if goal != site.goal:
+        object.__setattr__(scenario, "site", derived(site, goal=goal))
+
+
 @dataclass(frozen=True)
 class SensorParams:
     """What the drone's side can sense of the birds (flockward.sim.sensing).
@@ -451,8 +475,18 @@ class Scenario:
     source_file: str | None = None  # where it was read from, for messages and provenance
 
     def __post_init__(self) -> None:
+        _place_goal(self)
         _check(self)
         _check_discount(self)
+
+    @property
+    def nominal_heading(self) -> float:
+        """rad, counter-clockwise from +x: the flock's heading before any reset jitter, its
+        heading_deg or else the bearing from site.flock_start to site.destination."""
+        if self.flock.heading_deg is not None:
+            return math.radians(self.flock.heading_deg)
+        (x0, y0), (x1, y1) = self.site.flock_start, self.site.destination
+        return math.atan2(y1 - y0, x1 - x0)
 
     @property
     def shaping_discount(self) -> float:
