@@ -306,7 +306,9 @@ class FlockInset:
     its scale changes only in steps as the flock spreads or gathers.
     """
 
-    def __init__(self, fig: Figure, map_ax: Axes, scenario: Scenario, box: tuple[float, ...]):
+    def __init__(
+        self, fig: Figure, map_ax: Axes, scenario: Scenario, box: tuple[float, float, float, float]
+    ):
         ax = fig.add_axes(box)
         ax.set_facecolor(SLATE)
         ax.set_xticks([])
@@ -448,11 +450,13 @@ class FrameRenderer:
         draw_site(ax, scenario)
         draw_scale_bar(ax, (x0, x1, y0, y1))
         self.map_width = x1 - x0  # m
-        corner = "upper"
+        corner, box = "upper", None
         if inset != "off":
             corner = inset_corner(scenario, (x0, x1, y0, y1), size_px, avoid)
-        draw_wind(ax, scenario, (x0, x1, y0, y1), "lower" if inset != "off" and corner == "upper"
-                  else "upper")  # fmt: skip
+            status_px = 2 * 1.25 * STATUS_FONT_PT * dpi / 72.0  # two lines of text, in pixels
+            box = inset_box(size_px, corner, status_px if corner == "upper" else 0.0)
+        wind_corner = "lower" if box is not None and corner == "upper" else "upper"
+        draw_wind(ax, scenario, (x0, x1, y0, y1), wind_corner)
         self.ax = ax
         self.track = LineCollection([], linewidths=1.2, zorder=3)
         ax.add_collection(self.track)
@@ -485,9 +489,7 @@ class FrameRenderer:
             zorder=7,
         )
         self.inset: FlockInset | None = None
-        status_px = 2 * 1.25 * STATUS_FONT_PT * dpi / 72.0  # two lines of text, in pixels
-        box = inset_box(size_px, corner, status_px if corner == "upper" else 0.0)
-        if inset != "off" and box is not None:
+        if box is not None:
             self.inset = FlockInset(self.fig, ax, scenario, box)
 
     def draw(
