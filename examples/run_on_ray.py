@@ -27,6 +27,7 @@ from flockward.bench.evaluation import read_results, run_suite
 from flockward.bench.leaderboard import episode_score
 from flockward.bench.ray_backend import import_ray, ray_session
 from flockward.bench.suites import load_suite
+from flockward.config.files import ConfigError
 from flockward_baselines.controllers import make_controller
 
 
@@ -45,20 +46,23 @@ def main() -> int:
     except ImportError as error:
         print(error, file=sys.stderr)
         return 2
-    suite = load_suite(args.suite)
     cpus = None if args.address else args.cpus  # a cluster's size is set where it was started
     with tempfile.TemporaryDirectory() as scratch:
-        folder = args.results or scratch
-        with ray_session(args.address, cpus) as backend:
-            path = run_suite(
-                suite,
-                partial(make_controller, args.controller),
-                args.controller,
-                folder,
-                progress=False,
-                limit=args.episodes,
-                backend=backend,
-            )
+        try:
+            suite = load_suite(args.suite)
+            with ray_session(args.address, cpus) as backend:
+                path = run_suite(
+                    suite,
+                    partial(make_controller, args.controller),
+                    args.controller,
+                    args.results or scratch,
+                    progress=False,
+                    limit=args.episodes,
+                    backend=backend,
+                )
+        except (ConfigError, ValueError, ConnectionError, RuntimeError) as error:
+            print(" ".join(str(error).split()), file=sys.stderr)  # one line, no traceback
+            return 2
         episodes = read_results(path)["episodes"]
         families: dict[str, list[dict]] = defaultdict(list)
         for row in episodes:

@@ -49,6 +49,14 @@ def main() -> int:
               file=sys.stderr)  # fmt: skip
         return 2
 
+    from flockward.config.files import ConfigError
+    from flockward.config.scenarios import load_scenario
+
+    try:  # a bad scenario is one line here, not a traceback from inside a runner
+        load_scenario(args.scenario)
+    except (ConfigError, ValueError) as error:
+        print(" ".join(str(error).split()), file=sys.stderr)
+        return 2
     ray.init(num_cpus=args.cpus, include_dashboard=False, logging_level=logging.ERROR,
              log_to_driver=False)  # fmt: skip
     try:
