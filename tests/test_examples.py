@@ -16,7 +16,24 @@ BUDGETS = {
     "custom_scenario.py": ["--steps", "200"],
     "train_sb3.py": ["--timesteps", "4096", "--episodes", "1"],
     "compare_two.py": ["--seeds", "2"],
+    # A local Ray instance of 2 CPUs, as tests/test_ray.py starts: about 15 s, mostly Ray's start.
+    "run_on_ray.py": ["--episodes", "3", "--cpus", "2"],
+    "train_rllib.py": ["--iterations", "1", "--batch", "200", "--env-runners", "0"],
 }
+# Examples that need a package flockward's test extra may lack, with what installs it. RLlib
+# is no extra of flockward: ray[rllib] adds about 70 MB of wheels (pyarrow, pandas) and pins
+# an older gymnasium.
+NEEDS = {
+    "run_on_ray.py": ("ray", "pip install 'flockward[ray]'"),
+    "train_rllib.py": ("ray.rllib", "pip install 'ray[rllib]' torch==2.13.0"),
+}
+
+
+def _importable(module: str, env: dict[str, str]) -> bool:
+    """Whether ``module`` imports in a fresh interpreter (RLlib can be present but broken)."""
+    done = subprocess.run([sys.executable, "-c", f"import {module}"], env=env,
+                          capture_output=True, check=False, timeout=120)  # fmt: skip
+    return done.returncode == 0
 
 
 def test_every_example_has_a_budget() -> None:
@@ -27,8 +44,18 @@ def test_every_example_has_a_budget() -> None:
 def test_example_runs(script: str) -> None:
     env = {
         **os.environ,
-        "PYTHONPATH": os.pathsep.join([str(ROOT / "envs"), str(ROOT / "baselines")]),
+        # the caller's own path entries last (such as a folder holding RLlib)
+        "PYTHONPATH": os.pathsep.join(
+            [
+                str(ROOT / "envs"),
+                str(ROOT / "baselines"),
+                *filter(None, [os.environ.get("PYTHONPATH")]),
+            ]
+        ),
     }
+    if script in NEEDS and not _importable(NEEDS[script][0], env):
+        module, hint = NEEDS[script]
+        pytest.skip(f"{script} needs {module}, which does not import here: {hint}")
     result = subprocess.run(
         [sys.executable, str(ROOT / "examples" / script), *BUDGETS[script]],
         capture_output=True, text=True, env=env, cwd=ROOT, timeout=300, check=False,

@@ -10,10 +10,32 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from matplotlib.colors import to_rgb
 from PIL import Image
 
-from flockward.render import FrameRenderer, episode_animation, episode_still
-from flockward.sim.types import Circle, Polygon, PursuerParams, Scenario, SiteParams, WorldState
+from flockward.render import (
+    CHARCOAL,
+    CRIMSON,
+    INK,
+    SLATE,
+    FrameRenderer,
+    animation_inset,
+    episode_animation,
+    episode_still,
+    fit_aspect,
+    inset_corner,
+    inset_width,
+    site_extent,
+)
+from flockward.sim.types import (
+    Circle,
+    Polygon,
+    PursuerParams,
+    Scenario,
+    SiteParams,
+    WindParams,
+    WorldState,
+)
 
 SQUARE = Polygon(((-120.0, -120.0), (120.0, -120.0), (120.0, 120.0), (-120.0, 120.0)))
 SITE = dict(goal=Circle((0.0, 400.0), 100.0), destination=(500.0, 0.0), flock_start=(-400.0, 0.0))
@@ -224,3 +246,170 @@ def test_scale_bar_lengths_are_round() -> None:
 
     # A fifth of the span rounded down to 1, 2 or 5 times a power of ten (common practice).
     assert [scale_length(s) for s in (1000.0, 480.0, 2000.0, 7.0)] == [200.0, 50.0, 200.0, 1.0]
+
+
+# The zoomed inset that follows the flock.
+
+FIXTURES = Path(__file__).resolve().parent / "fixtures"
+WINDY_SCENARIO = Scenario(
+    name="t",
+    site=SiteParams(protected=Circle((0.0, 0.0), 120.0), **SITE),
+    wind=WindParams(speed=6.0, from_deg=250.0),
+)
+
+
+def frame_of(scenario: Scenario, state: WorldState, size=SIZE, **kwargs) -> np.ndarray:
+    """One frame of world 1 with the fixture's track and a fixed status."""
+    r = FrameRenderer(scenario, size_px=size, label="idle, seed 7", **kwargs)
+    try:
+        info = {"outcome": "running", "n_components": 1, "steps": 42}
+        return r.draw(state, 1, track(), info)
+    finally:
+        r.close()
+
+
+# frame_without_inset.png's pixels depend on the rasteriser and fonts of the matplotlib that
+# drew it; under another version the exact comparison is skipped, saying so.
+FIXTURE_MATPLOTLIB = "3.11.2"
+
+
+def test_inset_off_reproduces_the_frame_drawn_before_insets_existed():
+    # Regression test: frame_without_inset.png was drawn by this same call with the renderer as
+    # it was before the inset existed (commit 6d838a3), with a wind label that the inset would
+    # move.
+    import matplotlib
+
+    if matplotlib.__version__ != FIXTURE_MATPLOTLIB:
+        pytest.skip(f"the fixture was drawn with matplotlib {FIXTURE_MATPLOTLIB}, this is "
+                    f"{matplotlib.__version__}: pixels may differ")  # fmt: skip
+    with Image.open(FIXTURES / "frame_without_inset.png") as image:
+        before = np.asarray(image.convert("RGB"))
+    np.testing.assert_array_equal(frame_of(WINDY_SCENARIO, flock_state(), inset="off"), before)
+    assert changed_pixels(frame_of(WINDY_SCENARIO, flock_state(), inset="on"), before) > 500
+
+
+def spread_state(birds: list[tuple[float, float]], drone: tuple[float, float]) -> WorldState:
+    """World 1 holds ``birds`` flying +x at 10 m/s and one drone at ``drone``."""
+    state = WorldState.zeros(2, len(birds))
+    state.bird_pos[1] = birds
+    state.bird_vel[1] = (10.0, 0.0)
+    state.pursuer_pos[1] = drone
+    state.count[1] = len(birds)
+    return state
+
+
+def near(pixel: np.ndarray, colour: str, tolerance: float = 40.0) -> bool:
+    """Whether an RGB pixel is within ``tolerance`` (Euclidean, 0-255 scale) of ``colour``."""
+    target = np.array(to_rgb(colour)) * 255.0
+    return float(np.linalg.norm(pixel.astype(float) - target)) < tolerance
+
+
+def test_inset_draws_each_bird_and_the_drone_at_their_mapped_places():
+    # Regression test of the inset's geometry against its documented rule: a view 50 m wide
+    # (INSET_MIN_WIDTH, the flock spanning 16 m < 0.4 of it) centred on the birds' bounding box,
+    # a square of 0.4 x 240 = 96 px in the upper-right corner, 3.6 px from the right edge and
+    # 3.6 px plus the status text's two 8 pt lines (27.8 px at 100 dpi) from the top.
+    birds = [(-400.0, -8.0), (-384.0, -8.0), (-392.0, 0.0), (-400.0, 8.0), (-384.0, 8.0)]
+    drone = (-380.0, -18.0)  # inside the view: 12 m right of and 18 m below its centre
+    frame = frame_of(CIRCLE_SCENARIO, spread_state(birds, drone), inset="on")
+    width_px = SIZE[0]
+    side, gap = 0.4 * 240, 0.015 * 240
+    left, top = width_px - gap - side, gap + 2 * 1.25 * 8 * 100 / 72
+    cx, cy = -392.0, 0.0
+
+    def around(x: float, y: float) -> np.ndarray:
+        """The 3 x 3 pixels around the place of (x, y) m: axes snap to whole pixels."""
+        col = int(left + (x - (cx - 25.0)) / 50.0 * side)
+        row = int(top + ((cy + 25.0) - y) / 50.0 * side)
+        return frame[row - 1 : row + 2, col - 1 : col + 2].reshape(-1, 3)
+
+    def has(x: float, y: float, colour: str, tolerance: float = 40.0) -> bool:
+        return any(near(p, colour, tolerance) for p in around(x, y))
+
+    for x, y in birds:
+        assert has(x, y, CHARCOAL), (x, y, around(x, y))
+    # Heading ticks point forward (+x, 1.75 m = 3.4 px long), never backward.
+    assert has(-392.0 + 1.5, 0.0, CHARCOAL)
+    assert not has(-392.0 - 1.5, 0.0, CHARCOAL, tolerance=100.0)
+    assert has(*drone, CRIMSON, tolerance=60.0)
+    # Empty places of the view stay background.
+    for x, y in [(-392.0, -8.0), (-400.0, 0.0), (-372.0, 15.0)]:
+        assert all(near(p, SLATE) for p in around(x, y)), (x, y, around(x, y))
+
+
+def test_the_map_outlines_the_area_the_inset_shows():
+    # Regression test: the outline is the inset's 50 m square, drawn on the map where the
+    # map's own extent (fit to the frame, as the renderer does) puts it.
+    birds = [(-400.0, -8.0), (-384.0, 8.0)]
+    state = spread_state(birds, (200.0, 200.0))
+    on = frame_of(CIRCLE_SCENARIO, state, inset="on")
+    off = frame_of(CIRCLE_SCENARIO, state, inset="off")
+    x0, x1, y0, y1 = fit_aspect(site_extent(CIRCLE_SCENARIO), SIZE[0] / SIZE[1])
+    col = int((-392.0 - 25.0 - x0) / (x1 - x0) * SIZE[0])  # the outline's left side
+    row = int((y1 - 0.0) / (y1 - y0) * SIZE[1])  # at the flock's height
+    # The 1 px line falls across two columns, axes snapping to whole pixels.
+    assert any(near(p, INK, tolerance=90.0) for p in on[row, col - 1 : col + 2])
+    assert all(near(p, SLATE) for p in off[row, col - 1 : col + 2])
+
+
+def test_auto_inset_is_drawn_only_while_the_flock_is_small_against_the_map():
+    small = spread_state([(-300.0, 0.0), (-290.0, 5.0)], (-200.0, 150.0))
+    assert changed_pixels(frame_of(CIRCLE_SCENARIO, small, inset="auto"),
+                          frame_of(CIRCLE_SCENARIO, small, inset="off")) > 500  # fmt: skip
+    # A flock wider than a tenth of the map: no inset, the frame is the plain one.
+    wide = spread_state([(-300.0, 0.0), (-100.0, 5.0)], (-200.0, 150.0))
+    x0, x1, _, _ = fit_aspect(site_extent(CIRCLE_SCENARIO), SIZE[0] / SIZE[1])
+    assert 10.0 < 0.1 * (x1 - x0) < 200.0  # the small flock spans 10 m, the wide one 200 m
+    np.testing.assert_array_equal(
+        frame_of(CIRCLE_SCENARIO, wide, inset="auto"), frame_of(CIRCLE_SCENARIO, wide, inset="off")
+    )
+
+
+def test_an_animation_decides_auto_once_from_the_median_flock_span():
+    frames = episode_frames(9)  # the flock spans about 7 m: small against the map
+    assert animation_inset(CIRCLE_SCENARIO, frames, (480, 480), "auto")[0] == "on"
+    for frame in frames[:5]:  # the median frame now spans 400 m
+        frame["bird_pos"] = frame["bird_pos"] * np.array([[1.0], [1.0], [-60.0]])
+    assert animation_inset(CIRCLE_SCENARIO, frames, (480, 480), "auto")[0] == "off"
+    assert animation_inset(CIRCLE_SCENARIO, frames, (480, 480), "on")[0] == "on"
+    with pytest.raises(ValueError, match="inset = 'zoom': choose one of auto, on, off"):
+        animation_inset(CIRCLE_SCENARIO, frames, (480, 480), "zoom")
+
+
+def test_inset_view_widths_are_round_and_hold_the_flock() -> None:
+    # Widths are 1, 2 or 5 times a power of ten metres (common practice for map scales).
+    assert [inset_width(s) for s in (0.0, 12.0, 20.1, 45.0, 300.0)] == [50.0, 50.0, 100.0,
+                                                                        200.0, 1000.0]  # fmt: skip
+
+
+def test_the_inset_takes_the_right_hand_corner_hiding_less_of_the_site() -> None:
+    # The destination under the lower-right corner of the map sends the inset up, and a goal
+    # region in the upper right sends it down.
+    extent = fit_aspect(site_extent(CIRCLE_SCENARIO), 1.0)
+    assert inset_corner(CIRCLE_SCENARIO, extent, (480, 480)) == "upper"
+    north_east = Scenario(
+        name="t",
+        site=SiteParams(protected=Circle((0.0, 0.0), 120.0), goal=Circle((450.0, 450.0), 100.0),
+                        destination=(-500.0, 0.0), flock_start=(-400.0, -300.0)),
+    )  # fmt: skip
+    extent = fit_aspect(site_extent(north_east), 1.0)
+    assert inset_corner(north_east, extent, (480, 480)) == "lower"
+
+
+def test_show_draws_the_inset_on_request(tmp_path: Path, capsys: pytest.CaptureFixture[str]):
+    from flockward_baselines.cli import main
+
+    scenario = tmp_path / "short.toml"
+    shipped = Path(__file__).resolve().parents[1] / "configs" / "scenarios" / "trio.toml"
+    scenario.write_text(shipped.read_text().replace("max_steps = 1200", "max_steps = 20"))
+    gifs = {}
+    for mode in ("on", "off"):
+        gifs[mode] = tmp_path / f"{mode}.gif"
+        args = ["show", "--scenario", str(scenario), "--controller", "idle", "--inset", mode]
+        assert main([*args, "--out", str(gifs[mode])]) == 0
+    with Image.open(gifs["on"]) as on, Image.open(gifs["off"]) as off:
+        assert on.n_frames == off.n_frames and on.size == off.size
+        assert changed_pixels(np.asarray(on.convert("RGB")), np.asarray(off.convert("RGB"))) > 500
+    with pytest.raises(SystemExit):
+        main(["show", "--inset", "zoom"])
+    assert "invalid choice: 'zoom'" in capsys.readouterr().err

@@ -184,7 +184,7 @@ def _cmd_show(args: argparse.Namespace) -> int:
         # Frames are recorded once per decision: keep every one when a decision spans several
         # control steps, so the animation does not run faster than needed.
         stride = 1 if scenario.episode.decision_steps > 1 else 2
-        episode_animation(scenario, frames, out, label=label, stride=stride)
+        episode_animation(scenario, frames, out, label=label, stride=stride, inset=args.inset)
     else:
         episode_still(scenario, frames, out, label=label)
     print(
@@ -220,7 +220,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     print(f"\n{SMOKE_NOTE}")
     ns = argparse.Namespace(
         scenario="headon", controller="boundary-arc", model=None, param=[], suite=None,
-        family=None, seed=0, out=args.gif,
+        family=None, seed=0, out=args.gif, inset="auto",
     )  # fmt: skip
     return _cmd_show(ns)
 
@@ -698,6 +698,13 @@ def build_parser() -> argparse.ArgumentParser:
     show.add_argument("--seed", type=int, default=0, help="episode seed")
     show.add_argument(
         "--out", default="episode.gif", help="output file: .gif, or a still as .png, .svg, .pdf"
+    )
+    show.add_argument(
+        "--inset",
+        choices=("auto", "on", "off"),
+        default="auto",
+        help="a .gif's zoomed view following the flock, drawing each bird: auto (default) adds "
+        "it when the flock's median span is at most a tenth of the map's width",
     )
     show.set_defaults(handler=_cmd_show)
 

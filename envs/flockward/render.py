@@ -52,6 +52,18 @@ GIF_BLEND_LEVELS = 12  # opacity steps per colour pair in the animation's fixed 
 # info entries printed on a frame, with their labels ("" prints the value alone)
 INFO_LABELS = {"outcome": "", "n_components": "clusters", "breached_birds": "breached"}
 
+# The zoomed inset that follows the flock (FrameRenderer's ``inset``).
+INSET_MODES = ("auto", "on", "off")
+INSET_AUTO_SHARE = 0.1  # auto: an inset when the flock spans at most this share of the map's width
+INSET_SIDE_SHARE = 0.4  # the inset's side as a share of the frame's shorter side
+INSET_FLOCK_SHARE = 0.4  # the flock's span fills at most this share of the inset's width
+INSET_MIN_WIDTH = 50.0  # m, narrowest inset, so a drone pushing from close by shows in it
+INSET_HEADING_SHARE = 0.035  # a heading tick's length as a share of the inset's width
+INSET_EDGE_SHARE = 0.015  # gap between the inset and the frame's edge, share of the frame side
+INSET_EDGE_MARK_SHARE = 0.04  # an out-of-view drone's mark: this share of the width inside the edge
+INSET_MIN_SIDE_PX = 40.0  # a frame with no room for an inset this large gets none
+STATUS_FONT_PT = 8.0  # the status text's size; its two lines sit above an upper inset
+
 Extent = tuple[float, float, float, float]  # (x_min, x_max, y_min, y_max) m
 
 
@@ -171,6 +183,31 @@ def scale_length(span: float) -> float:
     return float(max(m * power for m in (1.0, 2.0, 5.0) if m * power <= target))
 
 
+def round_up_length(length: float) -> float:
+    """The smallest round length (1, 2 or 5 times a power of ten metres) at least ``length``."""
+    power = 10.0 ** np.floor(np.log10(max(length, 1e-9)))
+    return float(min(m * power for m in (1.0, 2.0, 5.0, 10.0) if m * power >= length))
+
+
+def flock_span(pos: np.ndarray) -> float:
+    """The larger side (m) of the bounding box of (n, 2) bird positions; 0 for fewer than 2."""
+    return float(np.ptp(pos, axis=0).max()) if len(pos) > 1 else 0.0
+
+
+def inset_width(span: float) -> float:
+    """Width (m) of the inset's view of a flock spanning ``span`` m: a round length that leaves
+    the flock at most INSET_FLOCK_SHARE of it, and at least INSET_MIN_WIDTH."""
+    return round_up_length(max(span / INSET_FLOCK_SHARE, INSET_MIN_WIDTH))
+
+
+def wants_inset(mode: str, span: float, map_width: float) -> bool:
+    """Whether a frame gets the inset: always ("on"), never ("off"), or ("auto") when the flock
+    spans at most INSET_AUTO_SHARE of the map's width, where its birds merge into one blob."""
+    if mode not in INSET_MODES:
+        raise ValueError(f"inset = {mode!r}: choose one of {', '.join(INSET_MODES)}")
+    return mode == "on" or (mode == "auto" and span <= INSET_AUTO_SHARE * map_width)
+
+
 def draw_scale_bar(ax: Axes, extent: Extent) -> None:
     """A labelled bar of a round length in the lower-left corner of a map without axes."""
     x0, x1, y0, y1 = extent
@@ -181,15 +218,17 @@ def draw_scale_bar(ax: Axes, extent: Extent) -> None:
             va="bottom", fontsize=7, color=INK, zorder=7)  # fmt: skip
 
 
-def draw_wind(ax: Axes, scenario: Scenario, extent: Extent) -> None:
-    """An arrow in the upper-right corner along the steady wind (pointing where it blows to),
-    labelled with its speed, origin and turbulence; nothing in still air."""
+def draw_wind(ax: Axes, scenario: Scenario, extent: Extent, corner: str = "upper") -> None:
+    """An arrow in the right-hand ``corner`` ("upper" or "lower") along the steady wind (pointing
+    where it blows to), labelled with its speed, origin and turbulence; nothing in still air."""
     wind = scenario.wind
     if wind.calm:
         return
     x0, x1, y0, y1 = extent
     length = 0.07 * (x1 - x0)
     cx, cy = x1 - 0.12 * (x1 - x0), y1 - 0.1 * (y1 - y0)
+    if corner == "lower":  # room below the arrow for three lines of text
+        cy = y0 + 0.22 * (y1 - y0)
     wx, wy = wind.velocity
     speed = math.hypot(wx, wy)
     if speed > 0.0:
@@ -201,6 +240,149 @@ def draw_wind(ax: Axes, scenario: Scenario, extent: Extent) -> None:
         text += f"\n{wind.turbulence} gusts"
     ax.text(cx, cy - 0.06 * (y1 - y0), text, ha="center", va="top", fontsize=7, color=INK,
             zorder=7)  # fmt: skip
+
+
+def inset_box(
+    size_px: tuple[int, int], corner: str, top_clear_px: float = 0.0
+) -> tuple[float, float, float, float] | None:
+    """The inset's (left, bottom, width, height) in figure fractions: a square of pixels in the
+    frame's right-hand ``corner`` ("upper" or "lower"), an upper one starting ``top_clear_px``
+    below the top (under the status text); None when the frame has no room for one."""
+    width, height = size_px
+    gap = INSET_EDGE_SHARE * min(width, height)
+    side = min(INSET_SIDE_SHARE * min(width, height), height - 2 * gap - top_clear_px)
+    if side < INSET_MIN_SIDE_PX:
+        return None
+    w, h = side / width, side / height
+    bottom = 1.0 - (gap + top_clear_px + side) / height if corner == "upper" else gap / height
+    return 1.0 - (gap + side) / width, bottom, w, h
+
+
+def inset_corner(
+    scenario: Scenario, extent: Extent, size_px: tuple[int, int], points: np.ndarray | None = None
+) -> str:
+    """The right-hand corner ("upper" or "lower") where the inset hides less of a map of
+    ``extent`` filling the frame: counted are the share of each zone's bounding box it covers,
+    the destination and start points under it, and the share of ``points`` (such as an episode's
+    flock centres and drone positions) under it. Upper wins a tie; the left-hand corners hold
+    the status text and the scale bar."""
+    x0, x1, y0, y1 = extent
+    site = scenario.site
+    marks = np.array([site.destination, site.flock_start, scenario.pursuer.start])
+    extra = np.empty((0, 2)) if points is None else np.asarray(points, dtype=np.float64)
+
+    def hidden(corner: str) -> float:
+        box = inset_box(size_px, corner)
+        if box is None:
+            return 0.0
+        left, bottom, w, h = box
+        rx0, ry0 = x0 + left * (x1 - x0), y0 + bottom * (y1 - y0)
+        rx1, ry1 = rx0 + w * (x1 - x0), ry0 + h * (y1 - y0)
+        score = 0.0
+        for zone in (site.protected, site.goal):
+            zx0, zx1, zy0, zy1 = zone_extent(zone)
+            overlap = max(0.0, min(zx1, rx1) - max(zx0, rx0)) * max(
+                0.0, min(zy1, ry1) - max(zy0, ry0)
+            )
+            score += overlap / max((zx1 - zx0) * (zy1 - zy0), 1e-9)
+
+        def under(xy: np.ndarray) -> np.ndarray:
+            return (rx0 <= xy[:, 0]) & (xy[:, 0] <= rx1) & (ry0 <= xy[:, 1]) & (xy[:, 1] <= ry1)
+
+        score += float(under(marks).sum())
+        if len(extra):
+            score += float(under(extra).mean())
+        return score
+
+    return min(("upper", "lower"), key=hidden)
+
+
+class FlockInset:
+    """A zoomed view in a corner of a frame that follows the flock: every bird with a tick along
+    its heading, the site and the drones (a drone out of view as a hollow diamond at the edge,
+    towards it), its own scale bar. An outline on the map marks the area it shows.
+
+    The view is centred on the birds' bounding box and is ``inset_width`` wide, a round length, so
+    its scale changes only in steps as the flock spreads or gathers.
+    """
+
+    def __init__(
+        self, fig: Figure, map_ax: Axes, scenario: Scenario, box: tuple[float, float, float, float]
+    ):
+        ax = fig.add_axes(box)
+        ax.set_facecolor(SLATE)
+        ax.set_xticks([])
+        ax.set_yticks([])
+        for spine in ax.spines.values():
+            spine.set_edgecolor(INK)
+            spine.set_linewidth(1.0)
+        ax.set_autoscale_on(False)
+        draw_site(ax, scenario)
+        self.ax = ax
+        self.track = LineCollection([], linewidths=1.2, zorder=3)
+        ax.add_collection(self.track)
+        self.headings = LineCollection([], colors=CHARCOAL, linewidths=0.9, zorder=4)
+        ax.add_collection(self.headings)
+        self.birds = ax.scatter(
+            np.empty(0), np.empty(0), s=6.0, color=CHARCOAL, linewidths=0.0, zorder=5
+        )
+        (self.drones,) = ax.plot([], [], marker="D", markersize=7, markerfacecolor=CRIMSON,
+                                 markeredgecolor=INK, markeredgewidth=0.8, linestyle="none",
+                                 zorder=6)  # fmt: skip
+        (self.beyond,) = ax.plot([], [], marker="D", markersize=5, markerfacecolor="none",
+                                 markeredgecolor=CRIMSON, markeredgewidth=1.2, linestyle="none",
+                                 zorder=6)  # fmt: skip
+        (self.bar,) = ax.plot([], [], color=INK, linewidth=2.0, zorder=7)
+        self.bar_label = ax.text(0.0, 0.0, "", ha="center", va="bottom", fontsize=7, color=INK,
+                                 zorder=7)  # fmt: skip
+        self.outline = patches.Rectangle(
+            (0.0, 0.0), 0.0, 0.0, fill=False, edgecolor=INK, linewidth=1.0, zorder=6
+        )
+        map_ax.add_patch(self.outline)
+        self.show(False)
+
+    def show(self, visible: bool) -> None:
+        """Show or hide the inset and its outline on the map."""
+        self.ax.set_visible(visible)
+        self.outline.set_visible(visible)
+
+    def update(
+        self,
+        pos: np.ndarray,
+        vel: np.ndarray,
+        drones: np.ndarray,
+        segments: np.ndarray,
+        colours: np.ndarray,
+    ) -> Extent:
+        """Centre the view on the (n >= 1, 2) birds, redraw them, the drones (P, 2) and their
+        track segments; return the view's extent."""
+        cx, cy = (pos.min(axis=0) + pos.max(axis=0)) / 2.0
+        width = inset_width(flock_span(pos))
+        x0, x1, y0, y1 = cx - width / 2, cx + width / 2, cy - width / 2, cy + width / 2
+        self.ax.set_xlim(x0, x1)
+        self.ax.set_ylim(y0, y1)
+        self.outline.set_bounds(x0, y0, width, width)
+        self.birds.set_offsets(pos)
+        speed = np.hypot(vel[:, 0], vel[:, 1])[:, None]
+        heading = np.divide(vel, speed, out=np.zeros_like(vel), where=speed > 0.0)
+        tip = pos + INSET_HEADING_SHARE * width * heading
+        self.headings.set_segments(list(np.stack([pos, tip], axis=1)))
+        self.track.set_segments(list(segments))
+        self.track.set_color(colours)  # type: ignore[arg-type]  # (S, 4) RGBA, as on the map
+        self.drones.set_data(drones[:, 0], drones[:, 1])
+        # A drone out of view: a hollow diamond just inside the edge, on the line from the
+        # view's centre towards it.
+        reach = (0.5 - INSET_EDGE_MARK_SHARE) * width
+        offset = drones - (cx, cy)  # (P, 2)
+        far = np.abs(offset).max(axis=1) > width / 2
+        edge = (cx, cy) + offset[far] * (reach / np.abs(offset[far]).max(axis=1))[:, None]
+        self.beyond.set_data(edge[:, 0], edge[:, 1])
+        length = scale_length(width)
+        left, base = x0 + 0.06 * width, y0 + 0.06 * width
+        self.bar.set_data([left, left + length], [base, base])
+        self.bar_label.set_position((left + length / 2, base + 0.02 * width))
+        self.bar_label.set_text(f"{length:g} m")
+        return x0, x1, y0, y1
 
 
 def status_line(scenario: Scenario, info: Mapping[str, Any], label: str = "") -> str:
@@ -217,6 +399,12 @@ class FrameRenderer:
 
     ``interactive=False`` renders off-screen (Agg) and is safe headless; ``interactive=True`` also
     shows the figure in a pyplot window, pausing ``1 / fps`` s per frame.
+
+    ``inset`` adds a ``FlockInset`` in a right-hand corner: "on" in every frame, "auto" in the
+    frames where the flock spans at most INSET_AUTO_SHARE of the map's width (``wants_inset``),
+    "off" never (the frame is then exactly what it was before insets existed). The corner is the
+    one hiding less of the site and of ``avoid`` (M, 2) points, such as the episode's flock
+    centres and drone positions; the wind label moves to the other right-hand corner.
     """
 
     def __init__(
@@ -227,11 +415,15 @@ class FrameRenderer:
         fps: float = 20.0,
         dpi: int = 100,
         label: str = "",
+        inset: str = "auto",
+        avoid: np.ndarray | None = None,
     ):
         width, height = size_px
         self.label = label  # printed after the scenario name on every frame
         if width < 16 or height < 16:
             raise ValueError(f"size_px = {size_px}: give (width, height) of at least 16 pixels")
+        wants_inset(inset, 0.0, 1.0)  # refuses an unknown mode before any figure exists
+        self.inset_mode = inset
         self.scenario = scenario
         self.interactive = interactive
         self.pause = 1.0 / fps
@@ -257,7 +449,14 @@ class FrameRenderer:
         ax.set_autoscale_on(False)
         draw_site(ax, scenario)
         draw_scale_bar(ax, (x0, x1, y0, y1))
-        draw_wind(ax, scenario, (x0, x1, y0, y1))
+        self.map_width = x1 - x0  # m
+        corner, box = "upper", None
+        if inset != "off":
+            corner = inset_corner(scenario, (x0, x1, y0, y1), size_px, avoid)
+            status_px = 2 * 1.25 * STATUS_FONT_PT * dpi / 72.0  # two lines of text, in pixels
+            box = inset_box(size_px, corner, status_px if corner == "upper" else 0.0)
+        wind_corner = "lower" if box is not None and corner == "upper" else "upper"
+        draw_wind(ax, scenario, (x0, x1, y0, y1), wind_corner)
         self.ax = ax
         self.track = LineCollection([], linewidths=1.2, zorder=3)
         ax.add_collection(self.track)
@@ -284,11 +483,14 @@ class FrameRenderer:
             transform=ax.transAxes,
             ha="left",
             va="top",
-            fontsize=8,
+            fontsize=STATUS_FONT_PT,
             family="monospace",
             color=INK,
             zorder=7,
         )
+        self.inset: FlockInset | None = None
+        if box is not None:
+            self.inset = FlockInset(self.fig, ax, scenario, box)
 
     def draw(
         self, state: WorldState, index: int, track: np.ndarray, info: Mapping[str, Any]
@@ -307,6 +509,11 @@ class FrameRenderer:
         drones = np.asarray(state.pursuer_pos[index], dtype=np.float64)  # (P, 2)
         self.pursuer.set_data(drones[:, 0], drones[:, 1])
         self.text.set_text(status_line(self.scenario, info, self.label))
+        if self.inset is not None:
+            shown = n > 0 and wants_inset(self.inset_mode, flock_span(pos), self.map_width)
+            self.inset.show(shown)
+            if shown:
+                self.inset.update(pos, vel, drones, segments, colours)
         canvas = self.fig.canvas
         canvas.draw()
         if not isinstance(canvas, FigureCanvasAgg):
@@ -511,6 +718,29 @@ def blend_palette() -> np.ndarray:
     return colours[:256]
 
 
+def animation_inset(
+    scenario: Scenario,
+    frames: Sequence[Mapping[str, Any]],
+    size_px: tuple[int, int],
+    inset: str,
+) -> tuple[str, np.ndarray]:
+    """The inset mode for a whole animation and the flock's (T', 2) centres in the frames with
+    birds. "auto" becomes "on" when the flock's median span over the frames is at most
+    INSET_AUTO_SHARE of the map's width, else "off"; "on" and "off" stay as they are."""
+    wants_inset(inset, 0.0, 1.0)
+    flocks = [np.asarray(f["bird_pos"], dtype=np.float64).reshape(-1, 2) for f in frames]
+    flocks = [pos for pos in flocks if len(pos)]
+    centres = np.array([(pos.min(axis=0) + pos.max(axis=0)) / 2.0 for pos in flocks])
+    centres = centres.reshape(-1, 2)
+    if inset != "auto":
+        return inset, centres
+    if not flocks:
+        return "off", centres
+    x0, x1, _, _ = fit_aspect(site_extent(scenario), size_px[0] / size_px[1])
+    span = float(np.median([flock_span(pos) for pos in flocks]))
+    return ("on" if wants_inset("auto", span, x1 - x0) else "off"), centres
+
+
 def episode_animation(
     scenario: Scenario,
     frames: Sequence[Mapping[str, Any]],
@@ -519,12 +749,15 @@ def episode_animation(
     stride: int = 2,
     size_px: tuple[int, int] = (480, 480),
     label: str = "",
+    inset: str = "auto",
 ) -> Path:
     """Write a looping GIF of every ``stride``-th recorded frame, played at ``fps``.
 
     ``frames`` is as for ``episode_still``; optional ``outcome`` and ``breached_birds``
     entries are printed too, after ``label`` (such as the controller and seed). Frames share
-    one fixed palette (``blend_palette``) to keep the file small.
+    one fixed palette (``blend_palette``) to keep the file small. ``inset`` is
+    ``FrameRenderer``'s, except that "auto" decides once for the whole animation (see
+    ``animation_inset``), so the inset does not blink on and off.
     """
     from PIL import Image
 
@@ -532,9 +765,11 @@ def episode_animation(
     if stride < 1 or fps <= 0:
         raise ValueError(f"stride = {stride}, fps = {fps}: need stride >= 1 and fps > 0")
     drones = _stack_drones(frames)  # (T, P, 2)
+    mode, centres = animation_inset(scenario, frames, size_px, inset)
+    avoid = np.concatenate([centres, drones.reshape(-1, 2)])
     palette = Image.new("P", (1, 1))
     palette.putpalette(blend_palette().ravel().tolist())
-    renderer = FrameRenderer(scenario, size_px=size_px, label=label)
+    renderer = FrameRenderer(scenario, size_px=size_px, label=label, inset=mode, avoid=avoid)
     images: list[Image.Image] = []
     try:
         for t in range(0, len(frames), stride):
