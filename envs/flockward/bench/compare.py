@@ -256,11 +256,13 @@ def render_comparison(c: Comparison) -> str:
         only_b = s.mcnemar.n - only_a
         t = s.median_time_difference
         label = f"**{s.label}**" if s.label == POOLED else s.label
+        mcnemar = _p(s.mcnemar, s.mcnemar_adjusted)
+        wilcoxon = _p(s.wilcoxon, s.wilcoxon_adjusted)
         lines.append(
             f"| {label} | {s.pairs} | {s.mean_a:.3f} | {s.mean_b:.3f} | {s.difference:+.3f} | "
             f"[{lo:+.3f}, {hi:+.3f}] | {s.improvement:.2f} | [{plo:.2f}, {phi:.2f}] | "
-            f"{s.successes_a} | {s.successes_b} | {only_a} / {only_b} | {_p(s.mcnemar, s.mcnemar_adjusted)} | "
-            f"{s.both_succeeded} | {'-' if t is None else f'{t:+.1f} s'} | {_p(s.wilcoxon, s.wilcoxon_adjusted)} |"
+            f"{s.successes_a} | {s.successes_b} | {only_a} / {only_b} | {mcnemar} | "
+            f"{s.both_succeeded} | {'-' if t is None else f'{t:+.1f} s'} | {wilcoxon} |"
         )
     if c.unpaired:
         lines += ["", f"{c.unpaired} episode(s) appear in only one file and were left out."]

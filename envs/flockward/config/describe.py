@@ -25,6 +25,14 @@ def describe(scenario: Scenario) -> str:
         f"  protected: {zone_text(site.protected)}",
         f"  goal:      {zone_text(site.goal)}",
         f"  route:     {point_text(site.flock_start)} -> {point_text(site.destination)} m",
+        *(
+            [
+                f"  second:    {round(100 * site.second_share, 6):g} % of the birds start as a "
+                f"second group at {point_text(site.second_start)} m"
+            ]
+            if site.second_start is not None
+            else []
+        ),
         f"  pursuer:   start {point_text(scenario.pursuer.start)} m, "
         f"max {n(scenario.pursuer.max_speed)} m/s, {n(scenario.pursuer.max_accel)} m/s^2",
         f"  episode:   dt {n(ep.dt)} s x {ep.max_steps} steps = {n(ep.dt * ep.max_steps)} s",

@@ -258,7 +258,22 @@ def _check_flock(flock: FlockParams) -> None:
 
 def _site_text(site: SiteParams, key: str) -> str:
     value = getattr(site, key)
+    if value is None:
+        return "not given"
+    if isinstance(value, float | int):
+        return number_text(value)
     return zone_text(value) if isinstance(value, Circle | Polygon) else point_text(value)
+
+
+def _second_group_broken(site: SiteParams) -> bool:
+    """A second start without a share strictly between 0 and 1, or a share without a start."""
+    if site.second_start is None:
+        return site.second_share != 0.0
+    return not 0.0 < site.second_share < 1.0
+
+
+def _second_start_in(site: SiteParams, test: Callable[[tuple[float, float]], bool]) -> bool:
+    return site.second_start is not None and test(site.second_start)
 
 
 def _check_site(site: SiteParams) -> None:
@@ -285,6 +300,27 @@ def _check_site(site: SiteParams) -> None:
             lambda: geometry.zone_contains(site.protected, site.flock_start),
             "must lie outside",
             "must not contain",
+        ),
+        (
+            "second_share",
+            "second_start",
+            lambda: _second_group_broken(site),
+            "must lie in (0, 1) with, and be 0 without,",
+            "needs site.second_share in (0, 1), and 0 without it; now",
+        ),
+        (
+            "second_start",
+            "protected",
+            lambda: _second_start_in(site, lambda p: geometry.zone_contains(site.protected, p)),
+            "must lie outside",
+            "must not contain",
+        ),
+        (
+            "second_start",
+            "destination",
+            lambda: _second_start_in(site, lambda p: math.dist(p, site.destination) < 1e-6),
+            "must differ (it sets the second group's heading) from",
+            "must differ (it sets the second group's heading) from",
         ),
     )
     for first, second, broken, rule_first, rule_second in relations:

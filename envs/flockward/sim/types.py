@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from flockward.sim.spec import (
+    COORD,
     POINT,
     Spec,
     number,
@@ -264,11 +265,25 @@ class SiteParams:
     goal: Zone = param_factory(lambda: Circle((0.0, 500.0), 150.0), Spec("zone"))
     # the flock's roost or feeding ground
     destination: tuple[float, float] = param((800.0, 0.0), POINT)
-    # centre of the initial formation
+    # centre of the initial formation (of the first group when the flock starts as two)
     flock_start: tuple[float, float] = param((-600.0, 0.0), POINT)
+    # centre of a second group's initial formation; None: the flock starts as one group
+    second_start: tuple[float, float] | None = param(
+        None, Spec("point", -COORD, COORD, "m", optional=True)
+    )
+    # share of the birds that start in the second group: 0 without second_start, else in (0, 1)
+    second_share: float = param(0.0, number(0.0, 1.0))
 
     def __post_init__(self) -> None:
         _check(self)
+
+    def group_counts(self, count: int) -> tuple[int, int]:
+        """Birds in the first and second group for a flock of ``count``: the second gets
+        round(second_share * count), at least one and never all (none without a second start)."""
+        if self.second_start is None or count < 2:
+            return count, 0
+        second = min(max(round(self.second_share * count), 1), count - 1)
+        return count - second, second
 
 
 @dataclass(frozen=True)
