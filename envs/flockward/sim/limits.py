@@ -61,6 +61,7 @@ __all__ = [
     "zone_ok",
     "zone_table",
     "zone_text",
+    "zones_text",
 ]
 
 # --------------------------------------------------------------------------------------------
@@ -96,6 +97,13 @@ def value_text(value: object) -> str:
 
 def point_text(p: tuple[float, float]) -> str:
     return f"({number_text(p[0])}, {number_text(p[1])})"
+
+
+def zones_text(zones: Zone | tuple[Zone, ...]) -> str:
+    """One zone in words, or several numbered: '1: circle ...; 2: polygon ...'."""
+    if isinstance(zones, tuple):
+        return "; ".join(f"{i}: {zone_text(z)}" for i, z in enumerate(zones, start=1))
+    return zone_text(zones)
 
 
 def zone_text(zone: Zone) -> str:
@@ -262,7 +270,14 @@ def _site_text(site: SiteParams, key: str) -> str:
         return "not given"
     if isinstance(value, float | int):
         return number_text(value)
-    return zone_text(value) if isinstance(value, Circle | Polygon) else point_text(value)
+    if isinstance(value, Circle | Polygon | tuple) and key in ("protected", "goal"):
+        return zones_text(value)
+    return point_text(value)
+
+
+def _in_protected(site: SiteParams, point: tuple[float, float]) -> bool:
+    """Whether a point lies strictly inside any protected zone."""
+    return any(geometry.zone_contains(z, point) for z in site.protected_zones)
 
 
 def _second_group_broken(site: SiteParams) -> bool:
@@ -283,7 +298,7 @@ def _check_site(site: SiteParams) -> None:
         (
             "goal",
             "protected",
-            lambda: geometry.zones_overlap(site.goal, site.protected),
+            lambda: any(geometry.zones_overlap(site.goal, z) for z in site.protected_zones),
             "must lie clear of",
             "must lie clear of",
         ),
@@ -297,7 +312,7 @@ def _check_site(site: SiteParams) -> None:
         (
             "flock_start",
             "protected",
-            lambda: geometry.zone_contains(site.protected, site.flock_start),
+            lambda: _in_protected(site, site.flock_start),
             "must lie outside",
             "must not contain",
         ),
@@ -311,7 +326,7 @@ def _check_site(site: SiteParams) -> None:
         (
             "second_start",
             "protected",
-            lambda: _second_start_in(site, lambda p: geometry.zone_contains(site.protected, p)),
+            lambda: _second_start_in(site, lambda p: _in_protected(site, p)),
             "must lie outside",
             "must not contain",
         ),

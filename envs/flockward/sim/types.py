@@ -255,13 +255,18 @@ class Polygon:
 
 
 Zone = Circle | Polygon
+# Most protected zones a site may have.
+MAX_ZONES = 8
 
 
 @dataclass(frozen=True)
 class SiteParams:
     """Where things are: the airspace to protect, where to herd to, where the flock wants to go."""
 
-    protected: Zone = param_factory(lambda: Circle((0.0, 0.0), 150.0), Spec("zone"))
+    # one zone, or several (a tuple; a config writes a list): a bird inside any is a breach
+    protected: Zone | tuple[Zone, ...] = param_factory(
+        lambda: Circle((0.0, 0.0), 150.0), Spec("zones", 1, MAX_ZONES, "zones")
+    )
     goal: Zone = param_factory(lambda: Circle((0.0, 500.0), 150.0), Spec("zone"))
     # the flock's roost or feeding ground
     destination: tuple[float, float] = param((800.0, 0.0), POINT)
@@ -275,7 +280,18 @@ class SiteParams:
     second_share: float = param(0.0, number(0.0, 1.0))
 
     def __post_init__(self) -> None:
+        # A list of zones is held as a tuple, and a list of one zone as that zone, so one zone
+        # written either way is the same site (and the same scenario hash).
+        zones = self.protected
+        if isinstance(zones, list | tuple):
+            object.__setattr__(self, "protected", zones[0] if len(zones) == 1 else tuple(zones))
         _check(self)
+
+    @property
+    def protected_zones(self) -> tuple[Zone, ...]:
+        """Every protected zone, in the order given (one zone: a tuple of one)."""
+        zones = self.protected
+        return zones if isinstance(zones, tuple) else (zones,)
 
     def group_counts(self, count: int) -> tuple[int, int]:
         """Birds in the first and second group for a flock of ``count``: the second gets
