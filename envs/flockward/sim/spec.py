@@ -154,7 +154,6 @@ class Spec:
             return item.number_ok(lo, integer) and item.number_ok(hi, integer) and bool(lo <= hi)
         raise AssertionError(kind)
 
-
     def _zones_ok(self, value: object) -> bool:
         """A valid zone record; for "zones" also a tuple of lo to hi valid zones."""
         # Imported here: zones are records of flockward.sim.types, which imports this module.
