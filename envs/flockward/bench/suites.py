@@ -66,6 +66,8 @@ KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
     ("standard", 3): "67671cc93d2a9415815c4687ca74e336a84b72fbf317af5053c5f265a179d1fd",
     ("stress", 3): "fc5f74a338932c19837c828ce45b89888601c82241abd5bac0fd621e0f422fd2",
     ("validation", 3): "ee9f4da0047d055068f389cf86ab107fd7c906b4d1f12b74a456566a8a490531",
+    # Standard 4: three families added (far-goal, two-zones, two-flocks).
+    ("standard", 4): "f618b0aa220d6ec5a895adaf1d348ac0f06b64da34b243f9a02d8361cfded877",
 }
 
 _MAX_SEED = 2**31 - 1
