@@ -263,7 +263,7 @@ MAX_ZONES = 8
 class SiteParams:
     """Where things are: the airspace to protect, where to herd to, where the flock wants to go."""
 
-    # one zone, or several (a tuple; a config writes a list): a bird inside any is a breach
+    # airspace birds must stay out of: one zone or a list of zones (a bird in any is a breach)
     protected: Zone | tuple[Zone, ...] = param_factory(
         lambda: Circle((0.0, 0.0), 150.0), Spec("zones", 1, MAX_ZONES, "zones")
     )
