@@ -37,7 +37,7 @@ from flockward.bench.statistics import (
 )
 
 POOLED = "all families"
-ALPHA = 0.05  # level of every verdict: the pooled interval's and the Holm-adjusted family tests'
+ALPHA = 0.05  # level of the Holm-adjusted family tests (the pooled verdict reads the 95 % interval)
 
 
 @dataclass(frozen=True)
