@@ -162,3 +162,20 @@ def test_first_run_announces_the_kernel_compile(
     assert "compiling the simulator's kernels on first use" in capsys.readouterr().err
     assert main(["check", SHIPPED[0]]) == 0  # a command that simulates nothing stays quiet
     assert capsys.readouterr().err == ""
+
+
+def test_error_in_an_array_of_zone_tables_names_its_header_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    bad = tmp_path / "zones.toml"
+    bad.write_text(
+        'name = "zones"\n[site]\nflock_start = [-600.0, 0.0]\n'
+        "[[site.protected]]\ncircle = { center = [0.0, 0.0], radius = 150.0 }\n"
+        "[[site.protected]]  # two vertices only\npolygon = [[1.0, 1.0], [2.0, 2.0]]\n"
+    )
+    assert main(["check", str(bad)]) == 2
+    err = capsys.readouterr().err.splitlines()
+    assert err == [
+        f"{bad}:6: key 'site.protected.2.polygon' = [[1, 1], [2, 2]]: must list 3 to 256 "
+        "vertices [x, y]"
+    ]

@@ -19,7 +19,10 @@ from flockward_baselines.cli import main
 
 
 def _pair_results() -> tuple[dict, dict]:
-    """A wins 'fast' (quicker successes), B wins 'edge' (A breaches where B holds), 'same' ties."""
+    """A wins 'fast' (quicker successes), B scores higher on 'edge' (A breaches where B holds,
+    neither succeeds), 'same' ties, B succeeds where A breaches on 'held', and A alone succeeds
+    in 6 of 12 episodes of 'mild' (raw McNemar p = 2 / 2^6 = 0.031, not significant once
+    corrected for five families)."""
     a_eps, b_eps = [], []
     for seed in range(12):
         a_eps.append(_ep("fast", "success", t=40.0 + seed, seed=seed))
@@ -28,6 +31,10 @@ def _pair_results() -> tuple[dict, dict]:
         b_eps.append(_ep("edge", "timeout", clearance=30.0, seed=seed))
         a_eps.append(_ep("same", "timeout", seed=seed))
         b_eps.append(_ep("same", "timeout", seed=seed))
+        a_eps.append(_ep("held", "breach", breached=1, seed=seed))
+        b_eps.append(_ep("held", "success", t=60.0, seed=seed))
+        a_eps.append(_ep("mild", "success" if seed < 6 else "timeout", t=50.0, seed=seed))
+        b_eps.append(_ep("mild", "timeout", seed=seed))
     b_eps.reverse()  # pairing goes by (family, seed), not file order
     return _result("alpha", "state", a_eps), _result("beta", "state", b_eps)
 
@@ -45,8 +52,8 @@ def test_pairs_by_family_and_seed() -> None:
 def test_comparison_statistics_against_scipy() -> None:
     a, b = _pair_results()
     c = compare_results(a, b, reps=500)
-    assert [f.label for f in c.families] == ["fast", "edge", "same"]
-    fast, edge, same = c.families
+    assert [f.label for f in c.families] == ["fast", "edge", "same", "held", "mild"]
+    fast, edge, same, held, mild = c.families
     # Scores recomputed by hand-built pairing; the difference is their mean.
     a_fast = [episode_score(e) for e in a["episodes"] if e["family"] == "fast"]
     b_fast = [episode_score(e) for e in sorted(b["episodes"], key=lambda e: e["seed"])
@@ -62,16 +69,40 @@ def test_comparison_statistics_against_scipy() -> None:
     assert edge.improvement == 0.0 and edge.difference < 0 and edge.significant
     assert same.difference == 0.0 and not same.significant
     # Pooled probability of improvement = mean over families of Mann-Whitney U / (n m).
-    expected = np.mean([1.0, 0.0, 0.5])
+    expected = np.mean([1.0, 0.0, 0.5, 0.0, 0.75])
     assert c.pooled.improvement == pytest.approx(expected)
+    # McNemar: 'held' 0 of 12 discordant pairs to A, 'mild' 6 of 6 (binomial test, scipy).
+    assert held.mcnemar.p_value == pytest.approx(scipy.stats.binomtest(0, 12).pvalue)
+    assert mild.mcnemar.p_value == pytest.approx(scipy.stats.binomtest(6, 6).pvalue)
+    assert mild.mcnemar.p_value < 0.05
     line = c.verdict()
-    assert "alpha better on fast" in line and "beta better on edge" in line
-    assert "no significant difference on 1 family" in line
+    assert "per family (Holm-corrected over 5)" in line
+    assert "beta succeeds more often on held" in line and "alpha succeeds sooner on fast" in line
+    # 'mild' is significant uncorrected but not after Holm; 'edge' differs in score only (breach
+    # against timeout), which neither test sees.
+    assert "alpha succeeds more often" not in line
+    assert "no significant difference on 3 families" in line
+
+
+def test_holm_adjusts_each_test_over_the_families() -> None:
+    """Holm's adjusted p, worked by hand from the raw p-values: m = 5 families, McNemar raw
+    p = 1, 1, 1, 2^-11 ('held'), 2^-5 ('mild'): sorted, 5 * 2^-11, then max(.., 4 * 2^-5) = 0.125,
+    then 1 for the rest. Wilcoxon: only 'fast' has pairs; 5 times its raw p."""
+    a, b = _pair_results()
+    c = compare_results(a, b, reps=100)
+    fast, _, same, held, mild = c.families
+    assert held.mcnemar_adjusted == pytest.approx(5 * 2.0**-11)
+    assert mild.mcnemar_adjusted == pytest.approx(4 * 2.0**-5)
+    assert same.mcnemar_adjusted == 1.0
+    assert fast.wilcoxon_adjusted == pytest.approx(5 * fast.wilcoxon.p_value)
+    assert c.pooled.mcnemar_adjusted is None
+    table = render_comparison(c)
+    assert f"| {mild.mcnemar.p_value:.2g} (0.12) |" in table
 
 
 def test_mcnemar_in_comparison_matches_binomtest() -> None:
     a, b = _pair_results()
-    for ep in a["episodes"][:9]:  # 3 of alpha's 'fast' successes become timeouts
+    for ep in a["episodes"][:15]:  # 3 of alpha's 'fast' successes become timeouts
         if ep["family"] == "fast":
             ep.update(outcome="timeout", success=False, time_to_success=None)
     c = compare_results(a, b, reps=200)
@@ -97,8 +128,8 @@ def test_compare_command(results: Path, tmp_path: Path, capsys: Any) -> None:
     out = capsys.readouterr().out
     lines = out.splitlines()
     assert lines[0].startswith("# alpha (A) against beta (B)")
-    assert "better on" in lines[2]
-    assert "| **all families** | 36 |" in out and "| edge | 12 |" in out
+    assert "succeeds more often on" in lines[2]
+    assert "| **all families** | 60 |" in out and "| edge | 12 |" in out
     assert png.read_bytes().startswith(PNG_MAGIC)
 
 

@@ -67,7 +67,13 @@ def test_every_record_field_has_a_spec() -> None:
             lambda: SiteParams(protected=Circle((0.0, 0.0), 0.0)),
             "SiteParams",
             "protected",
-            "must be { circle",
+            "must be one zone, { circle",
+        ),
+        (
+            lambda: SiteParams(protected=(Circle((0.0, 0.0), 10.0),) * 9),
+            "SiteParams",
+            "protected",
+            "a list of 1 to 8 such zones",
         ),
         (
             lambda: SiteParams(protected=Polygon(((0.0, 0.0), (1.0, 1.0), (2.0, 2.0)))),

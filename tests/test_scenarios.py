@@ -89,8 +89,8 @@ def test_shipped_scenario_validates(path: Path) -> None:
     assert scenario.description
     assert path.read_text().startswith("#"), "every config starts with a header comment"
     assert load_scenario(path.stem) == scenario  # by name and by path alike
-    # Layout rules of the benchmark: flock starts 500-700 m from the zone, dt = 0.1 s.
-    zone = scenario.site.protected
+    # Layout rules of the benchmark: flock starts 500-700 m from the (first) zone, dt = 0.1 s.
+    zone = scenario.site.protected_zones[0]
     centre = zone.center if isinstance(zone, Circle) else tuple(np.mean(zone.vertices, axis=0))
     assert 500.0 <= math.dist(centre, scenario.site.flock_start) <= 700.0
     assert scenario.episode.dt == 0.1

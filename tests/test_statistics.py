@@ -5,7 +5,10 @@ example 81/263 -> [0.2553, 0.3662] (from memory, matched by scipy); Darwin's Zea
 differences as analysed in scipy.stats.wilcoxon's documentation (W = 24, exact p = 0.04126, from
 memory); McNemar's exact test as a binomial test on the discordant pairs (Agresti, Categorical
 Data Analysis, section 10.1); probability of improvement and performance profiles as defined by
-Agarwal et al. (NeurIPS 2021).
+Agarwal et al. (NeurIPS 2021); Holm's step-down procedure (Holm 1979, Scand. J. Statist.
+6:65-70) on the four-hypothesis example of Wikipedia's "Holm-Bonferroni method" article (p = 0.01,
+0.04, 0.03, 0.005 at alpha 0.05: H1 and H4 rejected), with adjusted p-values computed by hand.
+statsmodels' multipletests is not installed in the project's environment, so it is not the check.
 """
 
 from __future__ import annotations
@@ -15,6 +18,7 @@ import pytest
 import scipy.stats
 
 from flockward.bench.statistics import (
+    holm_adjust,
     mcnemar_exact,
     paired_bootstrap,
     performance_profile,
@@ -141,3 +145,26 @@ def test_performance_profile_hand_worked() -> None:
     assert (low[0], high[0], low[2], high[2]) == (1.0, 1.0, 0.0, 0.0)
     # Only the first task varies under resampling: 0, 1 or 2 of its scores exceed 0.3.
     assert (low[1], high[1]) == (0.5, 1.0)
+
+
+def test_holm_worked_example() -> None:
+    # Wikipedia, "Holm-Bonferroni method": 0.005 < 0.05/4 and 0.01 < 0.05/3 are rejected, 0.03 is
+    # not below 0.05/2 so it and 0.04 are kept. Adjusted by hand, sorted 0.005, 0.01, 0.03, 0.04:
+    # 4 * 0.005 = 0.02; max(0.02, 3 * 0.01) = 0.03; max(0.03, 2 * 0.03) = 0.06; max(0.06, 0.04).
+    adjusted = holm_adjust([0.01, 0.04, 0.03, 0.005])
+    assert adjusted == pytest.approx([0.03, 0.06, 0.06, 0.02])
+    assert [p < 0.05 for p in adjusted] == [True, False, False, True]
+
+
+def test_holm_caps_at_one_and_keeps_single_tests() -> None:
+    # Hand-worked: 3 * 0.5 = 1.5 -> 1; max(1, 2 * 0.6) -> 1; a single test is left alone.
+    assert holm_adjust([0.6, 0.5, 0.001]) == pytest.approx([1.0, 1.0, 0.003])
+    assert holm_adjust([0.2]) == [0.2]
+    assert holm_adjust([]) == []
+    with pytest.raises(ValueError, match=r"p-values in \[0, 1\]"):
+        holm_adjust([0.1, 1.5])
+
+
+def test_holm_ties_keep_order() -> None:
+    # Hand-worked: equal p-values get equal adjusted values (2 * 0.02 = 0.04, max with 1 * 0.02).
+    assert holm_adjust([0.02, 0.02]) == pytest.approx([0.04, 0.04])

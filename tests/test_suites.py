@@ -4,7 +4,9 @@ from __future__ import annotations
 
 import shutil
 from pathlib import Path
+from typing import Any
 
+import numpy as np
 import pytest
 
 from flockward.bench.suites import (
@@ -15,6 +17,7 @@ from flockward.bench.suites import (
     suite_hash,
 )
 from flockward.config.scenarios import ConfigError, list_scenarios
+from flockward.sim.geometry import zone_center
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -81,6 +84,16 @@ def test_standard_suite_covers_the_benchmark() -> None:
     assert any(
         e.scenario.flock.burst_speed >= 0.95 * e.scenario.pursuer.max_speed for e in suite.entries
     )
+
+    # A goal beyond the zone seen from the start, two protected zones, a flock in two groups.
+    def far_side(entry: Any) -> bool:
+        site = entry.scenario.site
+        start, zone = np.asarray(site.flock_start), np.asarray(zone_center(site.protected_zones[0]))
+        return float((np.asarray(zone_center(site.goal)) - zone) @ (zone - start)) > 0.0
+
+    assert any(far_side(e) for e in suite.entries)
+    assert any(len(e.scenario.site.protected_zones) >= 2 for e in suite.entries)
+    assert any(e.scenario.site.second_start is not None for e in suite.entries)
     per_family: dict[str, int] = {}
     for entry in suite.entries:
         per_family[entry.family] = per_family.get(entry.family, 0) + entry.count

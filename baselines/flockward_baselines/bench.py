@@ -434,7 +434,7 @@ def _timed_together(
 def _scaling_runs(birds: int) -> tuple[dict[str, Callable[[], object]], bool]:
     """What scaling_table times at one flock size, and whether "auto" picked the grid."""
     from flockward.sim import metrics
-    from flockward.sim.geometry import zone_arrays
+    from flockward.sim.geometry import site_zone_arrays, zone_arrays
 
     worlds = {search: _murmuration_world(birds, search) for search in NEIGHBOUR_SEARCHES}
     action = np.zeros((1, worlds["auto"].n_drones, 2))
@@ -446,7 +446,7 @@ def _scaling_runs(birds: int) -> tuple[dict[str, Callable[[], object]], bool]:
     radius = world.scenario.flock.linking_radius
     runs["metrics"] = partial(
         metrics.step_metrics, s.bird_pos, s.bird_vel, s.count, s.pursuer_pos, radius,
-        zone_arrays(site.protected), zone_arrays(site.goal),
+        site_zone_arrays(site.protected), zone_arrays(site.goal),
     )  # fmt: skip
     for method in ("pairs", "grid"):
         runs[f"components {method}"] = partial(

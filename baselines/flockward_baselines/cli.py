@@ -73,9 +73,10 @@ def _summary(path: Path, kind: str) -> str:
         f, rnd = s.flock, s.randomise
         birds = f"{rnd.count[0]}-{rnd.count[1]}" if rnd.count else str(f.count)
         drawn = ", randomised" if rnd != Randomisation() else ""
-        zone = type(s.site.protected).__name__.lower()
+        kinds = [type(z).__name__.lower() for z in s.site.protected_zones]
+        zone = f"{kinds[0]} zone" if len(kinds) == 1 else f"{len(kinds)} zones ({', '.join(kinds)})"
         return (
-            f"scenario '{s.name}': {birds} {f.name} ({f.formation}{drawn}), {zone} zone, "
+            f"scenario '{s.name}': {birds} {f.name} ({f.formation}{drawn}), {zone}, "
             f"{s.episode.max_steps} steps of {s.episode.dt:g} s, a decision every "
             f"{s.episode.decision_steps} ({round(s.episode.decision_period, 6):g} s)"
         )

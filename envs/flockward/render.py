@@ -89,8 +89,10 @@ def site_extent(scenario: Scenario, points: np.ndarray | None = None) -> Extent:
     Computed from the scenario alone, so every frame of an episode shares one view.
     """
     site = scenario.site
-    boxes = [zone_extent(site.protected), zone_extent(site.goal)]
+    boxes = [*(zone_extent(z) for z in site.protected_zones), zone_extent(site.goal)]
     xy = [site.destination, site.flock_start, scenario.pursuer.start]
+    if site.second_start is not None:
+        xy.append(site.second_start)
     xs = [b[0] for b in boxes] + [b[1] for b in boxes] + [p[0] for p in xy]
     ys = [b[2] for b in boxes] + [b[3] for b in boxes] + [p[1] for p in xy]
     if points is not None:
@@ -129,8 +131,9 @@ def zone_patch(zone: Zone, colour: str, zorder: float) -> patches.Patch:
 
 
 def draw_site(ax: Axes, scenario: Scenario) -> None:
-    """Protected zone, goal region and the flock's destination: the static part of every view."""
-    ax.add_patch(zone_patch(scenario.site.protected, AMBER, zorder=1))
+    """Protected zones, goal region and the flock's destination: the static part of every view."""
+    for zone in scenario.site.protected_zones:
+        ax.add_patch(zone_patch(zone, AMBER, zorder=1))
     ax.add_patch(zone_patch(scenario.site.goal, TEAL, zorder=1))
     dx, dy = scenario.site.destination
     ax.plot([dx], [dy], marker="X", markersize=8, color=PLUM, linestyle="none", zorder=2)

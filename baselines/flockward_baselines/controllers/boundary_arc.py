@@ -17,6 +17,11 @@ The push direction points at the goal, bent (by at most ``max_correction_deg``) 
 flock's sideways drift toward its destination, and away from the protected zone when the flock
 is within ``zone_margin`` of it.
 
+Several protected zones. The controller protects the most threatened one at each decision: every
+distance to "the zone" is the least over the zones (``flockward.sim.geometry``'s zone sets), so a
+rim bird's threat counts its nearest zone, and the push bends away from the zone nearest the
+flock centroid. With one zone this is exactly the single-zone controller.
+
 Assumes the state view (every bird's position and velocity, the episode's flock radii). With
 ``information = "sensed"`` it reads the birds as the scenario's sensor sees them instead (noisy,
 held between updates, lost tracks missing); with nothing sensed it commands nothing.
@@ -31,7 +36,7 @@ from typing import Any
 import numpy as np
 
 from flockward.controller import Controller, StateView
-from flockward.sim.geometry import convex_hull, signed_distance, zone_arrays, zone_center
+from flockward.sim.geometry import convex_hull, signed_distance, site_zone_arrays, zone_center
 from flockward.sim.types import FlockParams, Scenario
 from flockward_baselines.controllers.steering import around, fly_to
 
@@ -152,7 +157,7 @@ class BoundaryArc(Controller):
 
     def _prepare(self, scenario: Scenario) -> None:
         self._prepared = scenario
-        self._zone = zone_arrays(scenario.site.protected)
+        self._zone = site_zone_arrays(scenario.site.protected)
         self._goal = np.array(zone_center(scenario.site.goal))
 
     def push_direction(self, centroid: np.ndarray, flock_vel: np.ndarray) -> np.ndarray:

@@ -14,6 +14,9 @@ flying flock cannot, and at the paper's offsets it would sit inside the dodge ra
 flock, so both target points are pushed out to at least ``dodge_radius + standoff_margin`` from
 the birds, and the drone flies round the flock, not through it. The drone tracks the moving
 target points with the flock's mean velocity as feed-forward. Assumes the state view.
+
+Like the paper's shepherd, it reads only the flock and the goal, never the protected zones: with
+one zone or several it drives the flock straight at the goal, whatever lies between.
 """
 
 from __future__ import annotations

@@ -9,17 +9,19 @@ flock, start and noise. For the pooled set and each family this reports:
 - McNemar's exact test on success (only the discordant pairs carry information);
 - Wilcoxon's signed-rank test on time to success over the pairs where both succeeded.
 
-The verdict line calls a difference significant when its 95 % interval excludes zero. The
-per-family intervals are not corrected for testing several families at once: with eight
-families, expect a spurious "significant" family about once in three comparisons of equal
-controllers (1 - 0.95^8 = 0.34); read per-family verdicts as where to look, and the pooled one as
-the answer.
+The verdict line calls the pooled difference significant when its 95 % interval excludes zero
+(one test, no correction). Per family it reads the two tests, each corrected for the number of
+families with Holm's step-down method (statistics.holm_adjust): a family counts for success when
+its Holm-adjusted McNemar p is below 0.05 and for speed when its Holm-adjusted Wilcoxon p is; the
+table reports each raw p beside the adjusted one. Without the correction, eight families of two
+equal controllers would show a spurious difference in about one comparison in three
+(1 - 0.95^8 = 0.34); with it, in at most one in twenty for either test.
 """
 
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -27,6 +29,7 @@ import numpy as np
 from flockward.bench.leaderboard import LeaderboardError, episode_score, row_name
 from flockward.bench.statistics import (
     PairedTest,
+    holm_adjust,
     mcnemar_exact,
     paired_bootstrap,
     probability_of_improvement,
@@ -34,6 +37,7 @@ from flockward.bench.statistics import (
 )
 
 POOLED = "all families"
+ALPHA = 0.05  # level of the Holm-adjusted family tests (the pooled verdict reads the 95 % interval)
 
 
 @dataclass(frozen=True)
@@ -54,12 +58,33 @@ class PairedSummary:
     both_succeeded: int
     median_time_difference: float | None  # s, A - B over pairs both succeeded
     wilcoxon: PairedTest
+    # Holm-adjusted p over the families compared (None for the pooled set: a single test)
+    mcnemar_adjusted: float | None = None
+    wilcoxon_adjusted: float | None = None
 
     @property
     def significant(self) -> bool:
         """The score difference's 95 % interval excludes zero."""
         lo, hi = self.difference_ci
         return lo > 0.0 or hi < 0.0
+
+    @property
+    def success_winner(self) -> str | None:
+        """'a' or 'b' when one succeeds more often here at the Holm-adjusted McNemar p < ALPHA."""
+        p = self.mcnemar.p_value if self.mcnemar_adjusted is None else self.mcnemar_adjusted
+        if self.mcnemar.n == 0 or p >= ALPHA:
+            return None
+        only_a = self.mcnemar.statistic
+        return "a" if only_a > self.mcnemar.n - only_a else "b"
+
+    @property
+    def faster(self) -> str | None:
+        """'a' or 'b' when one succeeds sooner here at the Holm-adjusted Wilcoxon p < ALPHA."""
+        p = self.wilcoxon.p_value if self.wilcoxon_adjusted is None else self.wilcoxon_adjusted
+        t = self.median_time_difference
+        if self.wilcoxon.n == 0 or p >= ALPHA or not t:
+            return None
+        return "a" if t < 0.0 else "b"
 
 
 @dataclass(frozen=True)
@@ -74,7 +99,8 @@ class Comparison:
     unpaired: int  # episodes present in only one of the two files
 
     def verdict(self) -> str:
-        """One line: which controller scores higher overall and in which families."""
+        """One line: which controller scores higher overall; per family, which succeeds more often
+        and which sooner (Holm-corrected tests)."""
         p = self.pooled
         lo, hi = p.difference_ci
         if p.significant:
@@ -89,17 +115,25 @@ class Comparison:
                 f"no significant overall difference between {self.a} and {self.b} "
                 f"(A - B = {p.difference:+.3f}, 95 % CI [{lo:+.3f}, {hi:+.3f}])"
             )
-        wins_a = [f.label for f in self.families if f.significant and f.difference > 0]
-        wins_b = [f.label for f in self.families if f.significant and f.difference < 0]
+        return head + "; " + self._family_verdict()
+
+    def _family_verdict(self) -> str:
+        """Per family: who succeeds more often and who is faster, Holm-corrected."""
+        names = {"a": self.a, "b": self.b}
         parts = []
-        if wins_a:
-            parts.append(f"{self.a} better on {', '.join(wins_a)}")
-        if wins_b:
-            parts.append(f"{self.b} better on {', '.join(wins_b)}")
-        tied = len(self.families) - len(wins_a) - len(wins_b)
+        for who in ("a", "b"):
+            won = [f.label for f in self.families if f.success_winner == who]
+            if won:
+                parts.append(f"{names[who]} succeeds more often on {', '.join(won)}")
+        for who in ("a", "b"):
+            quick = [f.label for f in self.families if f.faster == who]
+            if quick:
+                parts.append(f"{names[who]} succeeds sooner on {', '.join(quick)}")
+        tied = sum(1 for f in self.families if f.success_winner is None and f.faster is None)
         if tied:
             parts.append(f"no significant difference on {tied} famil{'y' if tied == 1 else 'ies'}")
-        return head + "; " + "; ".join(parts) if parts else head
+        n = len(self.families)
+        return f"per family (Holm-corrected over {n}): " + "; ".join(parts)
 
 
 def _summary(
@@ -172,15 +206,28 @@ def compare_results(
         b=row_name(b),
         suite=str(a["suite"]),
         pooled=_summary(POOLED, tasks, reps, seed),
-        families=[_summary(f, [grouped[f]], reps, seed) for f in grouped],
+        families=_holm_corrected([_summary(f, [grouped[f]], reps, seed) for f in grouped]),
         unpaired=unpaired,
     )
 
 
-def _p(test: PairedTest) -> str:
+def _holm_corrected(families: list[PairedSummary]) -> list[PairedSummary]:
+    """The family summaries with their McNemar and Wilcoxon p-values Holm-adjusted, each test
+    over all families (a family whose test saw no informative pair counts with p = 1)."""
+    mcnemar = holm_adjust([f.mcnemar.p_value for f in families])
+    wilcoxon = holm_adjust([f.wilcoxon.p_value for f in families])
+    return [
+        replace(f, mcnemar_adjusted=pm, wilcoxon_adjusted=pw)
+        for f, pm, pw in zip(families, mcnemar, wilcoxon, strict=True)
+    ]
+
+
+def _p(test: PairedTest, adjusted: float | None) -> str:
+    """The raw p, and the Holm-adjusted one beside it where there is one ('-' without pairs)."""
     if test.n == 0:
         return "-"
-    return f"{test.p_value:.2g}"
+    raw = f"{test.p_value:.2g}"
+    return raw if adjusted is None else f"{raw} ({adjusted:.2g})"
 
 
 def render_comparison(c: Comparison) -> str:
@@ -193,11 +240,13 @@ def render_comparison(c: Comparison) -> str:
         "Episodes paired by (family, seed). Score difference = mean of A - B with a 95 % "
         "stratified bootstrap CI; P(A>B) = probability of improvement (ties count half); "
         "McNemar = exact test on success (A-only / B-only successes); Wilcoxon = signed-rank "
-        "test on time to success where both succeeded (median A - B).",
+        "test on time to success where both succeeded (median A - B). Per family, each p is "
+        "followed by its Holm-adjusted value (in parentheses) over the families; family verdicts "
+        "use the adjusted p.",
         "",
         "| episodes | pairs | score A | score B | A - B | 95 % CI | P(A>B) | 95 % CI | "
-        "success A | success B | A-only / B-only | McNemar p | both succeeded | "
-        "median time A - B | Wilcoxon p |",
+        "success A | success B | A-only / B-only | McNemar p (Holm) | both succeeded | "
+        "median time A - B | Wilcoxon p (Holm) |",
         "|---|---:|---:|---:|---:|---|---:|---|---:|---:|---:|---:|---:|---:|---:|",
     ]
     for s in (c.pooled, *c.families):
@@ -207,11 +256,13 @@ def render_comparison(c: Comparison) -> str:
         only_b = s.mcnemar.n - only_a
         t = s.median_time_difference
         label = f"**{s.label}**" if s.label == POOLED else s.label
+        mcnemar = _p(s.mcnemar, s.mcnemar_adjusted)
+        wilcoxon = _p(s.wilcoxon, s.wilcoxon_adjusted)
         lines.append(
             f"| {label} | {s.pairs} | {s.mean_a:.3f} | {s.mean_b:.3f} | {s.difference:+.3f} | "
             f"[{lo:+.3f}, {hi:+.3f}] | {s.improvement:.2f} | [{plo:.2f}, {phi:.2f}] | "
-            f"{s.successes_a} | {s.successes_b} | {only_a} / {only_b} | {_p(s.mcnemar)} | "
-            f"{s.both_succeeded} | {'-' if t is None else f'{t:+.1f} s'} | {_p(s.wilcoxon)} |"
+            f"{s.successes_a} | {s.successes_b} | {only_a} / {only_b} | {mcnemar} | "
+            f"{s.both_succeeded} | {'-' if t is None else f'{t:+.1f} s'} | {wilcoxon} |"
         )
     if c.unpaired:
         lines += ["", f"{c.unpaired} episode(s) appear in only one file and were left out."]

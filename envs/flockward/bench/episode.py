@@ -38,7 +38,7 @@ class EpisodeRecord:
     path_length: float  # m, drone track lengths summed over the drones
     energy: float  # (m/s^2)^2 s, integral of the commanded acceleration squared, over the drones
     episode_return: float
-    min_zone_clearance: float  # m, least signed distance of any bird to the zone (< 0: inside)
+    min_zone_clearance: float  # m, least signed distance of a bird to the protected zones (< 0: in)
     time_limit: float  # s, the longest the episode could last: step budget * dt
     duration: float  # s, how long the episode lasted: control steps * dt
     error: str | None = None  # why the controller failed the episode, if it did
@@ -74,7 +74,8 @@ def _track_length(before: np.ndarray, after: np.ndarray) -> float:
 
 
 def _zone_clearance(task: DivertTask) -> float:
-    """Signed distance (m) of world 0's bird nearest the protected zone: negative once inside."""
+    """Signed distance (m) of world 0's bird nearest a protected zone (the least over the zones
+    and birds): negative once inside."""
     n = int(task.state.count[0])
     if n == 0:
         return math.inf

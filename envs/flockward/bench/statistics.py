@@ -11,6 +11,9 @@
   Learning at the Edge of the Statistical Precipice", NeurIPS, section 4.2).
 - ``performance_profile``: the share of episodes scoring above each threshold, with a stratified
   bootstrap band (same paper, section 4.1).
+- ``holm_adjust``: Holm's step-down adjusted p-values for a family of tests (Holm 1979, "A
+  Simple Sequentially Rejective Multiple Test Procedure", Scand. J. Statist. 6:65-70): rejecting
+  where the adjusted p is below alpha keeps the chance of any false rejection at most alpha.
 """
 
 from __future__ import annotations
@@ -24,6 +27,7 @@ from scipy import stats
 
 __all__ = [
     "PairedTest",
+    "holm_adjust",
     "mcnemar_exact",
     "paired_bootstrap",
     "performance_profile",
@@ -80,6 +84,20 @@ def wilcoxon_signed_rank(differences: Any) -> PairedTest:
         return PairedTest(0, 0.0, 1.0)
     result = stats.wilcoxon(d, zero_method="wilcox")
     return PairedTest(informative, float(result.statistic), float(result.pvalue))
+
+
+def holm_adjust(p_values: Sequence[float]) -> list[float]:
+    """Holm's adjusted p-values, in the order given: for the i-th smallest of m p-values,
+    max over j <= i of (m - j + 1) p_(j), capped at 1 (monotone in the raw p)."""
+    p = np.asarray(p_values, dtype=float).reshape(-1)
+    if np.any(~np.isfinite(p)) or np.any((p < 0.0) | (p > 1.0)):
+        raise ValueError(f"holm_adjust needs p-values in [0, 1], got {p.tolist()}")
+    m = p.size
+    order = np.argsort(p, kind="stable")
+    stepped = np.maximum.accumulate((m - np.arange(m)) * p[order])
+    adjusted = np.empty(m)
+    adjusted[order] = np.minimum(stepped, 1.0)
+    return [float(x) for x in adjusted]
 
 
 def _poi_task(x: np.ndarray, y: np.ndarray) -> np.ndarray:

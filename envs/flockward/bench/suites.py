@@ -66,6 +66,10 @@ KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
     ("standard", 3): "67671cc93d2a9415815c4687ca74e336a84b72fbf317af5053c5f265a179d1fd",
     ("stress", 3): "fc5f74a338932c19837c828ce45b89888601c82241abd5bac0fd621e0f422fd2",
     ("validation", 3): "ee9f4da0047d055068f389cf86ab107fd7c906b4d1f12b74a456566a8a490531",
+    # Standard 4: three families added (far-goal, two-zones, two-flocks); stress 4: two open
+    # challenges added (far-goal-behind, two-flocks-trailing).
+    ("standard", 4): "f618b0aa220d6ec5a895adaf1d348ac0f06b64da34b243f9a02d8361cfded877",
+    ("stress", 4): "29571647fd5c766449df0c12f780811b3e982a3c38fc9aef09b7af311a3bed8c",
 }
 
 _MAX_SEED = 2**31 - 1

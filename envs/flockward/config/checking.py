@@ -22,7 +22,7 @@ from flockward.config.scenarios import (
 )
 from flockward.config.schema import SECTIONS
 
-__all__ = ["MAX_ERRORS", "file_errors", "key_line"]
+__all__ = ["MAX_ERRORS", "array_table_line", "file_errors", "key_line"]
 
 MAX_ERRORS = 50  # a file with more problems than this is reported up to here
 _HEADER = re.compile(r"^\s*\[\s*([A-Za-z0-9_.-]+)\s*\]\s*(#.*)?$")
@@ -67,6 +67,32 @@ def key_line(text: str, table: str | None, key: str) -> int | None:
     return None
 
 
+def array_table_line(text: str, name: str, index: int) -> int | None:
+    """The 1-based line of the ``index``-th (from 1) ``[[name]]`` header of a TOML text, or None:
+    where a key written as an array of tables (``[[site.protected]]``) has its index-th item."""
+    header = re.compile(rf"^\s*\[\[\s*{re.escape(name)}\s*\]\]\s*(#.*)?$")
+    seen = 0
+    for number, line in enumerate(text.splitlines(), start=1):
+        if header.match(line):
+            seen += 1
+            if seen == index:
+                return number
+    return None
+
+
+def _error_line(text: str, data: Mapping[str, object], dotted: str) -> int | None:
+    """The line an error's dotted key points at: where the key is set, or, for an item of an
+    array of tables (key.N...), that item's header."""
+    table, key = _table_and_key(data, dotted)
+    line = key_line(text, table, key)
+    parts = dotted.split(".")
+    at = 2 if table else 1  # the part after the key
+    if line is None and len(parts) > at and parts[at].isdigit():
+        name = f"{table}.{key}" if table else key
+        line = array_table_line(text, name, int(parts[at]))
+    return line
+
+
 def _with_line(error: ConfigError, shown: str, line: int | None) -> str:
     """The error's message with ``:LINE`` after the file name when the line is known."""
     message = str(error)
@@ -96,7 +122,7 @@ def file_errors(path: Path, kind: str) -> list[str]:
         except ConfigError as error:
             line = None
             if error.file == shown and error.key:
-                line = key_line(text, *_table_and_key(data, error.key))
+                line = _error_line(text, data, error.key)
             errors.append(_with_line(error, shown, line))
             if error.file != shown or not error.key or not _drop(data, error.key):
                 return errors

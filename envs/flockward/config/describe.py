@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from flockward.sim.limits import number_text, point_text, zone_text
+from flockward.sim.limits import number_text, point_text, zone_text, zones_text
 from flockward.sim.resets import RESET_DRAWS
 from flockward.sim.types import Scenario
 
@@ -22,9 +22,17 @@ def describe(scenario: Scenario) -> str:
         f"range {n(f.min_speed)}-{n(f.max_speed)} m/s; noise {n(f.noise_std)} "
         f"{'rad/s^0.5 (heading)' if f.noise_model == 'heading' else 'm/s^1.5 (acceleration)'}",
         f"  source:    {f.source}",
-        f"  protected: {zone_text(site.protected)}",
+        f"  protected: {zones_text(site.protected)}",
         f"  goal:      {zone_text(site.goal)}",
         f"  route:     {point_text(site.flock_start)} -> {point_text(site.destination)} m",
+        *(
+            [
+                f"  second:    {round(100 * site.second_share, 6):g} % of the birds start as a "
+                f"second group at {point_text(site.second_start)} m"
+            ]
+            if site.second_start is not None
+            else []
+        ),
         f"  pursuer:   start {point_text(scenario.pursuer.start)} m, "
         f"max {n(scenario.pursuer.max_speed)} m/s, {n(scenario.pursuer.max_accel)} m/s^2",
         f"  episode:   dt {n(ep.dt)} s x {ep.max_steps} steps = {n(ep.dt * ep.max_steps)} s",

@@ -159,6 +159,17 @@ def _zone(value: object, spec: Spec, origin: Origin) -> Zone:
     raise origin.unknown(str(shape), ("circle", "polygon"))
 
 
+def _zones(value: object, spec: Spec, origin: Origin) -> Zone | tuple[Zone, ...]:
+    """One zone, or a list of spec.lo to spec.hi zones (each reported as key.1, key.2, ...)."""
+    if not isinstance(value, list | tuple):
+        return _zone(value, spec, origin)
+    assert spec.lo is not None and spec.hi is not None
+    if not spec.lo <= len(value) <= spec.hi:
+        raise origin.error(value, spec.allowed())
+    zones = tuple(_zone(v, spec, origin.child(str(i))) for i, v in enumerate(value, start=1))
+    return zones[0] if len(zones) == 1 else zones
+
+
 def _plain_ok(value: object, spec: Spec) -> bool:
     """Whether a bool, str, name or choice value is allowed as it stands (no conversion)."""
     kind = spec.kind
@@ -200,6 +211,8 @@ def convert(value: object, spec: Spec, origin: Origin) -> object:
         return _point(value, spec, origin)
     if kind == "zone":
         return _zone(value, spec, origin)
+    if kind == "zones":
+        return _zones(value, spec, origin)
     if kind == "range":
         return _range(value, spec, origin)
     raise AssertionError(kind)

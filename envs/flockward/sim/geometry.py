@@ -8,6 +8,13 @@ inside numba. ``zone_arrays`` builds that array, shape (M, 2), all lengths in me
 - circle: row 1 = centre (x, y), so M = 2;
 - polygon: rows 1..n = the vertices in order (either orientation, not closed), so M = n + 1.
 
+Several zones (a site's protected zones) are one array too, ``zone_set_arrays``: row 0 =
+(``ZONE_SET``, k), then the k zones' arrays one after another. ``site_zone_arrays`` gives a
+single zone's plain array and several zones' set, so one zone is computed exactly as before.
+Every function below takes either form: for a set, the signed distance is the least over its
+zones (the distance to their union outside them; inside, negative, the depth in the zone the
+point is deepest in) and the nearest boundary point is that zone's.
+
 Signed distances are negative inside a zone and positive outside; a point on the boundary is at
 distance 0 and is not inside (zones are open sets, like shapely's ``contains``).
 """
@@ -23,6 +30,7 @@ from flockward.sim.types import Circle, Polygon, Zone
 
 CIRCLE = 0  # zone kind code in row 0 of a zone array
 POLYGON = 1
+ZONE_SET = 2  # several zones, listed after row 0
 
 _LCG_SEED = 20240531  # fixed seed of the enclosing-circle shuffle: results are deterministic
 
@@ -49,6 +57,45 @@ def zone_arrays(zone: Zone) -> np.ndarray:
     return out
 
 
+def zone_set_arrays(zones: tuple[Zone, ...] | list[Zone]) -> np.ndarray:
+    """Encode one or more zones as a zone-set array (module docstring)."""
+    if not zones:
+        raise ValueError("a zone set needs at least one zone")
+    parts = [zone_arrays(z) for z in zones]
+    head = np.array([[ZONE_SET, len(parts)]], dtype=np.float64)
+    return np.ascontiguousarray(np.concatenate([head, *parts]))
+
+
+def site_zone_arrays(zones: Zone | tuple[Zone, ...]) -> np.ndarray:
+    """A site's protected zones compiled: one zone's plain array, several zones' set array."""
+    if isinstance(zones, tuple):
+        return zone_arrays(zones[0]) if len(zones) == 1 else zone_set_arrays(zones)
+    return zone_arrays(zones)
+
+
+@compiled
+def _zone_rows(zone_arr: np.ndarray, row: int) -> int:
+    """Rows taken by the single zone whose header is at ``row`` of a zone or zone-set array."""
+    return 2 if zone_arr[row, 0] == CIRCLE else int(zone_arr[row, 1]) + 1
+
+
+@compiled
+def _nearest_member(zone_arr: np.ndarray, x: float, y: float) -> tuple[int, int, float]:
+    """First row, row count and signed distance of the set's zone nearest (x, y) (the least
+    signed distance; the first on a tie; NaN if any distance is NaN)."""
+    best_row, best_rows, best = 1, _zone_rows(zone_arr, 1), np.inf
+    row = 1
+    for _ in range(int(zone_arr[0, 1])):
+        rows = _zone_rows(zone_arr, row)
+        d = _zone_signed_distance_xy(zone_arr[row : row + rows], x, y)
+        if math.isnan(d):
+            return row, rows, d
+        if d < best:
+            best_row, best_rows, best = row, rows, d
+        row += rows
+    return best_row, best_rows, best
+
+
 @compiled
 def _closest_on_segment(
     ax: float, ay: float, bx: float, by: float, x: float, y: float
@@ -68,7 +115,15 @@ def _closest_on_segment(
 
 @compiled
 def _signed_distance_xy(zone_arr: np.ndarray, x: float, y: float) -> float:
-    """Signed distance (m) from (x, y) to the zone boundary: negative inside, positive outside."""
+    """Signed distance (m) from (x, y) to a zone or zone set: negative inside, positive outside."""
+    if zone_arr[0, 0] == ZONE_SET:
+        return _nearest_member(zone_arr, x, y)[2]
+    return _zone_signed_distance_xy(zone_arr, x, y)
+
+
+@compiled
+def _zone_signed_distance_xy(zone_arr: np.ndarray, x: float, y: float) -> float:
+    """Signed distance (m) from (x, y) to one zone's boundary: negative inside, positive outside."""
     if zone_arr[0, 0] == CIRCLE:
         return math.hypot(x - zone_arr[1, 0], y - zone_arr[1, 1]) - float(zone_arr[0, 1])
     if math.isnan(x) or math.isnan(y):
@@ -93,7 +148,17 @@ def _signed_distance_xy(zone_arr: np.ndarray, x: float, y: float) -> float:
 
 @compiled
 def nearest_boundary_point(zone_arr: np.ndarray, x: float, y: float) -> tuple[float, float]:
-    """The point of the zone boundary closest to (x, y); for a circle's centre, the +x point."""
+    """The point of the zone boundary closest to (x, y); for a circle's centre, the +x point. For
+    a zone set, the boundary point of its zone nearest (x, y)."""
+    if zone_arr[0, 0] == ZONE_SET:
+        row, rows, _ = _nearest_member(zone_arr, x, y)
+        return _zone_boundary_point(zone_arr[row : row + rows], x, y)
+    return _zone_boundary_point(zone_arr, x, y)
+
+
+@compiled
+def _zone_boundary_point(zone_arr: np.ndarray, x: float, y: float) -> tuple[float, float]:
+    """The point of one zone's boundary closest to (x, y)."""
     if zone_arr[0, 0] == CIRCLE:
         cx, cy, r = zone_arr[1, 0], zone_arr[1, 1], zone_arr[0, 1]
         d = math.hypot(x - cx, y - cy)

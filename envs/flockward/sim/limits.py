@@ -62,6 +62,7 @@ __all__ = [
     "zone_ok",
     "zone_table",
     "zone_text",
+    "zones_text",
 ]
 
 # --------------------------------------------------------------------------------------------
@@ -97,6 +98,13 @@ def value_text(value: object) -> str:
 
 def point_text(p: tuple[float, float]) -> str:
     return f"({number_text(p[0])}, {number_text(p[1])})"
+
+
+def zones_text(zones: Zone | tuple[Zone, ...]) -> str:
+    """One zone in words, or several numbered: '1: circle ...; 2: polygon ...'."""
+    if isinstance(zones, tuple):
+        return "; ".join(f"{i}: {zone_text(z)}" for i, z in enumerate(zones, start=1))
+    return zone_text(zones)
 
 
 def zone_text(zone: Zone) -> str:
@@ -260,7 +268,29 @@ def _check_flock(flock: FlockParams) -> None:
 
 def _site_text(site: SiteParams, key: str) -> str:
     value = getattr(site, key)
-    return zone_text(value) if isinstance(value, Circle | Polygon) else point_text(value)
+    if value is None:
+        return "not given"
+    if isinstance(value, float | int):
+        return number_text(value)
+    if isinstance(value, Circle | Polygon | tuple) and key in ("protected", "goal"):
+        return zones_text(value)
+    return point_text(value)
+
+
+def _in_protected(site: SiteParams, point: tuple[float, float]) -> bool:
+    """Whether a point lies strictly inside any protected zone."""
+    return any(geometry.zone_contains(z, point) for z in site.protected_zones)
+
+
+def _second_group_broken(site: SiteParams) -> bool:
+    """A second start without a share strictly between 0 and 1, or a share without a start."""
+    if site.second_start is None:
+        return site.second_share != 0.0
+    return not 0.0 < site.second_share < 1.0
+
+
+def _second_start_in(site: SiteParams, test: Callable[[tuple[float, float]], bool]) -> bool:
+    return site.second_start is not None and test(site.second_start)
 
 
 def _check_site(site: SiteParams) -> None:
@@ -270,7 +300,7 @@ def _check_site(site: SiteParams) -> None:
         (
             "goal",
             "protected",
-            lambda: geometry.zones_overlap(site.goal, site.protected),
+            lambda: any(geometry.zones_overlap(site.goal, z) for z in site.protected_zones),
             "must lie clear of",
             "must lie clear of",
         ),
@@ -284,9 +314,30 @@ def _check_site(site: SiteParams) -> None:
         (
             "flock_start",
             "protected",
-            lambda: geometry.zone_contains(site.protected, site.flock_start),
+            lambda: _in_protected(site, site.flock_start),
             "must lie outside",
             "must not contain",
+        ),
+        (
+            "second_share",
+            "second_start",
+            lambda: _second_group_broken(site),
+            "must lie in (0, 1) with, and be 0 without,",
+            "needs site.second_share in (0, 1), and 0 without it; now",
+        ),
+        (
+            "second_start",
+            "protected",
+            lambda: _second_start_in(site, lambda p: _in_protected(site, p)),
+            "must lie outside",
+            "must not contain",
+        ),
+        (
+            "second_start",
+            "destination",
+            lambda: _second_start_in(site, lambda p: math.dist(p, site.destination) < 1e-6),
+            "must differ (it sets the second group's heading) from",
+            "must differ (it sets the second group's heading) from",
         ),
     )
     for first, second, broken, rule_first, rule_second in relations:

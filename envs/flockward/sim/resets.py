@@ -22,8 +22,8 @@ class ResetSample:
     """One reset's draws: the flock as sampled and the initial state of birds and pursuer."""
 
     flock: FlockParams  # sampled count, gains, cruise speed and noise; heading_deg as used
-    start: np.ndarray  # (2,) m, flock centre after the position offset
-    heading: float  # rad, counter-clockwise from +x
+    start: np.ndarray  # (2,) m, flock centre (first group's) after the position offset
+    heading: float  # rad, counter-clockwise from +x (first group's)
     bird_pos: np.ndarray  # (n, 2) m
     bird_vel: np.ndarray  # (n, 2) m/s
     pursuer_pos: np.ndarray  # (2,) m, where every drone starts
@@ -36,13 +36,29 @@ RESET_DRAWS = ("count", "heading_deg", "offset_x", "offset_y", "gain_scale", "cr
                "noise_std")  # fmt: skip
 
 
+def _group(
+    flock: FlockParams, count: int, centre: np.ndarray, heading: float, rng: np.random.Generator
+) -> tuple[np.ndarray, np.ndarray]:
+    """Positions and velocities (count, 2) of one group in the flock's formation around
+    ``centre``, facing ``heading`` (rad) at the flock's initial speed."""
+    offsets = formation_offsets(flock.formation, count, flock.spacing, rng)
+    c, s = math.cos(heading), math.sin(heading)
+    rotation = np.array(((c, -s), (s, c)))
+    bird_pos = centre + offsets @ rotation.T
+    bird_vel = np.tile(np.array((c, s)) * flock.speed, (count, 1))
+    return bird_pos, bird_vel
+
+
 def sample_reset(scenario: Scenario, rng: np.random.Generator) -> ResetSample:
     """Draw one reset from ``scenario`` using only ``rng``.
 
     Always draws len(RESET_DRAWS) uniforms in RESET_DRAWS order (a range that is None ignores its
-    draw), then the formation's own draws (only 'cluster' makes any). The heading is the
-    configured heading_deg, or the bearing from the (offset) start to the destination when it is
-    None, plus the heading offset. Same generator state gives bit-identical arrays.
+    draw), then the formation's own draws (only 'cluster' makes any), first group first. The
+    heading is the configured heading_deg, or the bearing from the (offset) start to the
+    destination when it is None, plus the heading offset. A flock that starts as two groups
+    (site.second_start) places its second group, of site.second_share of the birds, in the same
+    formation around the second start moved by the same offset, listed after the first group's
+    birds. Same generator state gives bit-identical arrays.
     """
     flock, ranges = scenario.flock, scenario.randomise
     u = dict(zip(RESET_DRAWS, rng.random(len(RESET_DRAWS)), strict=True))
@@ -55,9 +71,8 @@ def sample_reset(scenario: Scenario, rng: np.random.Generator) -> ResetSample:
     if ranges.count is not None:
         lo, hi = ranges.count
         count = min(hi, lo + int(u["count"] * (hi - lo + 1)))
-    start = np.asarray(scenario.site.flock_start, dtype=np.float64) + np.array(
-        (uniform("offset_x", 0.0), uniform("offset_y", 0.0))
-    )
+    start_base = np.asarray(scenario.site.flock_start, dtype=np.float64)
+    start = start_base + np.array((uniform("offset_x", 0.0), uniform("offset_y", 0.0)))
     if flock.heading_deg is None:
         delta = np.asarray(scenario.site.destination) - start
         base = math.atan2(delta[1], delta[0])
@@ -76,11 +91,19 @@ def sample_reset(scenario: Scenario, rng: np.random.Generator) -> ResetSample:
         **changes,
     )
 
-    offsets = formation_offsets(flock.formation, count, flock.spacing, rng)
-    c, s = math.cos(heading), math.sin(heading)
-    rotation = np.array(((c, -s), (s, c)))
-    bird_pos = start + offsets @ rotation.T
-    bird_vel = np.tile(np.array((c, s)) * flock.speed, (count, 1))
+    first, second = scenario.site.group_counts(count)
+    bird_pos, bird_vel = _group(flock, first, start, heading, rng)
+    if second:
+        # The second group flies the same jitter and offset; it heads for the destination from
+        # its own start unless the flock has a fixed heading.
+        assert scenario.site.second_start is not None  # group_counts gave it birds
+        start2 = np.asarray(scenario.site.second_start, dtype=np.float64) + (start - start_base)
+        heading2 = heading
+        if flock.heading_deg is None:
+            delta2 = np.asarray(scenario.site.destination) - start2
+            heading2 = math.atan2(delta2[1], delta2[0]) + math.radians(uniform("heading_deg", 0.0))
+        pos2, vel2 = _group(flock, second, start2, heading2, rng)
+        bird_pos, bird_vel = np.concatenate((bird_pos, pos2)), np.concatenate((bird_vel, vel2))
     return ResetSample(
         flock=sampled,
         start=start,

@@ -57,7 +57,8 @@ class Spec:
     """Type, bounds and unit of one field (one config key).
 
     kind: "int", "float", "bool", "str", "name" (lower-case identifier), "choice", "point"
-    ([x, y]), "zone" (circle or polygon) or "range" ([lo, hi] of ``item`` numbers).
+    ([x, y]), "zone" (circle or polygon), "zones" (one zone or a list of lo to hi zones) or
+    "range" ([lo, hi] of ``item`` numbers).
     """
 
     kind: str
@@ -104,6 +105,13 @@ class Spec:
                 "{ polygon = [[x, y], ...] } (a simple polygon, 3 to "
                 f"{MAX_VERTICES} vertices, non-zero area)"
             )
+        if self.kind == "zones":
+            return (
+                "must be one zone, { circle = { center = [x, y], radius = r } } or "
+                "{ polygon = [[x, y], ...] } (a simple polygon, 3 to "
+                f"{MAX_VERTICES} vertices, non-zero area), or a list of "
+                f"{number_text(self.lo)} to {number_text(self.hi)} such zones"
+            )
         if self.kind == "range":
             what = "integers" if self.item == "int" else "finite numbers"
             return f"must be [lo, hi] with lo <= hi, {what} in {self.bounds()}"
@@ -135,11 +143,8 @@ class Spec:
         if kind == "point":
             coord = Spec("float", self.lo, self.hi)
             return _pair(value) and all(coord.number_ok(v, False) for v in value)
-        if kind == "zone":
-            # Imported here: zones are records of flockward.sim.types, which imports this module.
-            from flockward.sim.limits import zone_ok
-
-            return zone_ok(value)
+        if kind in ("zone", "zones"):
+            return self._zones_ok(value)
         if kind == "range":
             item = Spec(self.item, self.lo, self.hi, lo_open=self.lo_open)
             integer = self.item == "int"
@@ -148,6 +153,16 @@ class Spec:
             lo, hi = value
             return item.number_ok(lo, integer) and item.number_ok(hi, integer) and bool(lo <= hi)
         raise AssertionError(kind)
+
+    def _zones_ok(self, value: object) -> bool:
+        """A valid zone record; for "zones" also a tuple of lo to hi valid zones."""
+        # Imported here: zones are records of flockward.sim.types, which imports this module.
+        from flockward.sim.limits import zone_ok
+
+        if self.kind == "zones" and isinstance(value, tuple):
+            assert self.lo is not None and self.hi is not None
+            return self.lo <= len(value) <= self.hi and all(zone_ok(z) for z in value)
+        return zone_ok(value)
 
 
 def _pair(value: object) -> TypeGuard[list[object] | tuple[object, ...]]:

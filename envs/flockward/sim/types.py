@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from flockward.sim.spec import (
+    COORD,
     POINT,
     Spec,
     number,
@@ -255,26 +256,56 @@ class Polygon:
 
 
 Zone = Circle | Polygon
+# Most protected zones a site may have.
+MAX_ZONES = 8
 
 
 @dataclass(frozen=True)
 class SiteParams:
     """Where things are: the airspace to protect, where to herd to, where the flock wants to go."""
 
-    protected: Zone = param_factory(lambda: Circle((0.0, 0.0), 150.0), Spec("zone"))
+    # airspace birds must stay out of: one zone or a list of zones (a bird in any is a breach)
+    protected: Zone | tuple[Zone, ...] = param_factory(
+        lambda: Circle((0.0, 0.0), 150.0), Spec("zones", 1, MAX_ZONES, "zones")
+    )
     goal: Zone = param_factory(lambda: Circle((0.0, 500.0), 150.0), Spec("zone"))
     # the flock's roost or feeding ground
     destination: tuple[float, float] = param((800.0, 0.0), POINT)
-    # centre of the initial formation
+    # centre of the initial formation (of the first group when the flock starts as two)
     flock_start: tuple[float, float] = param((-600.0, 0.0), POINT)
     # moves the goal to this bearing seen from flock_start, counter-clockwise from the flock's
     # heading before reset jitter (flock.heading_deg, or toward destination), at the configured
     # goal's distance from flock_start; boundary-arc pushes from the side opposite the goal, so
     # this sets the side it pushes from: 0 behind, 90 abeam, 180 ahead. None: goal as configured
     goal_bearing_deg: float | None = param(None, number(-180.0, 180.0, "deg", opt=True))
+    # centre of a second group's initial formation; None: the flock starts as one group
+    second_start: tuple[float, float] | None = param(
+        None, Spec("point", -COORD, COORD, "m", optional=True)
+    )
+    # share of the birds that start in the second group: 0 without second_start, else in (0, 1)
+    second_share: float = param(0.0, number(0.0, 1.0))
 
     def __post_init__(self) -> None:
+        # A list of zones is held as a tuple, and a list of one zone as that zone, so one zone
+        # written either way is the same site (and the same scenario hash).
+        zones = self.protected
+        if isinstance(zones, list | tuple):
+            object.__setattr__(self, "protected", zones[0] if len(zones) == 1 else tuple(zones))
         _check(self)
+
+    @property
+    def protected_zones(self) -> tuple[Zone, ...]:
+        """Every protected zone, in the order given (one zone: a tuple of one)."""
+        zones = self.protected
+        return zones if isinstance(zones, tuple) else (zones,)
+
+    def group_counts(self, count: int) -> tuple[int, int]:
+        """Birds in the first and second group for a flock of ``count``: the second gets
+        round(second_share * count), at least one and never all (none without a second start)."""
+        if self.second_start is None or count < 2:
+            return count, 0
+        second = min(max(round(self.second_share * count), 1), count - 1)
+        return count - second, second
 
 
 @dataclass(frozen=True)

@@ -14,7 +14,7 @@ import gymnasium as gym
 import numpy as np
 import numpy.typing as npt
 
-from flockward.sim.geometry import zone_arrays, zone_center
+from flockward.sim.geometry import site_zone_arrays, zone_arrays, zone_center
 from flockward.sim.metrics import StepMetrics, step_metrics
 from flockward.sim.sensing import Sensor
 from flockward.sim.types import Scenario, WorldState
@@ -67,7 +67,7 @@ class DivertTask:
         self.setting = TaskSetting(
             scenario=scenario,
             worlds=worlds,
-            protected_arr=zone_arrays(scenario.site.protected),
+            protected_arr=site_zone_arrays(scenario.site.protected),
             goal_arr=zone_arrays(scenario.site.goal),
             goal_center=zone_center(scenario.site.goal),
             scales=Scales.of(scenario),

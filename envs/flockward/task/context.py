@@ -46,7 +46,9 @@ class TaskSetting:
 
     scenario: Scenario
     worlds: int  # B
-    protected_arr: np.ndarray  # compiled protected zone (flockward.sim.geometry.zone_arrays)
+    # compiled protected zones (flockward.sim.geometry.site_zone_arrays): one zone's array, or
+    # the set of several, whose signed distance is the least over them
+    protected_arr: np.ndarray
     goal_arr: np.ndarray  # compiled goal zone
     goal_center: tuple[float, float]  # m
     scales: Scales

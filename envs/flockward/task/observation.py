@@ -15,6 +15,10 @@ exactly (0, 0), meaningful only where ``rim_present`` is 1; when a world tracks 
 every flock field (``centroid_offset`` through ``goal_distance``) is 0, and ``largest_cluster``
 = 0 marks it (it is at least 1/n whenever a bird is tracked). In the dict, ``mask`` is 1 exactly
 for the tracked birds, listed first.
+
+A site with several protected zones is seen through the zone nearest the flock centroid (least
+signed distance): ``protected_direction`` and ``protected_distance`` are that zone's, and a rim
+bird's threat counts its own nearest zone. With one zone the observation is unchanged.
 """
 
 from __future__ import annotations
@@ -54,7 +58,8 @@ GLOBAL_FIELDS = (
     ("flock_velocity", 2, -INF, INF),  # flock mean velocity / cruise speed
     ("flock_diameter", 1, -INF, INF),  # smallest-enclosing-circle diameter / alarm radius
     ("largest_cluster", 1, 0.0, 1.0),  # share of birds in the largest fragment
-    ("protected_direction", 2, -1.0, 1.0),  # unit vector, centroid -> nearest protected-zone edge
+    # unit vector, centroid -> nearest edge of the protected zone nearest the centroid
+    ("protected_direction", 2, -1.0, 1.0),
     ("protected_distance", 1, -INF, INF),  # signed centroid distance to that edge / site scale
     ("goal_direction", 2, -1.0, 1.0),  # unit vector, centroid -> goal-region centre
     ("goal_distance", 1, -INF, INF),  # signed centroid distance to the goal edge / site scale
@@ -109,15 +114,15 @@ def _rim_threat(
     pos: np.ndarray,  # (B, N, 2) m
     count: np.ndarray,  # (B,) active birds
     on_hull: np.ndarray,  # (B, N) bool, convex-hull vertices
-    protected_arr: np.ndarray,  # compiled protected zone
+    protected_arr: np.ndarray,  # compiled protected zone, or zone set
     goal_arr: np.ndarray,  # compiled goal zone
     k: int,
     out_idx: np.ndarray,  # (B, >= max(N, k)) int64, filled in place
 ) -> None:
     """Indices of the k rim birds threatening the protected zone most (-1 pads).
 
-    Threat = distance to the goal region minus distance to the protected zone (metres): birds near
-    the zone and far from the goal come first.
+    Threat = distance to the goal region minus distance to the protected zone (metres; the
+    nearest zone when there are several): birds near a zone and far from the goal come first.
     """
     worlds = pos.shape[0]
     slots = pos.shape[1]
