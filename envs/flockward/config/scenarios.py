@@ -42,6 +42,7 @@ from flockward.config.schema import (
 from flockward.sim.limits import ParameterError
 from flockward.sim.resets import ResetSample, sample_reset
 from flockward.sim.types import (
+    MAX_DRONES,
     EpisodeParams,
     FlockParams,
     PursuerParams,
@@ -234,6 +235,37 @@ def _named_file_entries(section: str, value: object, origin: Origin, base: Path)
     return _section_file(section, path)
 
 
+# [[drones]]: a list of tables, one per drone, each of [pursuer] keys overriding [pursuer]'s values.
+DRONES_KEY = "drones"
+
+
+def _drone_entries(value: object, origin: Origin) -> list[_Entries]:
+    """Raw entries of each drone of a ``[[drones]]`` list (each checked against [pursuer]'s keys)."""
+    if not (isinstance(value, list) and 1 <= len(value) <= MAX_DRONES):
+        raise origin.error(
+            value if not isinstance(value, list) else f"a list of {len(value)} tables",
+            f"must be 1 to {MAX_DRONES} [[drones]] tables of [pursuer] keys "
+            f"({', '.join(SCHEMA['pursuer'])})",
+        )
+    drones = []
+    for i, table in enumerate(value):
+        sub = origin.child(str(i))
+        if not isinstance(table, dict):
+            raise sub.error(table, "must be a table of [pursuer] keys, e.g. { start = [0, 0] }")
+        drones.append(_collect(table, "pursuer", sub))
+    return drones
+
+
+def _drone_records(
+    drones: list[_Entries], shared: _Entries, top: Origin
+) -> tuple[PursuerParams, ...]:
+    """Each drone's record: [pursuer]'s values (file, keys, overrides), then the drone's own."""
+    return tuple(
+        _section_record(PursuerParams, "pursuer", {**shared, **own}, top.child("pursuer"))
+        for own in drones
+    )
+
+
 def _scenario_entries(
     data: Mapping[str, object], top: Origin
 ) -> tuple[dict[str, _Entries], dict[str, _FileRef]]:
@@ -241,6 +273,8 @@ def _scenario_entries(
     raw: dict[str, _Entries] = {s: {} for s in SCHEMA}
     files: dict[str, _FileRef] = {}
     for key, value in data.items():
+        if key == DRONES_KEY:
+            continue  # read by _drone_entries
         if key in SCHEMA[""]:
             raw[""][key] = (value, top.child(key))
         elif key in SECTIONS:
@@ -253,7 +287,7 @@ def _scenario_entries(
                 files[key] = (named, origin.child(SECTION_FILE_KEY))
             raw[key] = _collect(table, key, origin)
         else:
-            raise top.unknown(key, [*SCHEMA[""], *SECTIONS])
+            raise top.unknown(key, [*SCHEMA[""], *SECTIONS, DRONES_KEY])
     return raw, files
 
 
@@ -283,6 +317,9 @@ def scenario_from(
     top = Origin(file_label, "")
 
     raw, files = _scenario_entries(data, top)
+    drones = (
+        _drone_entries(data[DRONES_KEY], top.child(DRONES_KEY)) if DRONES_KEY in data else []
+    )
 
     override_entries, override_files = _override_entries(overrides or {}, file_label)
     files.update(override_files)
@@ -323,6 +360,7 @@ def scenario_from(
             "episode": _record(EpisodeParams, values["episode"], within("episode")),
             "reward": _record(RewardWeights, values["reward"], within("reward")),
             "wind": _record(WindParams, values["wind"], within("wind")),
+            "drones": _drone_records(drones, raw["pursuer"], top),
             "source_file": str(file),
         },
         where,

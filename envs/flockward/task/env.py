@@ -131,7 +131,7 @@ class DivertEnv(gym.Env):
         self.task = DivertTask(self.config, 1)
         self.scenario = self.task.scenario
         self.render_mode = self.config.render_mode
-        self.action_space = action_space()
+        self.action_space = action_space(self.task.n_drones)
         self.observation_space = self.task.observation_space()
         self._track: deque[np.ndarray] = deque(maxlen=TRACK_LENGTH)
         self._last_info: dict[str, Any] = {}
@@ -154,8 +154,9 @@ class DivertEnv(gym.Env):
         return self._one(obs), dict(self._last_info)
 
     def step(self, action: npt.ArrayLike) -> tuple[Any, float, bool, bool, dict[str, Any]]:
-        """Advance one step under ``action`` (2,): observation, reward, ended, cut off, info."""
-        batch = self.task.step(check_actions(action, 1))
+        """Advance one step under ``action`` ((2,), or (P, 2) with P > 1 drones): observation,
+        reward, ended, cut off, info."""
+        batch = self.task.step(check_actions(action, 1, self.task.n_drones))
         self._track.append(self.task.state.pursuer_pos[0].copy())
         info = scalar_info(batch.info, 0)
         self._last_info = info
