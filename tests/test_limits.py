@@ -212,6 +212,7 @@ def test_every_parameter_field_declares_its_spec_beside_it():
         "reward",
         "randomise",
         "wind",
+        "drones",
         "source_file",
     }
     for record, section in RECORD_SECTIONS.items():
