@@ -8,7 +8,7 @@ the j-th furthest of the stragglers that lie on distinct sides of the flock (at 
 ``straggler_spread_deg`` apart as seen from the centre), and otherwise flanks the driver,
 standing behind the flock ``flank_deg`` to one side of the drive point (alternating sides), so
 that the flock's edges are pushed too. Points, standoffs and the flight round the flock are
-those of the one-drone rule. With one drone it is exactly the one-drone rule.
+those of the one-drone rule; teammates keep apart (``steering.keep_apart``). With one drone it is exactly the one-drone rule.
 
 Assumes the state view.
 """
@@ -27,7 +27,7 @@ from flockward_baselines.controllers.collect_drive import (
     cohesion_threshold,
     shepherd_target,
 )
-from flockward_baselines.controllers.steering import around, fly_to
+from flockward_baselines.controllers.steering import around, fly_to, keep_apart
 
 
 def _rotate(v: np.ndarray, angle: float) -> np.ndarray:
@@ -133,4 +133,5 @@ class CollectDriveRoles(CollectDrive):
             commands.append(
                 fly_to(pos, vel, waypoint, pursuer, self.speed * pursuer.max_speed, flock_vel)
             )
-        return np.array(commands)
+        radii = np.array([d.safety_radius for d in state.scenario.fleet])
+        return keep_apart(np.array(commands), state.pursuer_pos, radii)

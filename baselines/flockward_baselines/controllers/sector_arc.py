@@ -6,7 +6,11 @@ from a bird that comes too close. The arc behind the flock is ``arc_span_deg`` p
 (at most 180 degrees in all) and split into P adjacent sectors of equal width, drone k sweeping
 the k-th counter-clockwise; each drone starts in the middle of its own sector. The sectors cover
 the arc exactly once (``sectors``), so no stretch of the rim is left unpushed and no two drones
-sweep the same stretch, which also keeps them apart. With one drone the sector is the whole
+sweep the same stretch. A drone turns short of an edge it shares with a neighbour (by half of
+``KEEP_APART`` times the two safety radii, at most a quarter of its sector), where the two
+would otherwise meet; its push still reaches the edge, since fright reaches out to the alarm
+radius. On the way to their stations drones keep apart from each other
+(``steering.keep_apart``). With one drone the sector is the whole
 arc and the controller sweeps like boundary-arc.
 
 Assumes the state view (every bird and every drone).
@@ -22,6 +26,10 @@ import numpy as np
 from flockward.controller import StateView
 from flockward.sim.types import Scenario
 from flockward_baselines.controllers.boundary_arc import BoundaryArc, Sweep
+from flockward_baselines.controllers.steering import keep_apart
+
+
+KEEP_APART = 3.0  # teammates keep this many times the sum of their safety radii apart
 
 
 def sectors(span: float, drones: int) -> list[tuple[float, float]]:
@@ -58,8 +66,14 @@ class SectorArc(BoundaryArc):
         if self._prepared is not state.scenario:
             self.reset(state.scenario)
         frame = self._frame(state)
-        commands = [
-            self._command(state, frame, k, sweep, sector)
-            for k, (sweep, sector) in enumerate(zip(self._sweeps, self._sectors, strict=True))
-        ]
-        return np.array(commands).reshape(len(commands), 2)
+        radii = np.array([d.safety_radius for d in state.scenario.fleet])
+        # Two drones sweeping to a shared edge stay KEEP_APART times their radii apart there.
+        last = len(self._sectors) - 1
+        commands = []
+        for k, (sweep, (lo, hi)) in enumerate(zip(self._sweeps, self._sectors, strict=True)):
+            keep = KEEP_APART * 2.0 * float(radii.max())  # m between neighbours at an edge
+            margin = min(keep / (2.0 * (frame.radius + frame.push)), (hi - lo) / 4.0)
+            turns = (lo + (margin if k > 0 else 0.0), hi - (margin if k < last else 0.0))
+            commands.append(self._command(state, frame, k, sweep, turns))
+        command = np.array(commands).reshape(len(commands), 2)
+        return keep_apart(command, state.pursuer_pos, radii, KEEP_APART)

@@ -96,3 +96,28 @@ def around(pos: np.ndarray, target: np.ndarray, centre: np.ndarray, keep_out: fl
     step = math.copysign(min(abs(turn), math.radians(30.0)), turn)
     radius = max(1.1 * keep_out, min(float(np.hypot(*rel)), 1.5 * keep_out))
     return centre + radius * np.array([math.cos(here + step), math.sin(here + step)])
+
+
+def keep_apart(
+    commands: np.ndarray, positions: np.ndarray, radii: np.ndarray, factor: float = 3.0
+) -> np.ndarray:
+    """Team commands (P, 2) with a push away from each teammate nearer than ``factor`` times the
+    sum of the two drones' safety radii (m), growing linearly to a full command at contact, then
+    each command's norm capped at 1 again. A conflict (closer than the sum) is what the
+    benchmark counts as a contact, so the push starts well before it (common practice: a
+    separation rule, as in Reynolds' boids)."""
+    out = np.array(commands, dtype=np.float64)
+    for k in range(len(out)):
+        push = np.zeros(2)
+        for j in range(len(out)):
+            if j == k:
+                continue
+            offset = positions[k] - positions[j]
+            gap = float(np.hypot(offset[0], offset[1]))
+            reach = factor * float(radii[k] + radii[j])
+            if gap < reach:
+                away = offset / gap if gap > 1e-9 else np.array([1.0, 0.0]) * (1 if k > j else -1)
+                push += 2.0 * (1.0 - gap / reach) * away
+        if push.any():
+            out[k] = _unit_command(out[k] + push, 1.0)
+    return out
