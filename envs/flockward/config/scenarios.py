@@ -243,7 +243,7 @@ def _drone_entries(value: object, origin: Origin) -> list[_Entries]:
     """Raw entries of each drone of a ``[[drones]]`` list (each checked against [pursuer]'s keys)."""
     if not (isinstance(value, list) and 1 <= len(value) <= MAX_DRONES):
         raise origin.error(
-            value if not isinstance(value, list) else f"a list of {len(value)} tables",
+            value,
             f"must be 1 to {MAX_DRONES} [[drones]] tables of [pursuer] keys "
             f"({', '.join(SCHEMA['pursuer'])})",
         )
