@@ -102,8 +102,9 @@ def keep_apart(
     commands: np.ndarray, positions: np.ndarray, radii: np.ndarray, factor: float = 3.0
 ) -> np.ndarray:
     """Team commands (P, 2) with a push away from each teammate nearer than ``factor`` times the
-    sum of the two drones' safety radii (m), growing linearly to a full command at contact, then
-    each command's norm capped at 1 again. A conflict (closer than the sum) is what the
+    sum of the two drones' safety radii (m), growing linearly to four full commands at contact
+    (so it outweighs any command a quarter of the way in), then each command's norm capped at 1
+    again. A conflict (closer than the sum) is what the
     benchmark counts as a contact, so the push starts well before it (common practice: a
     separation rule, as in Reynolds' boids)."""
     out = np.array(commands, dtype=np.float64)
@@ -117,7 +118,7 @@ def keep_apart(
             reach = factor * float(radii[k] + radii[j])
             if gap < reach:
                 away = offset / gap if gap > 1e-9 else np.array([1.0, 0.0]) * (1 if k > j else -1)
-                push += 2.0 * (1.0 - gap / reach) * away
+                push += 4.0 * (1.0 - gap / reach) * away
         if push.any():
             out[k] = _unit_command(out[k] + push, 1.0)
     return out

@@ -66,7 +66,7 @@ KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
     ("standard", 3): "67671cc93d2a9415815c4687ca74e336a84b72fbf317af5053c5f265a179d1fd",
     ("stress", 3): "fc5f74a338932c19837c828ce45b89888601c82241abd5bac0fd621e0f422fd2",
     ("validation", 3): "ee9f4da0047d055068f389cf86ab107fd7c906b4d1f12b74a456566a8a490531",
-    ("field", 1): "5f99595712ea216e21f2538e0b042c69bc72c359017527672894a15b5ed6af23",
+    ("field", 1): "e176c46081f6224413dea6bbc4bf1c686be1560ff228a0549ad1938faa20e474",
 }
 
 _MAX_SEED = 2**31 - 1
