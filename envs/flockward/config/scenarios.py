@@ -84,8 +84,8 @@ def config_kind(path: str | Path) -> str:
     """What a config file is: 'scenario', 'flock' or 'pursuer' (a drone preset).
 
     A file in a directory named scenarios/, flocks/ or pursuers/ is what its directory says.
-    Elsewhere its keys decide: any table (such as [site]) makes a scenario; only drone keys make
-    a drone preset; anything else is read as a flock. An empty file is an error, not a default.
+    Elsewhere its keys decide: any table (such as [site]) or a drone list makes a scenario; only
+    drone keys make a drone preset; anything else is read as a flock. An empty file is an error, not a default.
     """
     file = Path(path)
     data = read_toml(file)
@@ -97,7 +97,7 @@ def config_kind(path: str | Path) -> str:
     by_location = KIND_OF_DIRECTORY.get(file.resolve().parent.name)
     if by_location:
         return by_location
-    if any(isinstance(v, dict) for v in data.values()):
+    if any(isinstance(v, dict) for v in data.values()) or DRONES_KEY in data:
         return "scenario"
     return "pursuer" if set(data) <= set(SCHEMA["pursuer"]) else "flock"
 
