@@ -3,12 +3,14 @@ env, the team baselines and the team metrics."""
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 import pytest
+from flock_helpers import FAR, OFF
 
 from flockward.bench.episode import play_episode
 from flockward.bench.leaderboard import episode_score
@@ -25,8 +27,6 @@ from flockward.task.vector_env import DivertVectorEnv
 from flockward_baselines.controllers import make_controller
 from flockward_baselines.controllers.sector_arc import sectors
 from flockward_baselines.sb3 import FlockwardVecEnv
-
-from flock_helpers import FAR, OFF
 
 TEAM = """
 name = "team"
@@ -87,8 +87,8 @@ def test_a_malformed_drone_list_is_a_one_line_error(tmp_path, body, message):
 def test_one_drone_scenarios_play_bit_for_bit():
     # Regression test: a list of one drone, the [pursuer] itself, plays the episode of the plain
     # one-drone scenario bit for bit (only its hash differs: the list is not the default). The
-    # shipped scenarios' hashes are unchanged (tests/test_suites.py, tests/test_hashing.py). tests/test_committed_results.py replays the committed
-    # one-drone results against today's code as the wider check.
+    # shipped scenarios' hashes are unchanged (tests/test_suites.py, tests/test_hashing.py), and
+    # tests/test_committed_results.py replays the committed one-drone results as the wider check.
     plain = load_scenario("headon", {"flock.count": 12, "episode.max_steps": 30})
     assert plain.drones == () and plain.drone_count == 1
     listed = replace(plain, drones=(plain.pursuer,))
@@ -162,7 +162,7 @@ def test_sb3_adapter_flattens_the_team_action(tmp_path):
     venv.seed(3)
     venv.reset()
     venv.step_async(np.tile([1.0, 0.0, 0.0, 1.0], (2, 1)))
-    obs, reward, dones, infos = venv.step_wait()
+    obs, reward, _, _ = venv.step_wait()
     assert obs.shape == (2, 2, 26) and reward.shape == (2,)
     vel = venv.task.state.pursuer_vel
     assert (vel[:, 0, 0] > 0).all() and (vel[:, 1, 1] > 0).all()  # row k is drone k's command
@@ -249,7 +249,7 @@ def test_sector_split_covers_the_arc_exactly_once():
         span = math.radians(120.0)
         parts = sectors(span, drones)
         assert parts[0][0] == -span / 2 and parts[-1][1] == span / 2
-        for (lo, hi), (next_lo, _) in zip(parts, parts[1:]):
+        for (_, hi), (next_lo, _) in itertools.pairwise(parts):
             assert hi == next_lo
         assert all(hi - lo == pytest.approx(span / drones) for lo, hi in parts)
         for angle in np.linspace(-span / 2, span / 2, 997, endpoint=False):

@@ -256,7 +256,9 @@ class BoundaryArc(Controller):
         )
         rel, radius, centre_angle = frame.rel, frame.radius, frame.centre_angle
         pos, vel = state.pursuer_pos[k], state.pursuer_vel[k]
-        pursuer = state.scenario.fleet[k] if k < state.scenario.drone_count else state.scenario.pursuer
+        pursuer = (
+            state.scenario.fleet[k] if k < state.scenario.drone_count else state.scenario.pursuer
+        )
 
         def station(offset: float) -> tuple[np.ndarray, float]:
             u = _bearing(centre_angle + offset)

@@ -8,7 +8,8 @@ the j-th furthest of the stragglers that lie on distinct sides of the flock (at 
 ``straggler_spread_deg`` apart as seen from the centre), and otherwise flanks the driver,
 standing behind the flock ``flank_deg`` to one side of the drive point (alternating sides), so
 that the flock's edges are pushed too. Points, standoffs and the flight round the flock are
-those of the one-drone rule; teammates keep apart (``steering.keep_apart``). With one drone it is exactly the one-drone rule.
+those of the one-drone rule; teammates keep apart (``steering.keep_apart``). With one drone it
+is exactly the one-drone rule.
 
 Assumes the state view.
 """
@@ -127,7 +128,11 @@ class CollectDriveRoles(CollectDrive):
         flock_vel = state.bird_vel.mean(axis=0)
         commands = []
         for k, target in enumerate(targets):
-            pursuer = state.scenario.fleet[k] if k < state.scenario.drone_count else state.scenario.pursuer
+            pursuer = (
+                state.scenario.fleet[k]
+                if k < state.scenario.drone_count
+                else state.scenario.pursuer
+            )
             pos, vel = state.pursuer_pos[k], state.pursuer_vel[k]
             waypoint = around(pos, target, gcm, radius + flock.dodge_radius)
             commands.append(

@@ -28,7 +28,6 @@ from flockward.sim.types import Scenario
 from flockward_baselines.controllers.boundary_arc import BoundaryArc, Sweep
 from flockward_baselines.controllers.steering import keep_apart
 
-
 KEEP_APART = 3.0  # teammates keep this many times the sum of their safety radii apart
 
 

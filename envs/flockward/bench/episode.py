@@ -278,7 +278,11 @@ def play_episode(
         energy=energy,
         episode_return=float(total),
         error=error,
-        **(_team_fields(drone_path, drone_energy, drone_closest, separation, conflicts) if team else {}),
+        **(
+            _team_fields(drone_path, drone_energy, drone_closest, separation, conflicts)
+            if team
+            else {}
+        ),
     )
     return record, frames
 

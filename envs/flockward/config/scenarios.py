@@ -85,7 +85,8 @@ def config_kind(path: str | Path) -> str:
 
     A file in a directory named scenarios/, flocks/ or pursuers/ is what its directory says.
     Elsewhere its keys decide: any table (such as [site]) or a drone list makes a scenario; only
-    drone keys make a drone preset; anything else is read as a flock. An empty file is an error, not a default.
+    drone keys make a drone preset; anything else is read as a flock. An empty file is an error,
+    not a default.
     """
     file = Path(path)
     data = read_toml(file)
@@ -240,7 +241,7 @@ DRONES_KEY = "drones"
 
 
 def _drone_entries(value: object, origin: Origin) -> list[_Entries]:
-    """Raw entries of each drone of a ``[[drones]]`` list (each checked against [pursuer]'s keys)."""
+    """Raw entries of each drone of a ``[[drones]]`` list (checked against [pursuer]'s keys)."""
     if not (isinstance(value, list) and 1 <= len(value) <= MAX_DRONES):
         raise origin.error(
             value,
@@ -317,9 +318,7 @@ def scenario_from(
     top = Origin(file_label, "")
 
     raw, files = _scenario_entries(data, top)
-    drones = (
-        _drone_entries(data[DRONES_KEY], top.child(DRONES_KEY)) if DRONES_KEY in data else []
-    )
+    drones = _drone_entries(data[DRONES_KEY], top.child(DRONES_KEY)) if DRONES_KEY in data else []
 
     override_entries, override_files = _override_entries(overrides or {}, file_label)
     files.update(override_files)

@@ -124,7 +124,9 @@ class DivertTask:
         """Every world's observation: the one drone's, or each drone's stacked (B, P, ...)."""
         if not self.multi:
             return self.observation.build(context)
-        return stack_observations([o.build(v) for o, v in zip(self.observations, views)])
+        return stack_observations(
+            [o.build(v) for o, v in zip(self.observations, views, strict=True)]
+        )
 
     def _views(self, context: StepContext, collided: np.ndarray | None) -> list[StepContext]:
         """The context from each drone's point of view (only ``context`` itself with one)."""
@@ -172,7 +174,7 @@ class DivertTask:
         )
         views = self._views(context, None)
         for parts in (self.rewards, self.observations):
-            for part, view in zip(parts, views):
+            for part, view in zip(parts, views, strict=True):
                 hook = getattr(part, "reset", None)
                 if callable(hook):
                     hook(view, indices)
@@ -292,7 +294,7 @@ class DivertTask:
             own = (nearest < self.world.safety_radii) | conflicted  # (B, P) each drone's contact
             collided = own.any(axis=1)
             extra = {
-                "conflict": conflicted.any(axis=1),
+                "conflict": np.asarray(conflicted.any(axis=1)),
                 "drone_separation": separation,
                 "drone_nearest": nearest,
                 "drone_contact": own,
@@ -315,7 +317,10 @@ class DivertTask:
         )
         if self.multi:
             per_drone = [
-                r.terms(v) for r, v in zip(self.rewards, self._views(context, extra["drone_contact"]))
+                r.terms(v)
+                for r, v in zip(
+                    self.rewards, self._views(context, extra["drone_contact"]), strict=True
+                )
             ]
             terms = team_terms(per_drone)
             extra["agent_reward"] = np.stack([total(t, self.n_worlds) for t in per_drone], axis=1)
@@ -375,7 +380,8 @@ def check_actions(action: npt.ArrayLike, worlds: int, drones: int = 1) -> np.nda
     if a.size != worlds * p * 2:
         one = (2,) if p == 1 else (p, 2)
         raise ValueError(
-            f"action has shape {np.shape(action)}; expected {one if worlds == 1 else (worlds, *one)}"
+            f"action has shape {np.shape(action)}; "
+            f"expected {one if worlds == 1 else (worlds, *one)}"
             " (normalised pursuer acceleration, x and y" + (", per drone)" if p > 1 else ")")
         )
     a = a.reshape(worlds, p, 2)

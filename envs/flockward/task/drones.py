@@ -49,7 +49,7 @@ def stacked_space(space: gym.spaces.Space[Any], drones: int) -> gym.spaces.Space
     if isinstance(space, gym.spaces.Box):
         low = np.broadcast_to(space.low, (drones, *space.shape))
         high = np.broadcast_to(space.high, (drones, *space.shape))
-        return gym.spaces.Box(low, high, (drones, *space.shape), space.dtype)  # type: ignore[arg-type]
+        return gym.spaces.Box(low, high, (drones, *space.shape), space.dtype)
     if isinstance(space, gym.spaces.Dict):
         return gym.spaces.Dict({k: stacked_space(v, drones) for k, v in space.spaces.items()})
     raise ValueError(

@@ -173,7 +173,9 @@ class DivertParallelEnv(ParallelBase):
         """World 0's observation split by agent (stacked (1, P, ...) with P > 1 drones)."""
         if self.task.multi:
             if isinstance(obs, dict):
-                return {a: {key: v[0, k] for key, v in obs.items()} for k, a in enumerate(self.agents)}
+                return {
+                    a: {key: v[0, k] for key, v in obs.items()} for k, a in enumerate(self.agents)
+                }
             return {a: obs[0, k] for k, a in enumerate(self.agents)}
         if isinstance(obs, dict):
             return {self.agents[0]: {key: v[0] for key, v in obs.items()}}
