@@ -35,6 +35,14 @@ class DivertEnv(gym.Env):
     (default 4 x 0.1 s: a decision every 0.4 s, ``scenario.episode.decision_period``); one
     ``step`` is one decision.
 
+    A scenario that lists P > 1 drones (``[[drones]]``) is flown by one policy for the team:
+    the action is ``Box(-1, 1, (P, 2))``, row k drone k's command; the observation stacks every
+    drone's own observation (built with that drone as drone 0) as ``(P, ...)``; the reward is the
+    team's, each term's mean over the drones (``info["agent_reward"]``: each drone's own);
+    ``info`` adds ``conflict``, ``conflict_steps``, ``drone_separation`` and per-drone
+    ``drone_nearest`` and ``drone_contact``. A contact (``collision``) is then also two drones
+    closer than the sum of their safety radii. One agent per drone: ``flockward.task.multi_env``.
+
     ## Observation space
     ``observation="vector"`` (default): a float32 vector of 14 + 3k entries, k = ``rim_birds``,
     world frame (x east, y north). Site scale = distance from the flock's start to the goal
@@ -95,8 +103,9 @@ class DivertEnv(gym.Env):
     ``neighbour_search`` ("auto", "all-pairs", "grid"), ``max_episode_steps``, ``decision_steps``
     (control steps each action is held; None: the scenario's ``episode.decision_steps``),
     ``render_mode``,
-    ``drones`` (1, or 0 for the unherded control: no pursuer in the world, actions ignored,
-    observations taken from a still point at the flock centroid).
+    ``drones`` (None: the scenario's, one unless it lists ``[[drones]]``; 0 for the unherded
+    control: no pursuer in the world, actions ignored, observations taken from a still point at
+    the flock centroid).
 
     ## Version history
     v0: first release. Later changes that leave every observation value, reward and episode as
@@ -115,7 +124,8 @@ class DivertEnv(gym.Env):
     from the agent's ``reward.gamma`` and the interval. Fright's forward thrust is
     power-limited (no bird is driven past its burst speed), the starlings' separation radius
     gives wild flocks' spacing, and the pair loop sums in a vectorised order. Observation
-    layout unchanged; every number differs from v1.
+    layout unchanged; every number differs from v1. Later, leaving every one-drone episode as it
+    was: teams of drones (scenarios listing ``[[drones]]``).
 
     >>> import gymnasium as gym, flockward
     >>> env = gym.make("flockward/Divert-v2", scenario="headon")
