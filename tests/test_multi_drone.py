@@ -306,3 +306,17 @@ def test_team_controllers_fly_every_drone(tmp_path, name):
     record, _ = play_episode(scenario, make_controller(name), 3)
     assert record.error is None
     assert all(length > 10.0 for length in record.drone_path_length)  # m in 4 s
+
+
+def test_check_reports_every_bad_drone_key_with_its_line(tmp_path):
+    from flockward.config.checking import file_errors
+
+    path = tmp_path / "bad.toml"
+    path.write_text(
+        'name = "bad"\n[[drones]]\nstart = [0, 0]\nmax_accel = 99\n[[drones]]\nspeed = 3\n',
+        encoding="utf-8",
+    )
+    errors = file_errors(path, "scenario")
+    assert len(errors) == 2
+    assert ":6: unknown key 'drones.1.speed'" in errors[0]
+    assert ":4: key 'drones.0.max_accel' = 99" in errors[1]

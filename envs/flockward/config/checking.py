@@ -25,6 +25,7 @@ __all__ = ["MAX_ERRORS", "file_errors", "key_line"]
 
 MAX_ERRORS = 50  # a file with more problems than this is reported up to here
 _HEADER = re.compile(r"^\s*\[\s*([A-Za-z0-9_.-]+)\s*\]\s*(#.*)?$")
+_DRONE_HEADER = re.compile(r"^\s*\[\[\s*drones\s*\]\]\s*(#.*)?$")  # one drone of a team
 
 _LOADERS: dict[str, Callable[[dict[str, object], Path], object]] = {
     "scenario": scenario_from,
@@ -43,6 +44,13 @@ def _table_and_key(data: Mapping[str, object], dotted: str) -> tuple[str | None,
 
 def _drop(data: dict[str, object], dotted: str) -> bool:
     """Remove the file's entry that ``dotted`` points into; False if the file has none."""
+    parts = dotted.split(".")
+    drones = data.get("drones")
+    if len(parts) == 3 and parts[0] == "drones" and parts[1].isdigit() and isinstance(drones, list):
+        own = drones[int(parts[1])] if int(parts[1]) < len(drones) else None
+        if isinstance(own, dict) and parts[2] in own:
+            del own[parts[2]]  # the drone's bad key only: its other keys are checked on
+            return True
     table, key = _table_and_key(data, dotted)
     holder = data.get(table) if table else data
     if not isinstance(holder, dict) or key not in holder:
@@ -63,6 +71,31 @@ def key_line(text: str, table: str | None, key: str) -> int | None:
         elif current == table and setting.match(line):
             return number
     return None
+
+
+def drone_key_line(text: str, index: int, key: str) -> int | None:
+    """The 1-based line where ``key`` is set in the ``index``-th ``[[drones]]`` table of a TOML
+    text, or None if no line sets it that plainly."""
+    setting = re.compile(rf"^\s*[\"']?{re.escape(key)}[\"']?\s*=")
+    seen = -1  # how many [[drones]] headers so far, minus one
+    inside = False  # reading a [[drones]] table
+    for number, line in enumerate(text.splitlines(), start=1):
+        if _DRONE_HEADER.match(line):
+            seen += 1
+            inside = True
+        elif line.lstrip().startswith("["):
+            inside = False
+        elif inside and seen == index and setting.match(line):
+            return number
+    return None
+
+
+def _line_of(text: str, data: Mapping[str, object], dotted: str) -> int | None:
+    """The line an error's dotted key points at: a drone's key, or a table's key."""
+    parts = dotted.split(".")
+    if len(parts) == 3 and parts[0] == "drones" and parts[1].isdigit():
+        return drone_key_line(text, int(parts[1]), parts[2])
+    return key_line(text, *_table_and_key(data, dotted))
 
 
 def _with_line(error: ConfigError, shown: str, line: int | None) -> str:
@@ -94,7 +127,7 @@ def file_errors(path: Path, kind: str) -> list[str]:
         except ConfigError as error:
             line = None
             if error.file == shown and error.key:
-                line = key_line(text, *_table_and_key(data, error.key))
+                line = _line_of(text, data, error.key)
             errors.append(_with_line(error, shown, line))
             if error.file != shown or not error.key or not _drop(data, error.key):
                 return errors
