@@ -191,13 +191,13 @@ def test_a_two_drone_episode_is_the_same_in_every_face(tmp_path):
     multi = DivertParallelEnv(path)
     obs_m, _ = multi.reset(seed=8)
     np.testing.assert_array_equal(obs_s, obs_v[1])
-    np.testing.assert_array_equal(obs_s, np.stack([obs_m["drone_0"], obs_m["drone_1"]]))
+    np.testing.assert_array_equal(obs_s, np.stack([obs_m["drone_0"][:26], obs_m["drone_1"][:26]]))
     for a in actions:
         obs_s, r_s, *_ = single.step(a)
         obs_v, r_v, *_ = vector.step(np.stack([a, a]))
         obs_m, r_m, *_ = multi.step({"drone_0": a[0], "drone_1": a[1]})
         np.testing.assert_array_equal(obs_s, obs_v[1])
-        np.testing.assert_array_equal(obs_s, np.stack([obs_m["drone_0"], obs_m["drone_1"]]))
+        np.testing.assert_array_equal(obs_s, np.stack([obs_m["drone_0"][:26], obs_m["drone_1"][:26]]))
         assert r_s == r_v[1] == r_m["drone_0"] == r_m["drone_1"]
     np.testing.assert_array_equal(single.task.state.bird_pos[0], vector.task.state.bird_pos[1])
     np.testing.assert_array_equal(single.task.state.bird_pos[0], multi.task.state.bird_pos[0])
@@ -230,10 +230,16 @@ def test_pettingzoo_agents_see_the_world_from_their_own_drone(tmp_path):
     assert env.possible_agents == ["drone_0", "drone_1"]
     centroid = env.task.metrics.centroid[0]
     site = env.task.setting.scales.site
+    pos = env.task.state.pursuer_pos[0]
+    near = env.task.setting.scales.near
+    assert env.observation_space("drone_0").shape == (26 + 4,)
     for k, agent in enumerate(env.agents):
         # vector entries 2-3: (flock centroid - this agent's drone) / site scale
-        expected = (centroid - env.task.state.pursuer_pos[0, k]) / site
+        expected = (centroid - pos[k]) / site
         np.testing.assert_allclose(obs[agent][2:4], expected, rtol=1e-6)
+        # then the teammate: its offset from this agent's drone / alarm radius, and velocity
+        np.testing.assert_allclose(obs[agent][26:28], (pos[1 - k] - pos[k]) / near, rtol=1e-6)
+        np.testing.assert_array_equal(obs[agent][28:30], 0.0)  # both at rest
     _, rewards, *_ = env.step({"drone_0": np.zeros(2), "drone_1": np.zeros(2)})
     assert rewards["drone_0"] != rewards["drone_1"]
 
@@ -320,3 +326,11 @@ def test_check_reports_every_bad_drone_key_with_its_line(tmp_path):
     assert len(errors) == 2
     assert ":6: unknown key 'drones.1.speed'" in errors[0]
     assert ":4: key 'drones.0.max_accel' = 99" in errors[1]
+
+
+def test_teammates_need_a_vector_observation(tmp_path):
+    path = write_team(tmp_path)
+    assert DivertParallelEnv(path, teammates=False).observation_space("drone_1").shape == (26,)
+    assert "birds" in DivertParallelEnv(path, observation="dict").observation_space("drone_0").spaces
+    with pytest.raises(ValueError, match="^teammates = True: needs a vector"):
+        DivertParallelEnv(path, observation="dict", teammates=True)

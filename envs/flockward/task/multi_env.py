@@ -4,7 +4,10 @@
 physics or task logic of its own. Agent ``drone_k`` flies drone k. Its observation is the task's
 observation built from drone k's point of view (``flockward.task.drones``: the drone arrays
 rolled so that drone k is drone 0), so every observation written for one drone serves each agent
-unchanged; the agent sees its teammates only through what that observation holds. Its action is
+unchanged. With a vector observation (a 1-D Box) and ``teammates`` on (the default for teams),
+each agent's vector ends with its teammates, in index order after its own drone and wrapping
+round: each one's offset from the agent's drone / the alarm radius (2) and velocity relative to
+it / the drone top speed (2), unbounded. Its action is
 drone k's (2,) acceleration command in [-1, 1]. A missing agent's action (there are none while
 the episode runs) counts as zero.
 
@@ -60,8 +63,9 @@ class DivertParallelEnv(ParallelBase):
     """``flockward/Divert-v2`` with one PettingZoo agent per drone (see the module docstring).
 
     Arguments: the fields of ``EnvConfig`` (as keywords or one EnvConfig; no ``render_mode``),
-    plus ``reward_mode`` ("team" or "own"). The scenario's drones (its ``[[drones]]``, or one)
-    are the agents.
+    plus ``reward_mode`` ("team" or "own") and ``teammates`` (None: on for a team with a
+    vector observation; True needs a vector observation). The scenario's drones (its
+    ``[[drones]]``, or one) are the agents.
 
     >>> from flockward.task.multi_env import DivertParallelEnv
     >>> env = DivertParallelEnv("headon")
@@ -73,7 +77,11 @@ class DivertParallelEnv(ParallelBase):
     metadata = {"name": "flockward_divert_v2", "render_modes": [], "is_parallelizable": True}
 
     def __init__(
-        self, config: ConfigOrScenario = None, reward_mode: str = "team", **options: Any
+        self,
+        config: ConfigOrScenario = None,
+        reward_mode: str = "team",
+        teammates: bool | None = None,
+        **options: Any,
     ) -> None:
         _require_pettingzoo()
         if reward_mode not in REWARD_MODES:
@@ -90,6 +98,18 @@ class DivertParallelEnv(ParallelBase):
         self.possible_agents = [agent_name(k) for k in range(self.task.n_drones)]
         self.agents: list[str] = []
         one = self.task.observation.space()
+        vector = isinstance(one, gym.spaces.Box) and len(one.shape) == 1
+        if teammates and not vector:
+            raise ValueError(
+                f"teammates = True: needs a vector (1-D Box) observation, not {one}; "
+                "pass teammates=False"
+            )
+        self.teammates = bool(vector and self.task.multi if teammates is None else teammates)
+        if self.teammates:
+            extra = 4 * (self.task.n_drones - 1)
+            low = np.concatenate([np.asarray(one.low), np.full(extra, -np.inf)])
+            high = np.concatenate([np.asarray(one.high), np.full(extra, np.inf)])
+            one = gym.spaces.Box(low.astype(np.float32), high.astype(np.float32), dtype=np.float32)
         self.observation_spaces = {a: one for a in self.possible_agents}
         command = gym.spaces.Box(-1.0, 1.0, (2,), np.float32)
         self.action_spaces = {a: command for a in self.possible_agents}
@@ -171,6 +191,8 @@ class DivertParallelEnv(ParallelBase):
 
     def _per_agent(self, obs: Any) -> dict[str, Any]:
         """World 0's observation split by agent (stacked (1, P, ...) with P > 1 drones)."""
+        if self.teammates:
+            return {a: self._with_teammates(obs[0, k], k) for k, a in enumerate(self.agents)}
         if self.task.multi:
             if isinstance(obs, dict):
                 return {
@@ -180,6 +202,16 @@ class DivertParallelEnv(ParallelBase):
         if isinstance(obs, dict):
             return {self.agents[0]: {key: v[0] for key, v in obs.items()}}
         return {self.agents[0]: obs[0]}
+
+    def _with_teammates(self, own: np.ndarray, k: int) -> np.ndarray:
+        """Agent k's vector followed by its teammates' relative positions and velocities."""
+        s, scales = self.task.state, self.task.setting.scales
+        pos = np.roll(s.pursuer_pos[0], -k, axis=0)
+        vel = np.roll(s.pursuer_vel[0], -k, axis=0)
+        rel = np.concatenate(
+            [(pos[1:] - pos[0]) / scales.near, (vel[1:] - vel[0]) / scales.pursuer_speed], axis=1
+        )
+        return np.concatenate([own, rel.ravel()]).astype(np.float32)
 
     @staticmethod
     def _agent_info(info: dict[str, Any], k: int) -> dict[str, Any]:
