@@ -20,7 +20,7 @@ TRACK_LENGTH = 200  # steps of pursuer track kept for rendering
 
 
 class DivertEnv(gym.Env):
-    """Divert a bird flock away from protected airspace with a single drone.
+    """Divert a bird flock away from protected airspace with a drone (or a team of drones).
 
     ## Description
     A flock of double-integrator birds (separation, Cucker-Smale alignment, cohesion, attraction to
