@@ -119,12 +119,15 @@ def _checked_action(raw: object, drones: int = 1) -> np.ndarray:
 
     A controller may return (2,) for drone 0 only: with P > 1 drones the others then get a zero
     command (they hold their velocity: at rest from the start, drifting with any wind). It may
-    return (P, 2), one row per drone, instead ((1, 2) with one drone).
+    return (P, 2), one row per drone, instead ((1, 2) with one drone), or the same flat as
+    (2P,), the SB3 adapter's team action (so a model trained on it plays as it acts).
     """
     action = np.asarray(raw, dtype=np.float64)
     p = max(drones, 1)
     if action.shape == (1, 2) and p == 1:
         action = action[0]
+    if p > 1 and action.shape == (2 * p,):
+        action = action.reshape(p, 2)
     if action.shape not in ((2,), (p, 2)):
         expected = "(2,)" if p == 1 else f"(2,) for drone 0 or ({p}, 2)"
         raise ControllerFault(f"action has shape {action.shape}, expected {expected}")
