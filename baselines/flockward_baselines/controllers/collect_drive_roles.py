@@ -90,11 +90,12 @@ class CollectDriveRoles(CollectDrive):
         }
 
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
-        """A (P, 2) command: the driver's, then each collector's."""
+        """A (P, 2) command: the driver's, then each collector's ((2,) with one drone: the
+        one-drone rule)."""
         drones = 1 if state is None else len(state.pursuer_pos)
         if state is None or len(state.bird_pos) == 0 or drones < 2:
             command = super().act(observation, state)
-            return np.reshape(command, (1, 2)) if drones >= 1 else command
+            return command if drones <= 1 else np.vstack([command, np.zeros((drones - 1, 2))])
         if getattr(self, "_scenario", None) is not state.scenario:
             self.reset(state.scenario)
         flock = state.flock

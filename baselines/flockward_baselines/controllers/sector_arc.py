@@ -59,9 +59,11 @@ class SectorArc(BoundaryArc):
         self._sweeps = [Sweep(phase=(lo + hi) / 2.0) for lo, hi in self._sectors]
 
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
-        """A (P, 2) command: every drone approaches or sweeps its own sector."""
+        """A (P, 2) command: every drone approaches or sweeps its own sector ((2,) with one
+        drone, as the one-drone contract has it)."""
         if state is None or len(state.bird_pos) == 0:
-            return np.zeros((1 if state is None else len(state.pursuer_pos), 2))
+            drones = 1 if state is None else len(state.pursuer_pos)
+            return np.zeros(2) if drones == 1 else np.zeros((drones, 2))
         if self._prepared is not state.scenario:
             self.reset(state.scenario)
         frame = self._frame(state)
@@ -74,5 +76,7 @@ class SectorArc(BoundaryArc):
             margin = min(keep / (2.0 * (frame.radius + frame.push)), (hi - lo) / 4.0)
             turns = (lo + (margin if k > 0 else 0.0), hi - (margin if k < last else 0.0))
             commands.append(self._command(state, frame, k, sweep, turns))
+        if len(commands) == 1:
+            return commands[0]
         command = np.array(commands).reshape(len(commands), 2)
         return keep_apart(command, state.pursuer_pos, radii, KEEP_APART)
