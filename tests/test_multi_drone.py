@@ -197,7 +197,8 @@ def test_a_two_drone_episode_is_the_same_in_every_face(tmp_path):
         obs_v, r_v, *_ = vector.step(np.stack([a, a]))
         obs_m, r_m, *_ = multi.step({"drone_0": a[0], "drone_1": a[1]})
         np.testing.assert_array_equal(obs_s, obs_v[1])
-        np.testing.assert_array_equal(obs_s, np.stack([obs_m["drone_0"][:26], obs_m["drone_1"][:26]]))
+        own = np.stack([obs_m["drone_0"][:26], obs_m["drone_1"][:26]])  # then the teammate's
+        np.testing.assert_array_equal(obs_s, own)
         assert r_s == r_v[1] == r_m["drone_0"] == r_m["drone_1"]
     np.testing.assert_array_equal(single.task.state.bird_pos[0], vector.task.state.bird_pos[1])
     np.testing.assert_array_equal(single.task.state.bird_pos[0], multi.task.state.bird_pos[0])
@@ -331,6 +332,7 @@ def test_check_reports_every_bad_drone_key_with_its_line(tmp_path):
 def test_teammates_need_a_vector_observation(tmp_path):
     path = write_team(tmp_path)
     assert DivertParallelEnv(path, teammates=False).observation_space("drone_1").shape == (26,)
-    assert "birds" in DivertParallelEnv(path, observation="dict").observation_space("drone_0").spaces
-    with pytest.raises(ValueError, match="^teammates = True: needs a vector"):
+    spaces = DivertParallelEnv(path, observation="dict").observation_space("drone_0")
+    assert "birds" in spaces.spaces  # no teammates by default with a dict observation
+    with pytest.raises(ValueError, match=r"^teammates = True: needs a vector"):
         DivertParallelEnv(path, observation="dict", teammates=True)

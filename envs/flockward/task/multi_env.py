@@ -105,7 +105,7 @@ class DivertParallelEnv(ParallelBase):
                 "pass teammates=False"
             )
         self.teammates = bool(vector and self.task.multi if teammates is None else teammates)
-        if self.teammates:
+        if self.teammates and isinstance(one, gym.spaces.Box):
             extra = 4 * (self.task.n_drones - 1)
             low = np.concatenate([np.asarray(one.low), np.full(extra, -np.inf)])
             high = np.concatenate([np.asarray(one.high), np.full(extra, np.inf)])
