@@ -28,7 +28,7 @@ from flockward_baselines.controllers.collect_drive import (
     cohesion_threshold,
     shepherd_target,
 )
-from flockward_baselines.controllers.steering import around, fly_to, keep_apart
+from flockward_baselines.controllers.steering import around, fly_to, keep_apart, team
 
 
 def _rotate(v: np.ndarray, angle: float) -> np.ndarray:
@@ -127,17 +127,13 @@ class CollectDriveRoles(CollectDrive):
                 angle = side * math.radians(self.flank_deg) * ((j + 1) // 2)
                 targets.append(gcm + _rotate(drive_point - gcm, angle))
         flock_vel = state.bird_vel.mean(axis=0)
+        fleet = team(state.scenario, drones)
         commands = []
         for k, target in enumerate(targets):
-            pursuer = (
-                state.scenario.fleet[k]
-                if k < state.scenario.drone_count
-                else state.scenario.pursuer
-            )
+            pursuer = fleet[k]
             pos, vel = state.pursuer_pos[k], state.pursuer_vel[k]
             waypoint = around(pos, target, gcm, radius + flock.dodge_radius)
             commands.append(
                 fly_to(pos, vel, waypoint, pursuer, self.speed * pursuer.max_speed, flock_vel)
             )
-        radii = np.array([d.safety_radius for d in state.scenario.fleet])
-        return keep_apart(np.array(commands), state.pursuer_pos, radii)
+        return keep_apart(np.array(commands), state.pursuer_pos, state.pursuer_vel, fleet)

@@ -26,7 +26,7 @@ import numpy as np
 from flockward.controller import StateView
 from flockward.sim.types import Scenario
 from flockward_baselines.controllers.boundary_arc import BoundaryArc, Sweep
-from flockward_baselines.controllers.steering import keep_apart
+from flockward_baselines.controllers.steering import keep_apart, team
 
 KEEP_APART = 3.0  # teammates keep this many times the sum of their safety radii apart
 
@@ -67,7 +67,8 @@ class SectorArc(BoundaryArc):
         if self._prepared is not state.scenario:
             self.reset(state.scenario)
         frame = self._frame(state)
-        radii = np.array([d.safety_radius for d in state.scenario.fleet])
+        fleet = team(state.scenario, len(state.pursuer_pos))
+        radii = np.array([d.safety_radius for d in fleet])
         # Two drones sweeping to a shared edge stay KEEP_APART times their radii apart there.
         last = len(self._sectors) - 1
         commands = []
@@ -79,4 +80,4 @@ class SectorArc(BoundaryArc):
         if len(commands) == 1:
             return commands[0]
         command = np.array(commands).reshape(len(commands), 2)
-        return keep_apart(command, state.pursuer_pos, radii, KEEP_APART)
+        return keep_apart(command, state.pursuer_pos, state.pursuer_vel, fleet, KEEP_APART)
