@@ -336,3 +336,26 @@ def test_teammates_need_a_vector_observation(tmp_path):
     assert "birds" in spaces.spaces  # no teammates by default with a dict observation
     with pytest.raises(ValueError, match=r"^teammates = True: needs a vector"):
         DivertParallelEnv(path, observation="dict", teammates=True)
+
+
+def test_command_line_plays_shows_and_ranks_a_team(tmp_path, capsys):
+    # Through the real entry point with a tiny budget: a two-drone suite run by a team baseline
+    # and a one-drone baseline, ranked, and one episode drawn.
+    from flockward_baselines.cli import main
+
+    write_team(tmp_path, steps=30)
+    suite = tmp_path / "teams.toml"
+    suite.write_text(
+        'name = "teams"\nversion = 1\n[[entry]]\nscenario = "team.toml"\nseeds = [0, 1]\n',
+        encoding="utf-8",
+    )
+    results = tmp_path / "results"
+    for name in ("sector-arc", "boundary-arc"):
+        args = ["run", "--suite", str(suite), "--controller", name, "--results", str(results)]
+        assert main(args) == 0
+    assert main(["board", "--suite", str(suite), "--results", str(results)]) == 0
+    assert "| sector-arc |" in capsys.readouterr().out
+    out = tmp_path / "team.png"
+    args = ["show", "--scenario", str(tmp_path / "team.toml"), "--controller", "sector-arc"]
+    assert main([*args, "--seed", "1", "--out", str(out)]) == 0
+    assert out.stat().st_size > 0
