@@ -359,3 +359,18 @@ def test_command_line_plays_shows_and_ranks_a_team(tmp_path, capsys):
     args = ["show", "--scenario", str(tmp_path / "team.toml"), "--controller", "sector-arc"]
     assert main([*args, "--seed", "1", "--out", str(out)]) == 0
     assert out.stat().st_size > 0
+
+
+def test_result_files_check_team_fields_and_accept_records_without_them():
+    from flockward.bench.results import episode_problem
+
+    scenario = load_scenario("headon", {"flock.count": 8, "episode.max_steps": 8})
+    record, _ = play_episode(scenario, make_controller("idle"), 0)
+    row = {"family": "f", **record.as_dict()}
+    assert episode_problem(row) is None  # a one-drone record, as every file before teams
+    assert episode_problem({**row, "conflict_steps": 0, "drone_energy": [1.0, None]}) is None
+    bad = {**row, "conflict_steps": row["collision_steps"] + 1}
+    assert episode_problem(bad) == (
+        "has 'conflict_steps' that is not an integer in [0, collision_steps]"
+    )
+    assert "not a list of numbers" in episode_problem({**row, "drone_path_length": "far"})
