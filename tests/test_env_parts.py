@@ -204,7 +204,7 @@ def test_one_env_id_and_enum_values():
     # StrEnum members equal the strings stored in result files.
     assert [o.value for o in Outcome] == ["running", "success", "breach", "timeout", "error"]
     assert Outcome.SUCCESS == "success" and json.dumps(Outcome.BREACH) == '"breach"'
-    assert INFORMATION_LEVELS == ("observation", "state") == tuple(InformationLevel)
+    assert INFORMATION_LEVELS == ("observation", "state", "sensed") == tuple(InformationLevel)
 
 
 TINY = """

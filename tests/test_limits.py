@@ -212,6 +212,7 @@ def test_every_parameter_field_declares_its_spec_beside_it():
         "reward",
         "randomise",
         "wind",
+        "sensor",
         "drones",
         "source_file",
     }

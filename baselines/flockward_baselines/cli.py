@@ -24,6 +24,7 @@ from flockward.config.scenarios import (
     load_flock,
     load_pursuer,
     load_scenario,
+    load_sensor,
 )
 from flockward.sim.types import Randomisation, Scenario
 
@@ -59,6 +60,13 @@ def _summary(path: Path, kind: str) -> str:
         p = load_pursuer(path)
         return (
             f"pursuer '{path.stem}': max speed {p.max_speed:g} m/s, max accel {p.max_accel:g} m/s^2"
+        )
+    if kind == "sensor":
+        c = load_sensor(path)
+        reach = "unlimited" if c.detection_range is None else f"{c.detection_range:g} m"
+        return (
+            f"sensor '{c.name}': {c.position}, range {reach}, noise {c.range_noise:g} m and "
+            f"{c.bearing_noise_deg:g} deg, update every {c.update_period:g} s"
         )
     if kind == "scenario":
         s = load_scenario(path)
@@ -630,16 +638,18 @@ def build_parser() -> argparse.ArgumentParser:
 
     check = sub.add_parser(
         "check",
-        help="validate scenario, flock and pursuer files",
-        description="Validate scenario, flock and drone-preset TOML files and report every "
+        help="validate scenario, flock, pursuer and sensor files",
+        description="Validate scenario, flock, drone-preset and sensor-preset TOML files and "
+        "report every "
         "error of each, one line each with its line number where the file shows it. A file is "
-        "checked as --kind says, else as its directory says (scenarios/, flocks/, pursuers/), "
+        "checked as --kind says, else as its directory says (scenarios/, flocks/, pursuers/, "
+        "sensors/), "
         "else as its keys suggest. An empty file is an error. Exit status 0 if all are valid, "
         "2 if any is not.",
         epilog=CAUTION,
     )
     check.add_argument(
-        "files", nargs="+", metavar="FILE", help="scenario, flock or drone-preset TOML file"
+        "files", nargs="+", metavar="FILE", help="scenario, flock, drone or sensor TOML file"
     )
     check.add_argument(
         "--kind", choices=CONFIG_KINDS, help="check every FILE as this kind of config"

@@ -1,8 +1,11 @@
 """The controller protocol: what a herding strategy implements to be scored by flockward.
 
 A controller declares what it may see. ``"observation"``: only the Gymnasium observation, like a
-learned policy. ``"state"``: privileged simulator state as well (every bird's position and
-velocity). The leaderboard prints the level beside each entry, so the two are never confused.
+learned policy (which sees the birds through the scenario's sensor). ``"state"``: privileged
+simulator state as well (every bird's true position and velocity). ``"sensed"``: the same state
+view, but with the birds as the scenario's sensor sees them (``flockward.sim.sensing``; the truth
+when the sensor is perfect). The leaderboard prints the level beside each entry, so they are
+never confused.
 """
 
 from __future__ import annotations
@@ -25,6 +28,7 @@ class InformationLevel(StrEnum):
 
     OBSERVATION = "observation"  # the Gymnasium observation only
     STATE = "state"  # the observation and privileged simulator state
+    SENSED = "sensed"  # the observation and the state view with the sensor's birds
 
 
 INFORMATION_LEVELS = tuple(level.value for level in InformationLevel)
@@ -32,9 +36,10 @@ INFORMATION_LEVELS = tuple(level.value for level in InformationLevel)
 
 @dataclass(frozen=True)
 class StateView:
-    """Privileged state of one world, for controllers of information level "state"."""
+    """Privileged state of one world, for controllers of information level "state" (every
+    bird, true) or "sensed" (the birds the scenario's sensor tracks, as it last sensed them)."""
 
-    bird_pos: np.ndarray  # (n, 2) m, active birds only
+    bird_pos: np.ndarray  # (n, 2) m, active (or tracked) birds only
     bird_vel: np.ndarray  # (n, 2) m/s
     pursuer_pos: np.ndarray  # (P, 2) m, every drone (scenario.fleet[k] holds drone k's limits)
     pursuer_vel: np.ndarray  # (P, 2) m/s

@@ -17,7 +17,9 @@ The push direction points at the goal, bent (by at most ``max_correction_deg``) 
 flock's sideways drift toward its destination, and away from the protected zone when the flock
 is within ``zone_margin`` of it.
 
-Assumes the state view (every bird's position and velocity, the episode's flock radii).
+Assumes the state view (every bird's position and velocity, the episode's flock radii). With
+``information = "sensed"`` it reads the birds as the scenario's sensor sees them instead (noisy,
+held between updates, lost tracks missing); with nothing sensed it commands nothing.
 """
 
 from __future__ import annotations
@@ -87,6 +89,7 @@ class BoundaryArc(Controller):
         drift_correction: float = 1.0,
         guard_fraction: float = 0.5,
         max_correction_deg: float = 30.0,
+        information: str = "state",
     ) -> None:
         if not 0.0 < push_fraction < 1.0:
             raise ValueError(f"push_fraction = {push_fraction}: must lie in (0, 1)")
@@ -96,6 +99,10 @@ class BoundaryArc(Controller):
             raise ValueError(f"arc_span_deg = {arc_span_deg}: must lie in [0, 180]")
         if not 0.0 < approach_speed <= 1.0:
             raise ValueError(f"approach_speed = {approach_speed}: a fraction in (0, 1]")
+        if information not in ("state", "sensed"):
+            raise ValueError(f"information = {information!r}: must be 'state' or 'sensed'")
+        # "state": every bird, true; "sensed": the birds the scenario's sensor tracks
+        self.information_level = information
         # Low in the band: close enough that the flee push is strong, far from the dodge radius.
         self.push_fraction = push_fraction
         # An absolute push distance (m) replaces the fraction; warned about outside the band.
@@ -125,8 +132,11 @@ class BoundaryArc(Controller):
         self._prepared: Scenario | None = None
 
     def parameters(self) -> dict[str, Any]:
-        """Every setting of the arc, the push and the drift correction."""
-        return {
+        """Every setting of the arc, the push and the drift correction (and the information
+        level when it is not the default, so result files of the default keep their
+        parameters)."""
+        level = {} if self.information_level == "state" else {"information": "sensed"}
+        return level | {
             "push_fraction": self.push_fraction,
             "push_distance": self.push_distance,
             "arc_span_deg": self.arc_span_deg,

@@ -181,7 +181,10 @@ def play_episode(
         return _failed(scenario, seed, env, f"reset raised {type(fault).__name__}: {fault}"), []
     task = env.task
     state = task.state
-    wants_state = controller.information_level == InformationLevel.STATE
+    level = controller.information_level
+    wants_state = level in (InformationLevel.STATE, InformationLevel.SENSED)
+    # "sensed": the birds as the scenario's sensor sees them (the truth with a perfect sensor)
+    sensor = task.sensor if level == InformationLevel.SENSED else None
     dt = scenario.episode.dt
     max_accel = task.world.pursuer_limits[0, :, 1]  # (P,) m/s^2
     drones = task.n_drones
@@ -212,10 +215,11 @@ def play_episode(
     while True:
         view = None
         if wants_state:
-            n = int(state.count[0])
+            birds = state if sensor is None else sensor.picture(state)[0]
+            n = int(birds.count[0])
             view = StateView(
-                state.bird_pos[0, :n].copy(),
-                state.bird_vel[0, :n].copy(),
+                birds.bird_pos[0, :n].copy(),
+                birds.bird_vel[0, :n].copy(),
                 state.pursuer_pos[0].copy(),
                 state.pursuer_vel[0].copy(),
                 task.world.flocks[0],

@@ -294,7 +294,38 @@ def _collided(ep: Mapping[str, Any]) -> bool:
     return _is_int(ep.get("collision_steps")) and ep["collision_steps"] > 0
 
 
-def _row(result: Mapping[str, Any], reps: int, seed: int) -> dict[str, Any]:
+def information_label(level: str, sensors: Sequence[str] = ()) -> str:
+    """What an entry saw: its information level, and when any of the suite's scenarios senses
+    imperfectly (``sensors``: their sensors' names, ``SensorParams.name``), through what.
+
+    Observation- and sensed-level entries saw the birds through the scenarios' sensors,
+    state-level ones the truth: ``observation (ground-radar)``, ``sensed (ground-radar)``,
+    ``state (truth)``. With only perfect sensors the level alone, as before sensors existed.
+    """
+    names = sorted(set(sensors))
+    if not names or names == ["perfect"]:
+        return level
+    if level == "state":
+        return "state (truth)"
+    return f"{level} ({', '.join(names)})"
+
+
+def suite_sensors(suite: str | os.PathLike[str]) -> dict[str, str]:
+    """Each scenario of ``suite`` (a shipped name or a file) mapped to its sensor's name; empty
+    when the suite cannot be loaded (its result files are checked by hash anyway)."""
+    from flockward.bench.suites import load_suite
+    from flockward.config.scenarios import ConfigError
+
+    try:
+        loaded = load_suite(str(suite))
+    except (ConfigError, OSError):
+        return {}
+    return {name: scenario.sensor.name for name, scenario in loaded.scenarios.items()}
+
+
+def _row(
+    result: Mapping[str, Any], reps: int, seed: int, sensors: Mapping[str, str] | None = None
+) -> dict[str, Any]:
     eps = result["episodes"]
     ok = [ep for ep in eps if ep["outcome"] != Outcome.ERROR]
     n = len(eps)
@@ -308,9 +339,10 @@ def _row(result: Mapping[str, Any], reps: int, seed: int) -> dict[str, Any]:
     # say (files written before the decision interval) or disagree.
     periods = {ep.get("decision_period") for ep in eps}
     period = periods.pop() if len(periods) == 1 else None
+    seen = [sensors[ep["scenario"]] for ep in eps if sensors and ep["scenario"] in sensors]
     return {
         "controller": row_name(result),
-        "information_level": result["information_level"],
+        "information_level": information_label(result["information_level"], seen),
         "changed_parameters": changed_parameters(result),
         "decision_period": float(period) if isinstance(period, int | float) else None,
         "episodes": n,
@@ -327,9 +359,15 @@ def _row(result: Mapping[str, Any], reps: int, seed: int) -> dict[str, Any]:
 
 
 def build_rows(
-    results: Sequence[Mapping[str, Any]], reps: int = 2000, seed: int = 0
+    results: Sequence[Mapping[str, Any]],
+    reps: int = 2000,
+    seed: int = 0,
+    sensors: Mapping[str, str] | None = None,
 ) -> list[dict[str, Any]]:
     """One row per result file (keys ``ROW_KEYS``), best ``score_iqm`` first.
+
+    ``information_level`` is the entry's level, qualified by what it saw when ``sensors`` (each
+    scenario's sensor name, ``suite_sensors``) holds an imperfect sensor (``information_label``).
 
     Rates are shares of all episodes: success, no bird breached, at least one collision step.
     ``decision_period`` (s) is how long each action was held, None when the records do not say.
@@ -338,7 +376,7 @@ def build_rows(
     episodes, None when there are none; ``median_zone_clearance`` (m) over episodes that did not
     error (negative: a bird got inside).
     """
-    rows = [_row(r, reps, seed) for r in results]
+    rows = [_row(r, reps, seed, sensors) for r in results]
     rows.sort(key=lambda r: (-r["score_iqm"], r["controller"]))
     return rows
 
@@ -500,6 +538,7 @@ def render_json(rows: Sequence[Mapping[str, Any]], keys: Sequence[str] = ROW_KEY
 _LEVEL_STYLE = {  # information level -> (colour, marker)
     "observation": ("#1b7f79", "o"),
     "state": ("#c8553d", "D"),
+    "sensed": ("#6a4c93", "^"),
 }
 
 
@@ -516,7 +555,8 @@ def write_chart(
     FigureCanvasAgg(fig)
     ax = fig.add_subplot()
     for y, r in enumerate(reversed(rows)):  # best at the top
-        colour, marker = _LEVEL_STYLE.get(r["information_level"], ("#555555", "s"))
+        level = str(r["information_level"]).split(" ")[0]  # "observation (ground-radar)"
+        colour, marker = _LEVEL_STYLE.get(level, ("#555555", "s"))
         mid = r["score_iqm"]
         # A percentile interval need not contain the IQM itself; a whisker cannot be negative.
         whiskers = [[max(0.0, mid - r["score_ci_low"])], [max(0.0, r["score_ci_high"] - mid)]]
@@ -685,7 +725,7 @@ def build_leaderboard(
     with ``expected_hash`` given, ``suite`` is taken as the suite's name); LeaderboardError if
     none is usable."""
     name, results = load_suite_results(results_dir, suite, expected_hash)
-    rows = build_rows(results, reps, seed)
+    rows = build_rows(results, reps, seed, suite_sensors(suite))
     order = [r["controller"] for r in rows]
     return Leaderboard(
         name,

@@ -199,7 +199,7 @@ def file_problem(data: Any, suite: str, expected_hash: str) -> str | None:
     if not isinstance(data.get("controller"), str) or not data["controller"]:
         return "has no controller name"
     if data.get("information_level") not in INFORMATION_LEVELS:
-        return "has 'information_level' that is neither 'observation' nor 'state'"
+        return f"has 'information_level' that is not one of {', '.join(INFORMATION_LEVELS)}"
     episodes = data.get("episodes")
     if not isinstance(episodes, list) or not episodes:
         return "holds no episodes"

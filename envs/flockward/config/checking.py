@@ -18,6 +18,7 @@ from flockward.config.scenarios import (
     flock_from,
     pursuer_from,
     scenario_from,
+    sensor_from,
 )
 from flockward.config.schema import SECTIONS
 
@@ -31,6 +32,7 @@ _LOADERS: dict[str, Callable[[dict[str, object], Path], object]] = {
     "scenario": scenario_from,
     "flock": flock_from,
     "pursuer": pursuer_from,
+    "sensor": sensor_from,
 }
 
 

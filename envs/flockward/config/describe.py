@@ -46,4 +46,17 @@ def describe(scenario: Scenario) -> str:
             f"  wind:      {n(wind.speed)} m/s from {n(wind.from_deg)} deg, "
             f"turbulence {wind.turbulence} at {n(wind.altitude)} m"
         )
+    sensor = scenario.sensor
+    if not sensor.perfect:
+        reach = "unlimited" if sensor.detection_range is None else f"{n(sensor.detection_range)} m"
+        where = (
+            "on drone 0"
+            if sensor.position == "onboard"
+            else f"at {point_text(sensor.ground_position)} m"
+        )
+        lines.append(
+            f"  sensor:    {sensor.name} {where}, reach {reach}, errors "
+            f"{n(sensor.range_noise)} m and {n(sensor.bearing_noise_deg)} deg, "
+            f"update every {n(sensor.update_period)} s"
+        )
     return "\n".join(lines)

@@ -49,6 +49,7 @@ from flockward.sim.types import (
     Randomisation,
     RewardWeights,
     Scenario,
+    SensorParams,
     SiteParams,
     WindParams,
 )
@@ -69,6 +70,7 @@ __all__ = [
     "load_flock",
     "load_pursuer",
     "load_scenario",
+    "load_sensor",
     "parse_override",
     "sample_reset",
     "scenario_hash",
@@ -76,17 +78,22 @@ __all__ = [
 
 
 # The kind of config each shipped directory holds: a file's location says what it is.
-KIND_OF_DIRECTORY = {"scenarios": "scenario", "flocks": "flock", "pursuers": "pursuer"}
-CONFIG_KINDS = ("scenario", "flock", "pursuer")
+KIND_OF_DIRECTORY = {
+    "scenarios": "scenario",
+    "flocks": "flock",
+    "pursuers": "pursuer",
+    "sensors": "sensor",
+}
+CONFIG_KINDS = ("scenario", "flock", "pursuer", "sensor")
 
 
 def config_kind(path: str | Path) -> str:
-    """What a config file is: 'scenario', 'flock' or 'pursuer' (a drone preset).
+    """What a config file is: 'scenario', 'flock', 'pursuer' (a drone preset) or 'sensor'.
 
-    A file in a directory named scenarios/, flocks/ or pursuers/ is what its directory says.
-    Elsewhere its keys decide: any table (such as [site]) or a drone list makes a scenario; only
-    drone keys make a drone preset; anything else is read as a flock. An empty file is an error,
-    not a default.
+    A file in a directory named scenarios/, flocks/, pursuers/ or sensors/ is what its directory
+    says. Elsewhere its keys decide: any table (such as [site]) or a drone list makes a scenario;
+    only drone keys make a drone preset, only sensor keys a sensor preset; anything else is read
+    as a flock. An empty file is an error, not a default.
     """
     file = Path(path)
     data = read_toml(file)
@@ -100,7 +107,9 @@ def config_kind(path: str | Path) -> str:
         return by_location
     if any(isinstance(v, dict) for v in data.values()) or DRONES_KEY in data:
         return "scenario"
-    return "pursuer" if set(data) <= set(SCHEMA["pursuer"]) else "flock"
+    if set(data) <= set(SCHEMA["pursuer"]):
+        return "pursuer"
+    return "sensor" if set(data) <= set(SCHEMA["sensor"]) else "flock"
 
 
 # --------------------------------------------------------------------------------------------
@@ -166,6 +175,18 @@ def load_pursuer(path: str | Path) -> PursuerParams:
     """Read a drone preset (PursuerParams keys at top level) or a shipped preset by name."""
     file = resolve(path, FILE_SECTIONS["pursuer"])
     return pursuer_from(read_toml(file), file)
+
+
+def load_sensor(path: str | Path) -> SensorParams:
+    """Read a sensor preset (SensorParams keys at top level) or a shipped preset by name."""
+    file = resolve(path, FILE_SECTIONS["sensor"])
+    return sensor_from(read_toml(file), file)
+
+
+def sensor_from(data: Mapping[str, object], file: Path) -> SensorParams:
+    """The sensor record of a preset file's parsed ``data`` (``file`` names it in messages)."""
+    origin = Origin(label(file), "", layer=1)
+    return _section_record(SensorParams, "sensor", _collect(data, "sensor", origin), origin)
 
 
 def flock_from(data: Mapping[str, object], file: Path) -> FlockParams:
@@ -359,6 +380,7 @@ def scenario_from(
             "episode": _record(EpisodeParams, values["episode"], within("episode")),
             "reward": _record(RewardWeights, values["reward"], within("reward")),
             "wind": _record(WindParams, values["wind"], within("wind")),
+            "sensor": _record(SensorParams, values["sensor"], within("sensor")),
             "drones": _drone_records(drones, raw["pursuer"], top),
             "source_file": str(file),
         },

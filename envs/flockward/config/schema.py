@@ -32,10 +32,12 @@ __all__ = [
 
 SCHEMA: dict[str, dict[str, Spec]] = LIMITS
 SECTIONS = tuple(s for s in SCHEMA if s)
-# [flock] file = "gulls", [pursuer] file = "multirotor": a section whose values may come from a
-# file of their own; "file" is the only key of such a section that is not a record field.
+# [flock] file = "gulls", [pursuer] file = "multirotor", [sensor] file = "ground-radar": a
+# section whose values may come from a file of their own; "file" is the only key of such a
+# section that is not a record field.
 SECTION_FILE_KEY = "file"
-FILE_SECTIONS = {"flock": "flocks", "pursuer": "pursuers"}  # section -> directory under configs/
+# section -> directory under configs/
+FILE_SECTIONS = {"flock": "flocks", "pursuer": "pursuers", "sensor": "sensors"}
 _CIRCLE_KEYS = ("center", "radius")
 _MAX_SHOWN = 120  # characters of an offending value quoted in an error message
 _PLAIN_KINDS = ("bool", "str", "name", "choice")  # checked, then kept as they are

@@ -38,6 +38,7 @@ from flockward.sim.types import (
     Randomisation,
     RewardWeights,
     Scenario,
+    SensorParams,
     SiteParams,
     WindParams,
     Zone,
@@ -125,6 +126,7 @@ RECORD_SECTIONS: dict[type, str] = {
     RewardWeights: "reward",
     Randomisation: "randomise",
     WindParams: "wind",
+    SensorParams: "sensor",
 }
 
 

@@ -33,6 +33,7 @@ ALIGNMENT_MODELS = ("motsch-tadmor", "cucker-smale")
 DODGE_FRAMES = ("relative", "ground")
 ESCAPE_THRUSTS = ("free", "power-limited")
 NOISE_MODELS = ("heading", "vector")
+SENSOR_POSITIONS = ("onboard", "ground")
 # Dryden turbulence presets: the wind speed at 20 ft, W20, of MIL-F-8785C's low-altitude model
 # (light 15 kt, moderate 30 kt, severe 45 kt; MathWorks Aerospace Blockset Dryden help).
 TURBULENCE_W20_KT = {"none": 0.0, "light": 15.0, "moderate": 30.0, "severe": 45.0}
@@ -392,6 +393,60 @@ class WindParams:
 
 
 @dataclass(frozen=True)
+class SensorParams:
+    """What the drone's side can sense of the birds (flockward.sim.sensing).
+
+    Observations (and so learned policies) read the sensed birds; controllers of information
+    level "state" keep the truth. A sensor measures each tracked bird's range and bearing from
+    its own position with Gaussian errors, loses and re-acquires tracks at random, and refreshes
+    its picture every ``update_period``; between refreshes the last picture is held. The default
+    is the perfect sensor: every bird, exactly, every control step (the behaviour before sensors
+    existed). Shipped presets: configs/sensors/ (``[sensor] file = "ground-radar"``).
+    """
+
+    # the label leaderboards show beside an observation- or sensed-level entry
+    name: str = param("perfect", Spec("name"))
+    # onboard: on drone 0 (at ground_position in a world without drones); ground: fixed
+    position: str = param("onboard", Spec("choice", choices=SENSOR_POSITIONS))
+    # where a ground sensor stands (unused onboard)
+    ground_position: tuple[float, float] = param((0.0, 0.0), POINT)
+    # birds farther than this (true distance) are never sensed; left out: unlimited
+    detection_range: float | None = param(None, positive(100_000.0, "m", opt=True))
+    # 1-sigma error of each measured range, Gaussian
+    range_noise: float = param(0.0, number(0.0, 1000.0, "m"))
+    # 1-sigma error of each measured bearing, Gaussian
+    bearing_noise_deg: float = param(0.0, number(0.0, 45.0, "deg"))
+    # chance that a tracked bird's track is lost at one sensor update
+    loss_probability: float = param(0.0, number(0.0, 1.0))
+    # chance that an untracked bird within detection_range is (re)acquired at one update
+    reacquire_probability: float = param(1.0, number(0.0, 1.0))
+    # time between sensor updates, rounded to whole control steps (at least one); 0 = every step
+    update_period: float = param(0.0, number(0.0, 600.0, "s"))
+
+    def __post_init__(self) -> None:
+        _check(self)
+
+    @property
+    def noisy(self) -> bool:
+        """Whether sensed positions carry measurement noise."""
+        return self.range_noise > 0.0 or self.bearing_noise_deg > 0.0
+
+    @property
+    def stochastic(self) -> bool:
+        """Whether the sensor draws random numbers: noise, track loss, uncertain acquisition."""
+        return self.noisy or self.loss_probability > 0.0 or self.reacquire_probability < 1.0
+
+    @property
+    def perfect(self) -> bool:
+        """Every bird, exactly, every control step: the truth itself."""
+        return not self.stochastic and self.detection_range is None and self.update_period == 0.0
+
+    def update_steps(self, dt: float) -> int:
+        """Control steps of ``dt`` seconds between updates: update_period rounded, at least 1."""
+        return max(1, round(self.update_period / dt))
+
+
+@dataclass(frozen=True)
 class Scenario:
     """A complete, validated episode description."""
 
@@ -404,6 +459,7 @@ class Scenario:
     reward: RewardWeights = field(default_factory=RewardWeights)
     randomise: Randomisation = field(default_factory=Randomisation)
     wind: WindParams = field(default_factory=WindParams)
+    sensor: SensorParams = field(default_factory=SensorParams)
     # Each drone's start and limits ([[drones]] in a file); empty: one drone, ``pursuer`` itself.
     drones: tuple[PursuerParams, ...] = ()
     source_file: str | None = None  # where it was read from, for messages and provenance

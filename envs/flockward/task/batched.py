@@ -21,9 +21,10 @@ from flockward.sim.metrics import (
     nearest_per_drone,
     step_metrics,
 )
+from flockward.sim.sensing import Sensor
 from flockward.sim.types import Scenario, WorldState
 from flockward.sim.world import World
-from flockward.task.context import Scales, StepContext, TaskSetting
+from flockward.task.context import Scales, SensedView, StepContext, TaskSetting
 from flockward.task.drones import drone_context, stack_observations, stacked_space, team_terms
 from flockward.task.env_config import EnvConfig
 from flockward.task.outcome import Outcome
@@ -73,6 +74,12 @@ class DivertTask:
         self.n_worlds = worlds
         self.world = World(scenario, worlds, config.neighbour_search, drones=config.drones)
         self.n_drones = self.world.n_drones
+        # What observations see of the birds; None: the truth (the perfect sensor, the default).
+        self.sensor = (
+            None
+            if scenario.sensor.perfect
+            else Sensor(scenario.sensor, worlds, self.world.max_birds, scenario.episode.dt)
+        )
         self.setting = TaskSetting(
             scenario=scenario,
             worlds=worlds,
@@ -135,9 +142,10 @@ class DivertTask:
         own = np.zeros((self.n_worlds, self.n_drones), bool) if collided is None else collided
         return [drone_context(context, k, own[:, k]) for k in range(self.n_drones)]
 
-    def measure(self) -> StepMetrics:
-        """Flock metrics of every world in the current state (one compiled call)."""
-        s = self.world.state
+    def measure(self, state: WorldState | None = None) -> StepMetrics:
+        """Flock metrics of every world in ``state`` (default: the current true state), in one
+        compiled call."""
+        s = self.world.state if state is None else state
         return step_metrics(
             s.bird_pos,
             s.bird_vel,
@@ -156,6 +164,8 @@ class DivertTask:
         for k, index in enumerate(indices):
             self.world.reset(int(index), None if rngs is None else rngs[k])
             self.ever_inside[index] = False
+            if self.sensor is not None:
+                self.sensor.reset(int(index), self.world.rngs[index], self.world.state)
         self.metrics = self.measure()
         self.ever_inside[indices] |= self.metrics.in_protected[indices]
         none = self._none
@@ -171,6 +181,7 @@ class DivertTask:
             truncated=none,
             new_breaches=np.zeros(self.n_worlds, dtype=np.int64),
             collided=none,
+            sensed=self.sensed(),
         )
         views = self._views(context, None)
         for parts in (self.rewards, self.observations):
@@ -179,6 +190,15 @@ class DivertTask:
                 if callable(hook):
                     hook(view, indices)
         return self._observe(context, views)
+
+    def sensed(self) -> SensedView | None:
+        """The sensor's current picture of every world, with its flock metrics; None with the
+        perfect sensor (observations then read the truth)."""
+        if self.sensor is None:
+            return None
+        state, slots = self.sensor.picture(self.world.state)
+        age = self.sensor.age(self.world.steps)
+        return SensedView(self.scenario.sensor, state, self.measure(state), slots, age)
 
     def metrics_info(self) -> dict[str, np.ndarray]:
         """The latest flock metrics that a reset reports in its info."""
@@ -263,6 +283,7 @@ class DivertTask:
             failure=info["outcome"] == Outcome.BREACH,
             truncated=truncated,
             collided=info["collision"],
+            sensed=self.sensed(),
         )
         observation = self._observe(context, self._views(context, info.get("drone_contact")))
         return StepBatch(observation, reward, terminated, truncated, info)
@@ -272,6 +293,8 @@ class DivertTask:
     ) -> tuple[StepContext, dict[str, np.ndarray], dict[str, Any]]:
         """Advance the live worlds by one control step: its context, reward terms and info."""
         self.world.step(action, live)
+        if self.sensor is not None:
+            self.sensor.step(self.world.state, self.world.steps, live)
         before = self.metrics
         m = self.measure()
         self.metrics = m

@@ -3,6 +3,8 @@
 ``TaskSetting`` is fixed for the life of a task (scenario, zones as arrays, scales, padding);
 ``StepContext`` is one immutable snapshot of a step (or a reset) of every world. Observation and
 reward objects read these two records only, so a new term or field needs no change to the task.
+Observations read the birds through ``seen_state`` and ``seen_metrics``: the scenario's sensor's
+picture (``SensedView``), or the truth when the sensor is perfect. Rewards read the truth.
 """
 
 from __future__ import annotations
@@ -13,7 +15,7 @@ import numpy as np
 
 from flockward.sim.geometry import zone_center
 from flockward.sim.metrics import StepMetrics
-from flockward.sim.types import RewardWeights, Scenario, WorldState
+from flockward.sim.types import RewardWeights, Scenario, SensorParams, WorldState
 
 
 @dataclass(frozen=True)
@@ -58,6 +60,23 @@ class TaskSetting:
 
 
 @dataclass(frozen=True)
+class SensedView:
+    """The birds as the scenario's sensor last saw them (``flockward.sim.sensing``), all worlds.
+
+    ``state`` lists each world's tracked birds first (``state.count`` of them, positions and
+    velocities as sensed; the slots beyond are zero and never a bird) and the drones as they are;
+    ``metrics`` are the flock metrics of those sensed birds (undefined where a world senses no
+    bird: ``state.count`` is 0 there).
+    """
+
+    sensor: SensorParams
+    state: WorldState  # sensed birds, compacted; drones true
+    metrics: StepMetrics  # of the sensed birds
+    slots: np.ndarray  # (B, N) int64, the true bird slot of each sensed bird, -1 beyond count
+    age: np.ndarray  # (B,) s, time since the picture was taken (0 right after an update)
+
+
+@dataclass(frozen=True)
 class StepContext:
     """One step (or reset) of every world, as observations and reward terms see it.
 
@@ -79,6 +98,8 @@ class StepContext:
     # this control step's place within the held decision: 0 for its first step, up to
     # decision_steps - 1 (potential-based shaping discounts by it; see task.reward)
     hold_step: int = 0
+    # the sensor's picture after the step; None: the sensor is perfect, observations see the truth
+    sensed: SensedView | None = None
 
     @property
     def scales(self) -> Scales:
@@ -94,6 +115,17 @@ class StepContext:
     def shaping_discount(self) -> float:
         """The shaping discount per control step (``Scenario.shaping_discount``)."""
         return self.setting.scenario.shaping_discount
+
+    @property
+    def seen_state(self) -> WorldState:
+        """The birds as observations see them: the sensor's picture (tracked birds first,
+        ``count`` = tracked birds), or the true state with a perfect sensor."""
+        return self.state if self.sensed is None else self.sensed.state
+
+    @property
+    def seen_metrics(self) -> StepMetrics:
+        """Flock metrics of ``seen_state``'s birds (the true metrics with a perfect sensor)."""
+        return self.metrics if self.sensed is None else self.sensed.metrics
 
     @property
     def worlds(self) -> int:

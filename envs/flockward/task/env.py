@@ -67,6 +67,10 @@ class DivertEnv(gym.Env):
     and velocity of every bird, "mask": (max_birds,) 1 for a real bird}``. Any other observation
     is an object (or an import path ``package.module:Name`` of its class) following
     ``flockward.task.observation.Observation``.
+    Birds are observed through the scenario's ``[sensor]`` (``flockward.sim.sensing``): with the
+    default perfect sensor every bird exactly; otherwise only tracked birds, with their errors (an
+    untracked rim slot has ``rim_present`` 0 and offset (0, 0); with no bird tracked every flock
+    field is 0, ``largest_cluster`` 0 marking it; the dict ``mask`` marks the tracked birds).
 
     ## Rewards
     The sum of named terms, each in ``info["reward_terms"]`` summed over the held control steps,

@@ -6,6 +6,15 @@ batched from the step's metrics, without a Python loop over worlds or birds. Len
 two scales of the scenario (``Scales``): the site scale for where the flock is on the airfield, the
 alarm radius for what happens near the pursuer; speeds by the pursuer's top speed or the flock's
 cruise speed. Directions are in the world frame (x east, y north).
+
+Birds are seen through the scenario's sensor (``StepContext.seen_state``; the truth with the
+default perfect sensor, so that case is unchanged bit for bit): every flock field is computed
+from the tracked birds only, and a bird that is lost or out of range is absent, never a stale
+value. Absent in the vector: a rim slot with no tracked bird has ``rim_present`` 0 and offset
+exactly (0, 0), meaningful only where ``rim_present`` is 1; when a world tracks no bird at all,
+every flock field (``centroid_offset`` through ``goal_distance``) is 0, and ``largest_cluster``
+= 0 marks it (it is at least 1/n whenever a bird is tracked). In the dict, ``mask`` is 1 exactly
+for the tracked birds, listed first.
 """
 
 from __future__ import annotations
@@ -256,10 +265,11 @@ class VectorObservation(Observation):
     def rim_indices(self, context: StepContext) -> np.ndarray:
         """(B, rim_birds) indices of the most threatening rim birds, -1 where padded."""
         setting = self.setting
+        seen = context.seen_state
         _rim_threat(
-            context.state.bird_pos,
-            context.state.count,
-            context.metrics.on_hull,
+            seen.bird_pos,
+            seen.count,
+            context.seen_metrics.on_hull,
             setting.protected_arr,
             setting.goal_arr,
             self._k,
@@ -271,9 +281,9 @@ class VectorObservation(Observation):
         """The (B, D) float32 vectors of all worlds."""
         setting = self.setting
         s = setting.scales
-        m = context.metrics
+        m = context.seen_metrics
         _vector_obs(
-            context.state.bird_pos,
+            context.seen_state.bird_pos,
             context.drone_vel,
             context.drone_pos,
             m.centroid,
@@ -291,6 +301,8 @@ class VectorObservation(Observation):
             s.cruise_speed,
             self._vector,
         )
+        if context.sensed is not None:  # no tracked bird: every flock field reads 0
+            self._vector[context.seen_state.count == 0, _CENTROID:_RIM_START] = 0.0
         return self._vector.astype(np.float32)
 
     def build(self, context: StepContext) -> Any:
@@ -301,8 +313,9 @@ class VectorObservation(Observation):
 class DictObservation(VectorObservation):
     """``context`` (the vector), ``birds`` (max_birds, 4) and ``mask`` (max_birds,).
 
-    ``birds`` holds every bird's position and velocity relative to the pursuer, scaled by the
-    alarm radius and the pursuer's top speed, zero for padding; ``mask`` is 1 for a real bird.
+    ``birds`` holds every seen bird's position and velocity relative to the pursuer, scaled by
+    the alarm radius and the pursuer's top speed, zero for padding; ``mask`` is 1 for a seen bird
+    (every real bird with the perfect sensor, else the tracked ones, listed first).
     ``max_birds`` is the environment's ``max_birds`` argument (default: the scenario's largest
     flock).
     """
@@ -321,7 +334,7 @@ class DictObservation(VectorObservation):
     def build(self, context: StepContext) -> Any:
         """The batched dict: context (B, D), birds (B, max_birds, 4), mask (B, max_birds)."""
         vector = self.vector(context)
-        state = context.state
+        state = context.seen_state
         s = self.setting.scales
         slots = self.setting.max_birds
         worlds, n_slots = state.bird_pos.shape[:2]
