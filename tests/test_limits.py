@@ -219,6 +219,7 @@ def test_every_parameter_field_declares_its_spec_beside_it():
         "randomise",
         "wind",
         "sensor",
+        "drones",
         "source_file",
     }
     for record, section in RECORD_SECTIONS.items():

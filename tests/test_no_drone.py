@@ -35,9 +35,10 @@ def test_no_drone_is_a_builtin_declaring_zero_drones():
         controller_env_kwargs(controller, {"drones": 1})
 
 
-@pytest.mark.parametrize("bad", [2, -1, True, 0.0, "0"])
+@pytest.mark.parametrize("bad", [9, -1, True, 0.0, "0"])
 def test_drones_argument_is_validated(bad):
-    with pytest.raises(ValueError, match=r"^drones = .*: must be an integer in \[0, 1\]$"):
+    # 0 (unherded) to MAX_DRONES = 8 drones per world
+    with pytest.raises(ValueError, match=r"^drones = .*: must be an integer in \[0, 8\]$"):
         EnvConfig(drones=bad)
 
 

@@ -37,6 +37,7 @@ def test_reference_lists_every_schema_key_once() -> None:
     keys = [row[0] for row in reference_rows()]
     expected = [f"{s}.{k}" if s else k for s, specs in SCHEMA.items() for k in specs]
     expected += [f"{s}.{SECTION_FILE_KEY}" for s in FILE_SECTIONS]
+    expected += ["[[drones]]"]  # a team's drone tables, each of pursuer keys
     assert sorted(keys) == sorted(expected) and len(keys) == len(set(keys))
 
 

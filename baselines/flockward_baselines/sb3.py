@@ -34,6 +34,10 @@ class FlockwardVecEnv(VecEnv):
 
     Attributes and methods reached through get_attr / set_attr / env_method belong to the shared
     batched task, so every index sees the same object: get_attr returns one value per index.
+
+    With P > 1 drones the action space is flat, (2P,) = (x0, y0, x1, y1, ...), the (P, 2) command
+    row by row, as SB3's policies emit flat vectors; observations keep the task's (P, ...)
+    stacking (SB3's default feature extractor flattens them).
     """
 
     def __init__(
@@ -48,8 +52,13 @@ class FlockwardVecEnv(VecEnv):
         self.task = DivertTask(self.config, int(num_envs))
         self.scenario = self.task.scenario
         self.render_mode = None
-        super().__init__(int(num_envs), self.task.observation_space(), action_space())
-        self._actions = np.zeros((self.num_envs, 1, 2))  # (worlds, drones, 2), as check_actions
+        drones = self.task.n_drones
+        space = action_space(drones)
+        if drones > 1:
+            space = gym.spaces.Box(-1.0, 1.0, (2 * drones,), np.float32)
+        super().__init__(int(num_envs), self.task.observation_space(), space)
+        # (worlds, drones, 2), as check_actions
+        self._actions = np.zeros((self.num_envs, max(drones, 1), 2))
         self._generators: list[np.random.Generator] | None = None
         # control steps of dt played by all worlds so far: each step holds the actions for
         # decision_steps of them, fewer where an episode ends within the hold
@@ -65,8 +74,8 @@ class FlockwardVecEnv(VecEnv):
         return obs
 
     def step_async(self, actions: np.ndarray) -> None:
-        """Check and keep the (B, 2) actions for the next ``step_wait``."""
-        self._actions = check_actions(actions, self.num_envs)
+        """Check and keep the (B, 2) actions ((B, 2P) with P > 1 drones) for ``step_wait``."""
+        self._actions = check_actions(actions, self.num_envs, self.task.n_drones)
 
     def step_wait(self) -> BatchStep:
         """Step every world; a finished world is reset and its last observation kept in info."""

@@ -41,7 +41,7 @@ class StateView:
 
     bird_pos: np.ndarray  # (n, 2) m, active (or tracked) birds only
     bird_vel: np.ndarray  # (n, 2) m/s
-    pursuer_pos: np.ndarray  # (P, 2) m, every drone; the controller flies drone 0
+    pursuer_pos: np.ndarray  # (P, 2) m, every drone (scenario.fleet[k] holds drone k's limits)
     pursuer_vel: np.ndarray  # (P, 2) m/s
     flock: FlockParams  # this episode's (possibly randomised) behaviour parameters
     scenario: Scenario  # site geometry, pursuer limits, episode rules, decision_period
@@ -53,15 +53,18 @@ class Controller:
 
     name: str = "unnamed"
     information_level: str = InformationLevel.OBSERVATION
-    # Drones in the world the controller is scored in: 1, or 0 for a control run without any
-    # pursuer (its actions are then ignored). The episode player builds the env with it.
+    # 1: the controller flies the scenario's drones (one unless the scenario lists [[drones]]);
+    # 0: a control run without any pursuer (its actions are then ignored). The episode player
+    # builds the env with it.
     drones: int = 1
 
     def reset(self, scenario: Scenario, seed: int | None = None) -> None:
         """Called before each episode with the scenario and the episode's seed."""
 
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
-        """The normalised acceleration of drone 0, shape (2,), each component in [-1, 1]."""
+        """The normalised acceleration, each component in [-1, 1]: of drone 0, shape (2,), or
+        of every drone, shape (P, 2). A (2,) command on a P-drone scenario flies drone 0 and
+        gives the other drones a zero command (they hold still: at rest from the start)."""
         raise NotImplementedError
 
     def parameters(self) -> dict[str, Any]:

@@ -12,9 +12,11 @@ from typing import Any
 from flockward.controller import Controller, load_controller_class
 from flockward_baselines.controllers.boundary_arc import BoundaryArc
 from flockward_baselines.controllers.collect_drive import CollectDrive
+from flockward_baselines.controllers.collect_drive_roles import CollectDriveRoles
 from flockward_baselines.controllers.direct_pursuit import DirectPursuit
 from flockward_baselines.controllers.idle import Idle
 from flockward_baselines.controllers.no_drone import NoDrone
+from flockward_baselines.controllers.sector_arc import SectorArc
 
 BUILTIN: dict[str, type[Controller]] = {
     "boundary-arc": BoundaryArc,
@@ -22,15 +24,19 @@ BUILTIN: dict[str, type[Controller]] = {
     "collect-drive": CollectDrive,
     "idle": Idle,
     "no-drone": NoDrone,
+    "sector-arc": SectorArc,
+    "collect-drive-roles": CollectDriveRoles,
 }
 
 __all__ = [
     "BUILTIN",
     "BoundaryArc",
     "CollectDrive",
+    "CollectDriveRoles",
     "DirectPursuit",
     "Idle",
     "NoDrone",
+    "SectorArc",
     "make_controller",
 ]
 

@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -48,6 +49,29 @@ def _unit(v: np.ndarray) -> np.ndarray:
 
 def _bearing(angle: float) -> np.ndarray:
     return np.array([math.cos(angle), math.sin(angle)])
+
+
+@dataclass
+class Sweep:
+    """One drone's progress: approaching its station or sweeping, where and which way."""
+
+    mode: str = "approach"
+    phase: float = 0.0  # rad, sweep offset from the arc centre
+    direction: float = 1.0  # sweep sense, +1 counter-clockwise
+
+
+@dataclass(frozen=True)
+class _Frame:
+    """One decision's shared view of the flock (positions m, velocities m/s)."""
+
+    birds: np.ndarray  # (n, 2)
+    dt: float  # s until the next decision
+    centroid: np.ndarray  # (2,)
+    flock_vel: np.ndarray  # (2,)
+    push: float  # m, standoff from the nearest rim bird
+    rel: np.ndarray  # (n, 2) birds from the centroid
+    radius: float  # m, farthest bird from the centroid
+    centre_angle: float  # rad, the arc centre's bearing from the centroid
 
 
 class BoundaryArc(Controller):
@@ -150,9 +174,7 @@ class BoundaryArc(Controller):
     def reset(self, scenario: Scenario, seed: int | None = None) -> None:
         """Prepare for the scenario and start with the approach to the standoff point."""
         self._prepare(scenario)
-        self._mode = "approach"
-        self._phase = 0.0  # rad, sweep offset from the arc centre
-        self._direction = 1.0  # sweep sense, +1 counter-clockwise
+        self._sweep = Sweep()  # the drone's approach or sweep, from the arc centre
         self._centre: np.ndarray | None = None  # smoothed unit bearing of the arc centre
 
     def _prepare(self, scenario: Scenario) -> None:
@@ -196,7 +218,12 @@ class BoundaryArc(Controller):
             return np.zeros(2)
         if self._prepared is not state.scenario:
             self.reset(state.scenario)
-        pos, vel = state.pursuer_pos[0], state.pursuer_vel[0]  # the drone this controller flies
+        frame = self._frame(state)
+        return self._command(state, frame, 0, self._sweep, None)  # the drone this controller flies
+
+    def _frame(self, state: StateView) -> _Frame:
+        """What every drone's command shares: the flock, the push and the arc's centre bearing
+        (smoothed once per decision)."""
         birds = state.bird_pos
         dt = state.scenario.episode.decision_period  # s until the next call
         centroid = birds.mean(axis=0)
@@ -220,6 +247,33 @@ class BoundaryArc(Controller):
         rel = birds - centroid
         radius = float(np.max(np.hypot(*rel.T)))
         centre_angle = math.atan2(self._centre[1], self._centre[0])
+        return _Frame(birds, dt, centroid, flock_vel, push, rel, radius, centre_angle)
+
+    def _command(
+        self,
+        state: StateView,
+        frame: _Frame,
+        k: int,
+        sweep: Sweep,
+        sector: tuple[float, float] | None,
+    ) -> np.ndarray:
+        """Drone k's command: back off, approach its station or sweep its arc.
+
+        ``sector`` (rad, offsets from the arc centre) bounds the sweep; None sweeps the whole
+        ``arc_span_deg`` symmetrically, the one-drone rule.
+        """
+        birds, dt, centroid, flock_vel, push = (
+            frame.birds,
+            frame.dt,
+            frame.centroid,
+            frame.flock_vel,
+            frame.push,
+        )
+        rel, radius, centre_angle = frame.rel, frame.radius, frame.centre_angle
+        pos, vel = state.pursuer_pos[k], state.pursuer_vel[k]
+        pursuer = (
+            state.scenario.fleet[k] if k < state.scenario.drone_count else state.scenario.pursuer
+        )
 
         def station(offset: float) -> tuple[np.ndarray, float]:
             u = _bearing(centre_angle + offset)
@@ -234,26 +288,29 @@ class BoundaryArc(Controller):
             # because inside the dodge radius the flock splits.
             away = _unit(pos - birds[nearest])
             retreat = birds[nearest] + push * away
-            return fly_to(pos, vel, retreat, state.scenario.pursuer, None, flock_vel)
+            return fly_to(pos, vel, retreat, pursuer, None, flock_vel)
 
-        target, reach = station(self._phase)
-        if self._mode == "approach":
+        target, reach = station(sweep.phase)
+        if sweep.mode == "approach":
             if float(np.hypot(*(target - pos))) < self.arrive_tolerance:
-                self._mode = "sweep"
+                sweep.mode = "sweep"
         elif float(np.hypot(*(target - pos))) > 3.0 * self.arrive_tolerance:
-            self._mode = "approach"
-        if self._mode == "approach":
+            sweep.mode = "approach"
+        if sweep.mode == "approach":
             waypoint = around(pos, target, centroid, radius + 0.9 * push)
-            speed = self.approach_speed * state.scenario.pursuer.max_speed
-            return fly_to(pos, vel, waypoint, state.scenario.pursuer, speed, flock_vel)
+            speed = self.approach_speed * pursuer.max_speed
+            return fly_to(pos, vel, waypoint, pursuer, speed, flock_vel)
 
-        half = math.radians(self.arc_span_deg) / 2.0
-        self._phase += self._direction * self.sweep_speed / max(reach, 1.0) * dt
-        if abs(self._phase) >= half:
-            self._phase = math.copysign(half, self._phase)
-            self._direction = -math.copysign(1.0, self._phase)
-        target, reach = station(self._phase)
-        tangent = self._direction * _bearing(centre_angle + self._phase + math.pi / 2.0)
-        return fly_to(
-            pos, vel, target, state.scenario.pursuer, None, flock_vel + self.sweep_speed * tangent
-        )
+        sweep.phase += sweep.direction * self.sweep_speed / max(reach, 1.0) * dt
+        if sector is None:
+            half = math.radians(self.arc_span_deg) / 2.0
+            if abs(sweep.phase) >= half:
+                sweep.phase = math.copysign(half, sweep.phase)
+                sweep.direction = -math.copysign(1.0, sweep.phase)
+        elif sweep.phase >= sector[1]:
+            sweep.phase, sweep.direction = sector[1], -1.0
+        elif sweep.phase <= sector[0]:
+            sweep.phase, sweep.direction = sector[0], 1.0
+        target, reach = station(sweep.phase)
+        tangent = sweep.direction * _bearing(centre_angle + sweep.phase + math.pi / 2.0)
+        return fly_to(pos, vel, target, pursuer, None, flock_vel + self.sweep_speed * tangent)

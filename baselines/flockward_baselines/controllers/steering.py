@@ -8,10 +8,11 @@ waypoint (common practice); every baseline uses this one so they differ only in 
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 
 import numpy as np
 
-from flockward.sim.types import PursuerParams
+from flockward.sim.types import PursuerParams, Scenario
 
 
 def _unit_command(accel: np.ndarray, max_accel: float) -> np.ndarray:
@@ -96,3 +97,43 @@ def around(pos: np.ndarray, target: np.ndarray, centre: np.ndarray, keep_out: fl
     step = math.copysign(min(abs(turn), math.radians(30.0)), turn)
     radius = max(1.1 * keep_out, min(float(np.hypot(*rel)), 1.5 * keep_out))
     return centre + radius * np.array([math.cos(here + step), math.sin(here + step)])
+
+
+def keep_apart(
+    commands: np.ndarray,
+    positions: np.ndarray,
+    velocities: np.ndarray,
+    fleet: Sequence[PursuerParams],
+    factor: float = 3.0,
+) -> np.ndarray:
+    """Team commands (P, 2) with a push away from each teammate nearer than ``factor`` times the
+    sum of the two drones' safety radii (m) plus the distance the pair needs to brake its closing
+    speed (v^2 / 2a, a the weaker drone's acceleration). The push grows linearly to four full
+    commands at contact (so it outweighs any command a quarter of the way in), then each
+    command's norm is capped at 1 again. A conflict (closer than the sum of the radii) is what
+    the benchmark counts as a contact, so the push starts well before it (common practice: a
+    separation rule, as in Reynolds' boids, widened by the braking distance)."""
+    out = np.array(commands, dtype=np.float64)
+    for k in range(len(out)):
+        push = np.zeros(2)
+        for j in range(len(out)):
+            if j == k:
+                continue
+            offset = positions[k] - positions[j]
+            gap = float(np.hypot(offset[0], offset[1]))
+            away = offset / gap if gap > 1e-9 else np.array([1.0, 0.0]) * (1 if k > j else -1)
+            closing = max(0.0, -float((velocities[k] - velocities[j]) @ away))  # m/s
+            brake = closing**2 / (2.0 * min(fleet[k].max_accel, fleet[j].max_accel))
+            reach = factor * (fleet[k].safety_radius + fleet[j].safety_radius) + brake
+            if gap < reach:
+                push += 4.0 * (1.0 - gap / reach) * away
+        if push.any():
+            out[k] = _unit_command(out[k] + push, 1.0)
+    return out
+
+
+def team(scenario: Scenario, drones: int) -> tuple[PursuerParams, ...]:
+    """Each of ``drones`` drones' parameters: the scenario's own list, or copies of its
+    [pursuer] when it lists none (a world flown with more drones than the file names)."""
+    fleet = scenario.fleet
+    return fleet if len(fleet) == drones else (scenario.pursuer,) * drones

@@ -42,10 +42,33 @@ class EpisodeRecord:
     time_limit: float  # s, the longest the episode could last: step budget * dt
     duration: float  # s, how long the episode lasted: control steps * dt
     error: str | None = None  # why the controller failed the episode, if it did
+    # Teams of P > 1 drones only (None, and left out of as_dict, with one drone or none):
+    drone_path_length: list[float] | None = None  # m, each drone's track length
+    # (m/s^2)^2 s, each drone's integral of its commanded acceleration squared
+    drone_energy: list[float] | None = None
+    drone_closest_approach: list[float] | None = None  # m, each drone's closest bird
+    min_drone_separation: float | None = None  # m, least distance between two drones
+    # control steps with two drones closer than the sum of their safety radii (also counted in
+    # collision_steps, so the score's no-contact term counts them like a collision)
+    conflict_steps: int | None = None
 
     def as_dict(self) -> dict[str, Any]:
-        """The record as a flat dict, the form a result file stores."""
-        return asdict(self)
+        """The record as a flat dict, the form a result file stores; the team fields only for
+        teams, so one-drone records keep exactly the fields they always had."""
+        record = asdict(self)
+        for key in TEAM_FIELDS:
+            if record[key] is None:
+                del record[key]
+        return record
+
+
+TEAM_FIELDS = (
+    "drone_path_length",
+    "drone_energy",
+    "drone_closest_approach",
+    "min_drone_separation",
+    "conflict_steps",
+)
 
 
 class ControllerFault(Exception):
@@ -68,6 +91,15 @@ def _command_energy(action: np.ndarray, max_accel: np.ndarray, dt: float) -> flo
     return total
 
 
+def _drone_energies(action: np.ndarray, max_accel: np.ndarray, dt: float) -> np.ndarray:
+    """Each drone's share of ``_command_energy``, (P,) (m/s^2)^2 s."""
+    u = np.clip(np.reshape(action, (-1, 2))[: len(max_accel)], -1.0, 1.0)
+    u = u / np.maximum(1.0, np.hypot(u[:, 0], u[:, 1]))[:, None]
+    accel = u * np.asarray(max_accel)[:, None]
+    energies: np.ndarray = (accel**2).sum(axis=1) * dt
+    return energies
+
+
 def _track_length(before: np.ndarray, after: np.ndarray) -> float:
     """Distance flown in one step, summed over the drones of (P, 2) positions, m."""
     return sum(float(np.hypot(*(a - b))) for a, b in zip(after, before, strict=True))
@@ -82,13 +114,28 @@ def _zone_clearance(task: DivertTask) -> float:
     return float(signed_distance(task.setting.protected_arr, task.state.bird_pos[0, :n]).min())
 
 
-def _checked_action(raw: object) -> np.ndarray:
-    """A controller's return value as a (2,) float64 action; ControllerFault if it is not one."""
+def _checked_action(raw: object, drones: int = 1) -> np.ndarray:
+    """A controller's return value as the env's action: (2,) with one drone (or none), (P, 2)
+    with P > 1; ControllerFault if it is not one.
+
+    A controller may return (2,) for drone 0 only: with P > 1 drones the others then get a zero
+    command (they hold their velocity: at rest from the start, drifting with any wind). It may
+    return (P, 2), one row per drone, instead ((1, 2) with one drone), or the same flat as
+    (2P,), the SB3 adapter's team action (so a model trained on it plays as it acts).
+    """
     action = np.asarray(raw, dtype=np.float64)
-    if action.shape != (2,):
-        raise ControllerFault(f"action has shape {action.shape}, expected (2,)")
+    p = max(drones, 1)
+    if action.shape == (1, 2) and p == 1:
+        action = action[0]
+    if p > 1 and action.shape == (2 * p,):
+        action = action.reshape(p, 2)
+    if action.shape not in ((2,), (p, 2)):
+        expected = "(2,)" if p == 1 else f"(2,) for drone 0 or ({p}, 2)"
+        raise ControllerFault(f"action has shape {action.shape}, expected {expected}")
     if not np.all(np.isfinite(action)):
         raise ControllerFault(f"action is not finite: {action.tolist()}")
+    if p > 1 and action.shape == (2,):
+        action = np.vstack([action, np.zeros((p - 1, 2))])
     return action
 
 
@@ -141,6 +188,13 @@ def play_episode(
     sensor = task.sensor if level == InformationLevel.SENSED else None
     dt = scenario.episode.dt
     max_accel = task.world.pursuer_limits[0, :, 1]  # (P,) m/s^2
+    drones = task.n_drones
+    team = drones > 1
+    drone_path = np.zeros(drones)  # m, per drone (teams only)
+    drone_energy = np.zeros(drones)
+    drone_closest = np.full(drones, math.inf)
+    separation = math.inf
+    conflicts = 0
     d0 = max(info["diameter"], 1e-9)
     frames: list[dict[str, Any]] = []
     peak_components = info["n_components"]
@@ -174,7 +228,7 @@ def play_episode(
                 step,  # control steps since reset
             )
         try:
-            action = _checked_action(controller.act(obs, view))
+            action = _checked_action(controller.act(obs, view), drones)
         except ControllerFault as fault:
             outcome, error = Outcome.ERROR, str(fault)
             break
@@ -195,6 +249,12 @@ def play_episode(
         max_diameter = max(max_diameter, info["diameter"])
         closest = min(closest, info["nearest_distance"])
         collisions += int(info["collision_steps"])
+        if team:
+            drone_energy += _drone_energies(action, max_accel, dt * info["held_steps"])
+            drone_path += np.hypot(*(state.pursuer_pos[0] - before).T)
+            drone_closest = np.minimum(drone_closest, info["drone_nearest"])
+            separation = min(separation, info["drone_separation"])
+            conflicts += int(info["conflict_steps"])
         breached = info["breached_birds"]
         clearance = min(clearance, _zone_clearance(task))
         if record_frames:
@@ -226,8 +286,26 @@ def play_episode(
         energy=energy,
         episode_return=float(total),
         error=error,
+        **(
+            _team_fields(drone_path, drone_energy, drone_closest, separation, conflicts)
+            if team
+            else {}
+        ),
     )
     return record, frames
+
+
+def _team_fields(
+    path: np.ndarray, energy: np.ndarray, closest: np.ndarray, separation: float, conflicts: int
+) -> dict[str, Any]:
+    """The team fields of an EpisodeRecord (see TEAM_FIELDS)."""
+    return {
+        "drone_path_length": [float(v) for v in path],
+        "drone_energy": [float(v) for v in energy],
+        "drone_closest_approach": [float(v) for v in closest],
+        "min_drone_separation": float(separation),
+        "conflict_steps": conflicts,
+    }
 
 
 def _frame(state: WorldState, step: int, info: dict[str, Any]) -> dict[str, Any]:

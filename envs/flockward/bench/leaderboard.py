@@ -9,6 +9,8 @@ Every episode gets one score in [0, 1], a weighted sum of five terms, each in [0
           + 0.35 * success * (1 - t / (2 T))   the flock reached the goal, sooner is better
           + 0.10 * clearance                    min(1, max(0, d_min / 100 m))
           + 0.10 * contact_free                 no step with the drone within its safety radius
+                                                of a bird (in a team: nor two drones closer than
+                                                the sum of their safety radii)
           + 0.05 * cohesion                     lowest share of the flock in its largest group
 
 ``t`` is the time to success, ``t_breach`` the time the episode ended in a breach and ``T`` the

@@ -134,6 +134,22 @@ def _score_fields_problem(ep: dict[str, Any]) -> str | None:
     return None
 
 
+def _team_fields_problem(ep: dict[str, Any]) -> str | None:
+    """Why a team's fields (present only in records of P > 1 drones) are bad, or None. Records
+    without them, every one-drone record and every file written before teams, are fine."""
+    if "conflict_steps" in ep and not (
+        _is_int(ep["conflict_steps"]) and 0 <= ep["conflict_steps"] <= ep["collision_steps"]
+    ):
+        return "has 'conflict_steps' that is not an integer in [0, collision_steps]"
+    for key in ("drone_path_length", "drone_energy", "drone_closest_approach"):
+        value = ep.get(key)
+        if value is not None and not (
+            isinstance(value, list) and value and all(_is_num(v) or v is None for v in value)
+        ):
+            return f"has {key!r} that is not a list of numbers (or null), one per drone"
+    return None
+
+
 def episode_problem(ep: Any) -> str | None:
     """Why an episode record cannot be scored, or None when it can."""
     if not isinstance(ep, dict):
@@ -154,7 +170,7 @@ def episode_problem(ep: Any) -> str | None:
         return "has 'breached_birds' that is not an integer in [0, birds]"
     if not (_is_int(ep.get("collision_steps")) and ep["collision_steps"] >= 0):
         return "has 'collision_steps' that is not a non-negative integer"
-    problem = _score_fields_problem(ep)
+    problem = _score_fields_problem(ep) or _team_fields_problem(ep)
     if problem:
         return problem
     mlf = ep.get("min_largest_fraction")

@@ -70,6 +70,7 @@ KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
     # challenges added (far-goal-behind, two-flocks-trailing).
     ("standard", 4): "f618b0aa220d6ec5a895adaf1d348ac0f06b64da34b243f9a02d8361cfded877",
     ("stress", 4): "29571647fd5c766449df0c12f780811b3e982a3c38fc9aef09b7af311a3bed8c",
+    ("field", 1): "e176c46081f6224413dea6bbc4bf1c686be1560ff228a0549ad1938faa20e474",
 }
 
 _MAX_SEED = 2**31 - 1

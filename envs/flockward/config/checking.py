@@ -26,6 +26,7 @@ __all__ = ["MAX_ERRORS", "array_table_line", "file_errors", "key_line"]
 
 MAX_ERRORS = 50  # a file with more problems than this is reported up to here
 _HEADER = re.compile(r"^\s*\[\s*([A-Za-z0-9_.-]+)\s*\]\s*(#.*)?$")
+_DRONE_HEADER = re.compile(r"^\s*\[\[\s*drones\s*\]\]\s*(#.*)?$")  # one drone of a team
 
 _LOADERS: dict[str, Callable[[dict[str, object], Path], object]] = {
     "scenario": scenario_from,
@@ -45,6 +46,13 @@ def _table_and_key(data: Mapping[str, object], dotted: str) -> tuple[str | None,
 
 def _drop(data: dict[str, object], dotted: str) -> bool:
     """Remove the file's entry that ``dotted`` points into; False if the file has none."""
+    parts = dotted.split(".")
+    drones = data.get("drones")
+    if len(parts) == 3 and parts[0] == "drones" and parts[1].isdigit() and isinstance(drones, list):
+        own = drones[int(parts[1])] if int(parts[1]) < len(drones) else None
+        if isinstance(own, dict) and parts[2] in own:
+            del own[parts[2]]  # the drone's bad key only: its other keys are checked on
+            return True
     table, key = _table_and_key(data, dotted)
     holder = data.get(table) if table else data
     if not isinstance(holder, dict) or key not in holder:
@@ -93,6 +101,31 @@ def _error_line(text: str, data: Mapping[str, object], dotted: str) -> int | Non
     return line
 
 
+def drone_key_line(text: str, index: int, key: str) -> int | None:
+    """The 1-based line where ``key`` is set in the ``index``-th ``[[drones]]`` table of a TOML
+    text, or None if no line sets it that plainly."""
+    setting = re.compile(rf"^\s*[\"']?{re.escape(key)}[\"']?\s*=")
+    seen = -1  # how many [[drones]] headers so far, minus one
+    inside = False  # reading a [[drones]] table
+    for number, line in enumerate(text.splitlines(), start=1):
+        if _DRONE_HEADER.match(line):
+            seen += 1
+            inside = True
+        elif line.lstrip().startswith("["):
+            inside = False
+        elif inside and seen == index and setting.match(line):
+            return number
+    return None
+
+
+def _line_of(text: str, data: Mapping[str, object], dotted: str) -> int | None:
+    """The line an error's dotted key points at: a drone's key, or as `_error_line` finds it."""
+    parts = dotted.split(".")
+    if len(parts) == 3 and parts[0] == "drones" and parts[1].isdigit():
+        return drone_key_line(text, int(parts[1]), parts[2])
+    return _error_line(text, data, dotted)
+
+
 def _with_line(error: ConfigError, shown: str, line: int | None) -> str:
     """The error's message with ``:LINE`` after the file name when the line is known."""
     message = str(error)
@@ -122,7 +155,7 @@ def file_errors(path: Path, kind: str) -> list[str]:
         except ConfigError as error:
             line = None
             if error.file == shown and error.key:
-                line = _error_line(text, data, error.key)
+                line = _line_of(text, data, error.key)
             errors.append(_with_line(error, shown, line))
             if error.file != shown or not error.key or not _drop(data, error.key):
                 return errors

@@ -33,8 +33,11 @@ def describe(scenario: Scenario) -> str:
             if site.second_start is not None
             else []
         ),
-        f"  pursuer:   start {point_text(scenario.pursuer.start)} m, "
-        f"max {n(scenario.pursuer.max_speed)} m/s, {n(scenario.pursuer.max_accel)} m/s^2",
+        *(
+            f"  {'pursuer:  ' if not scenario.drones else f'drone {k}:  '} "
+            f"start {point_text(d.start)} m, max {n(d.max_speed)} m/s, {n(d.max_accel)} m/s^2"
+            for k, d in enumerate(scenario.fleet)
+        ),
         f"  episode:   dt {n(ep.dt)} s x {ep.max_steps} steps = {n(ep.dt * ep.max_steps)} s",
         f"  decisions: every {ep.decision_steps} steps = {round(ep.decision_period, 6):g} s",
     ]

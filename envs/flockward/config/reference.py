@@ -17,6 +17,7 @@ from typing import Any
 from flockward.config.schema import FILE_SECTIONS, SECTION_FILE_KEY
 from flockward.sim.limits import RECORD_SECTIONS, value_text
 from flockward.sim.spec import spec_of
+from flockward.sim.types import MAX_DRONES
 
 __all__ = ["field_notes", "reference_rows", "reference_table"]
 
@@ -80,6 +81,16 @@ def reference_rows() -> list[tuple[str, str, str, str]]:
                 f"load the [{section}] values from that file; keys beside it override them",
             )
         )
+    rows.append(
+        (
+            "[[drones]]",
+            f"1 to {MAX_DRONES} tables of pursuer keys (start, max_speed, max_accel, "
+            "safety_radius)",
+            "none: one drone, [pursuer]",
+            "one table per drone, in index order; each drone takes the [pursuer] values (its "
+            "file and keys), then its own",
+        )
+    )
     return rows
 
 

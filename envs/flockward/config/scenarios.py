@@ -42,6 +42,7 @@ from flockward.config.schema import (
 from flockward.sim.limits import ParameterError
 from flockward.sim.resets import ResetSample, sample_reset
 from flockward.sim.types import (
+    MAX_DRONES,
     EpisodeParams,
     FlockParams,
     PursuerParams,
@@ -90,9 +91,9 @@ def config_kind(path: str | Path) -> str:
     """What a config file is: 'scenario', 'flock', 'pursuer' (a drone preset) or 'sensor'.
 
     A file in a directory named scenarios/, flocks/, pursuers/ or sensors/ is what its directory
-    says. Elsewhere its keys decide: any table (such as [site]) makes a scenario; only drone keys
-    make a drone preset, only sensor keys a sensor preset; anything else is read as a flock. An
-    empty file is an error, not a default.
+    says. Elsewhere its keys decide: any table (such as [site]) or a drone list makes a scenario;
+    only drone keys make a drone preset, only sensor keys a sensor preset; anything else is read
+    as a flock. An empty file is an error, not a default.
     """
     file = Path(path)
     data = read_toml(file)
@@ -104,7 +105,7 @@ def config_kind(path: str | Path) -> str:
     by_location = KIND_OF_DIRECTORY.get(file.resolve().parent.name)
     if by_location:
         return by_location
-    if any(isinstance(v, dict) for v in data.values()):
+    if any(isinstance(v, dict) for v in data.values()) or DRONES_KEY in data:
         return "scenario"
     if set(data) <= set(SCHEMA["pursuer"]):
         return "pursuer"
@@ -256,6 +257,37 @@ def _named_file_entries(section: str, value: object, origin: Origin, base: Path)
     return _section_file(section, path)
 
 
+# [[drones]]: a list of tables, one per drone, each of [pursuer] keys overriding [pursuer]'s values.
+DRONES_KEY = "drones"
+
+
+def _drone_entries(value: object, origin: Origin) -> list[_Entries]:
+    """Raw entries of each drone of a ``[[drones]]`` list (checked against [pursuer]'s keys)."""
+    if not (isinstance(value, list) and 1 <= len(value) <= MAX_DRONES):
+        raise origin.error(
+            value,
+            f"must be 1 to {MAX_DRONES} [[drones]] tables of [pursuer] keys "
+            f"({', '.join(SCHEMA['pursuer'])})",
+        )
+    drones = []
+    for i, table in enumerate(value):
+        sub = origin.child(str(i))
+        if not isinstance(table, dict):
+            raise sub.error(table, "must be a table of [pursuer] keys, e.g. { start = [0, 0] }")
+        drones.append(_collect(table, "pursuer", sub))
+    return drones
+
+
+def _drone_records(
+    drones: list[_Entries], shared: _Entries, top: Origin
+) -> tuple[PursuerParams, ...]:
+    """Each drone's record: [pursuer]'s values (file, keys, overrides), then the drone's own."""
+    return tuple(
+        _section_record(PursuerParams, "pursuer", {**shared, **own}, top.child("pursuer"))
+        for own in drones
+    )
+
+
 def _scenario_entries(
     data: Mapping[str, object], top: Origin
 ) -> tuple[dict[str, _Entries], dict[str, _FileRef]]:
@@ -263,6 +295,8 @@ def _scenario_entries(
     raw: dict[str, _Entries] = {s: {} for s in SCHEMA}
     files: dict[str, _FileRef] = {}
     for key, value in data.items():
+        if key == DRONES_KEY:
+            continue  # read by _drone_entries
         if key in SCHEMA[""]:
             raw[""][key] = (value, top.child(key))
         elif key in SECTIONS:
@@ -275,7 +309,7 @@ def _scenario_entries(
                 files[key] = (named, origin.child(SECTION_FILE_KEY))
             raw[key] = _collect(table, key, origin)
         else:
-            raise top.unknown(key, [*SCHEMA[""], *SECTIONS])
+            raise top.unknown(key, [*SCHEMA[""], *SECTIONS, DRONES_KEY])
     return raw, files
 
 
@@ -305,6 +339,7 @@ def scenario_from(
     top = Origin(file_label, "")
 
     raw, files = _scenario_entries(data, top)
+    drones = _drone_entries(data[DRONES_KEY], top.child(DRONES_KEY)) if DRONES_KEY in data else []
 
     override_entries, override_files = _override_entries(overrides or {}, file_label)
     files.update(override_files)
@@ -346,6 +381,7 @@ def scenario_from(
             "reward": _record(RewardWeights, values["reward"], within("reward")),
             "wind": _record(WindParams, values["wind"], within("wind")),
             "sensor": _record(SensorParams, values["sensor"], within("sensor")),
+            "drones": _drone_records(drones, raw["pursuer"], top),
             "source_file": str(file),
         },
         where,

@@ -59,6 +59,10 @@ def config_reference() -> str:
             f"path relative to the scenario file; the other [{section}] keys override its "
             "values (optional) |"
         )
+    lines.append(
+        "| `[[drones]]` | one table of pursuer keys per drone, each over the [pursuer] values "
+        "(optional; none: one drone) |"
+    )
     return "\n".join(lines)
 
 

@@ -61,7 +61,10 @@ state written between steps is honoured exactly.
 
 Drones: the commanded acceleration held over the control step, integrated exactly (velocity
 Verlet) and kept within the autopilot's airspeed limit. A bird fears only the nearest drone (the
-lowest index on a tie); a world with no drone has no fear at all.
+lowest index on a tie); a world with no drone has no fear at all. Nearest, not a sum over drones:
+a bird flees the most immediate threat, while summed fears would let two drones on opposite sides
+of a bird cancel and leave it unafraid between them; and with one drone the rule is the
+one-drone model exactly, bit for bit (tests/test_multi_drone.py checks the property).
 
 Wind (``step_worlds``' ``wind``, one vector per world per substep, the same over the site;
 made by ``flockward.sim.wind``): velocities are through the air, positions over the ground.

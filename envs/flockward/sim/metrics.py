@@ -479,6 +479,53 @@ def nearest_distance(pos: np.ndarray, count: np.ndarray, points: np.ndarray) -> 
     return _nearest_kernel(pos, count, _check_point_sets(points, pos.shape[0]))
 
 
+@compiled
+def _per_drone_kernel(pos: np.ndarray, count: np.ndarray, points: np.ndarray) -> np.ndarray:
+    out = np.empty((pos.shape[0], points.shape[1]))
+    for b in range(pos.shape[0]):
+        for q in range(points.shape[1]):
+            out[b, q] = _nearest_world(pos[b], count[b], points[b, q, 0], points[b, q, 1])
+    return out
+
+
+def nearest_per_drone(pos: np.ndarray, count: np.ndarray, drones: np.ndarray) -> np.ndarray:
+    """Each drone's distance to its nearest active bird, (B, P) m (inf if a world has no birds).
+
+    ``drones`` is (B, P, 2); the minimum over P is ``nearest_distance``.
+    """
+    pos, count = _check_batch(pos, count)
+    points = np.ascontiguousarray(drones, dtype=np.float64)
+    if points.ndim != 3 or points.shape[0] != pos.shape[0] or points.shape[2] != 2:
+        raise ValueError(f"expected (worlds, drones, 2) drone positions, got {points.shape}")
+    out: np.ndarray = _per_drone_kernel(pos, count, points)
+    return out
+
+
+def drone_gaps(drones: np.ndarray) -> np.ndarray:
+    """Distances between every two drones of each world, (B, P, P) m, inf on the diagonal."""
+    drones = np.asarray(drones, dtype=np.float64)
+    delta = drones[:, :, None, :] - drones[:, None, :, :]
+    gaps: np.ndarray = np.hypot(delta[..., 0], delta[..., 1])
+    p = drones.shape[1]
+    gaps[:, np.arange(p), np.arange(p)] = np.inf
+    return gaps
+
+
+def drone_conflicts(drones: np.ndarray, radii: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Drone-drone conflicts: ``(conflicted (B, P) bool, separation (B,) m)``.
+
+    Two drones conflict when they are closer than the sum of their safety radii ``radii`` (P,)
+    m (the same margin a drone keeps from a bird, on both sides); ``separation`` is each world's
+    least distance between two drones (inf with fewer than two).
+    """
+    gaps = drone_gaps(drones)
+    radii = np.asarray(radii, dtype=np.float64)
+    limit = radii[:, None] + radii[None, :]
+    conflicted: np.ndarray = (gaps < limit).any(axis=2)
+    separation = gaps.min(axis=(1, 2)) if gaps.shape[1] else np.full(gaps.shape[0], np.inf)
+    return conflicted, separation
+
+
 def inside_zone(zone_arr: np.ndarray, pos: np.ndarray, count: np.ndarray) -> np.ndarray:
     """Which active birds are strictly inside the zone, (B, N) bool (padding False)."""
     pos, count = _check_batch(pos, count)

@@ -26,7 +26,7 @@ class ResetSample:
     heading: float  # rad, counter-clockwise from +x (first group's)
     bird_pos: np.ndarray  # (n, 2) m
     bird_vel: np.ndarray  # (n, 2) m/s
-    pursuer_pos: np.ndarray  # (2,) m, where every drone starts
+    pursuer_pos: np.ndarray  # (2,) m, [pursuer] start (World starts each drone at its own)
     pursuer_vel: np.ndarray  # (2,) m/s, zeros (every drone starts at rest)
 
 

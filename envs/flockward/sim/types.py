@@ -41,6 +41,8 @@ TURBULENCE_W20_KT = {"none": 0.0, "light": 15.0, "moderate": 30.0, "severe": 45.
 TURBULENCE_LEVELS = tuple(TURBULENCE_W20_KT)
 # Most topological neighbours a bird can follow (the kernel keeps their distances sorted per bird).
 MAX_NEIGHBOURS = 16
+# Most drones a scenario may list in [[drones]] (each one adds a pass over the birds per substep).
+MAX_DRONES = 8
 # Largest heading noise: beyond about 3 rad/s^0.5 a flock's polarisation sits at its noise floor.
 MAX_HEADING_NOISE = 3.0
 
@@ -67,6 +69,16 @@ def _check_discount(scenario: Scenario) -> None:
             "(or be left out to derive it)"
         )
         raise ParameterError("Scenario", keys, values, lambda _key: rule)
+
+
+def _check_drones(scenario: Scenario) -> None:
+    """A drone list holds 1 to MAX_DRONES drone records."""
+    drones = scenario.drones
+    if len(drones) > MAX_DRONES or not all(isinstance(d, PursuerParams) for d in drones):
+        from flockward.sim.limits import ParameterError
+
+        rule = f"must list 1 to {MAX_DRONES} drone records (or none: one drone, the pursuer)"
+        raise ParameterError("Scenario", ("drones",), (len(drones),), lambda _key: rule)
 
 
 @dataclass(frozen=True)
@@ -503,12 +515,25 @@ class Scenario:
     randomise: Randomisation = field(default_factory=Randomisation)
     wind: WindParams = field(default_factory=WindParams)
     sensor: SensorParams = field(default_factory=SensorParams)
+    # Each drone's start and limits ([[drones]] in a file); empty: one drone, ``pursuer`` itself.
+    drones: tuple[PursuerParams, ...] = ()
     source_file: str | None = None  # where it was read from, for messages and provenance
 
     def __post_init__(self) -> None:
         _place_goal(self)
         _check(self)
         _check_discount(self)
+        _check_drones(self)
+
+    @property
+    def fleet(self) -> tuple[PursuerParams, ...]:
+        """Every drone's parameters, in index order: ``drones``, or ``(pursuer,)`` if empty."""
+        return self.drones if self.drones else (self.pursuer,)
+
+    @property
+    def drone_count(self) -> int:
+        """P, the drones the scenario flies (1 unless it lists [[drones]])."""
+        return len(self.fleet)
 
     @property
     def nominal_heading(self) -> float:

@@ -42,8 +42,10 @@ def default_threads() -> int:
 class World:
     """The batched simulation: reset any subset of worlds, step all of them in one call.
 
-    Every world flies ``drones`` drones (P), all with the scenario's pursuer limits and start.
-    Scenarios describe one drone, which is the default; the environments build one-drone worlds.
+    Every world flies ``drones`` drones (P), each with its own start and limits from the
+    scenario's ``fleet`` (its ``[[drones]]`` list, or one drone, ``[pursuer]``). None (the
+    default) flies the scenario's ``drone_count``. A scenario without a drone list may be flown
+    with any P, every drone a copy of ``[pursuer]``; one with a list only with its own P.
     With ``drones = 0`` the world has no drone and the birds know no fear (the unherded control).
     ``clamps`` counts, per world since its reset, how often the airspeed safety net acted.
     ``threads`` > 1 steps the worlds (or one large world's birds) on that many numba threads, at
@@ -56,13 +58,19 @@ class World:
         scenario: Scenario,
         worlds: int = 1,
         neighbour_search: str = "auto",
-        drones: int = 1,
+        drones: int | None = None,
         threads: int | None = None,
     ):
+        drones = scenario.drone_count if drones is None else drones
         if worlds < 1:
             raise ValueError(f"worlds = {worlds}: must be at least 1")
         if drones < 0:
             raise ValueError(f"drones = {drones}: must be at least 0")
+        if scenario.drones and drones not in (0, scenario.drone_count):
+            raise ValueError(
+                f"drones = {drones}: scenario {scenario.name!r} lists {scenario.drone_count} "
+                "drones; fly all of them (or 0 for the unherded control)"
+            )
         self.threads = default_threads() if threads is None else threads
         if self.threads < 1:
             raise ValueError(f"threads = {self.threads}: must be at least 1")
@@ -76,9 +84,15 @@ class World:
         self.params = np.tile(scenario.flock.kernel_vector(), (worlds, 1))
         self.flocks: list[FlockParams] = [scenario.flock] * worlds
         self.destination = np.tile(np.asarray(scenario.site.destination, float), (worlds, 1))
-        limits = [scenario.pursuer.max_speed, scenario.pursuer.max_accel]
+        fleet = scenario.fleet if scenario.drones else (scenario.pursuer,) * drones
+        fleet = fleet[:drones]
+        # (P, 2) m, where each drone starts (at rest)
+        self.drone_starts = np.array([d.start for d in fleet], float).reshape(drones, 2)
+        limits = np.array([[d.max_speed, d.max_accel] for d in fleet], float).reshape(drones, 2)
         # (B, P, 2) per drone: max speed m/s, max acceleration m/s^2
-        self.pursuer_limits = np.tile(np.asarray(limits, float), (worlds, drones, 1))
+        self.pursuer_limits = np.tile(limits, (worlds, 1, 1))
+        # (P,) m, each drone's safety radius (contact with a bird inside it)
+        self.safety_radii = np.array([d.safety_radius for d in fleet], float)
         self.rngs = [np.random.default_rng() for _ in range(worlds)]
         self.steps = np.zeros(worlds, dtype=np.int64)  # steps since each world's reset
         self.clamps = np.zeros(worlds, dtype=np.int64)  # airspeed safety-net activations
@@ -110,7 +124,7 @@ class World:
     def reset(self, index: int, rng: np.random.Generator | None = None) -> None:
         """Start world ``index`` afresh, from ``rng`` if given, else from its own generator.
 
-        Every drone starts at rest at the scenario's pursuer start.
+        Every drone starts at rest at its own start (``drone_starts``).
         """
         if rng is not None:
             self.rngs[index] = rng
@@ -121,8 +135,8 @@ class World:
         s.bird_vel[index] = 0.0
         s.bird_pos[index, :n] = sample.bird_pos
         s.bird_vel[index, :n] = sample.bird_vel
-        s.pursuer_pos[index, :] = sample.pursuer_pos
-        s.pursuer_vel[index, :] = sample.pursuer_vel
+        s.pursuer_pos[index] = self.drone_starts
+        s.pursuer_vel[index] = 0.0
         s.count[index] = n
         self.flocks[index] = sample.flock
         self.params[index] = sample.flock.kernel_vector()

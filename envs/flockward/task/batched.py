@@ -15,20 +15,28 @@ import numpy as np
 import numpy.typing as npt
 
 from flockward.sim.geometry import site_zone_arrays, zone_arrays, zone_center
-from flockward.sim.metrics import StepMetrics, step_metrics
+from flockward.sim.metrics import (
+    StepMetrics,
+    drone_conflicts,
+    nearest_per_drone,
+    step_metrics,
+)
 from flockward.sim.sensing import Sensor
 from flockward.sim.types import Scenario, WorldState
 from flockward.sim.world import World
 from flockward.task.context import Scales, SensedView, StepContext, TaskSetting
+from flockward.task.drones import drone_context, stack_observations, stacked_space, team_terms
 from flockward.task.env_config import EnvConfig
 from flockward.task.outcome import Outcome
 from flockward.task.reward import total
 from flockward.task.state import WorldView
 
 
-def action_space() -> gym.spaces.Box:
-    """The action space of one world: the drone's acceleration as a fraction of its limit."""
-    return gym.spaces.Box(-1.0, 1.0, (2,), np.float32)
+def action_space(drones: int = 1) -> gym.spaces.Box:
+    """The action space of one world: each drone's acceleration as a fraction of its limit,
+    (2,) for one drone (or none), (P, 2) for P > 1."""
+    shape = (2,) if drones <= 1 else (drones, 2)
+    return gym.spaces.Box(-1.0, 1.0, shape, np.float32)
 
 
 @dataclass
@@ -47,6 +55,13 @@ class DivertTask:
 
     ``config`` holds the environment's arguments (see EnvConfig); the task takes its own copies
     of the observation and reward objects.
+
+    With P > 1 drones (a scenario's ``[[drones]]``) the task keeps one observation and one reward
+    object per drone, each fed the context from its drone's point of view (``task.drones``):
+    observations come stacked (B, P, ...), the reward is the team's (each term's mean over the
+    drones) and ``info["agent_reward"]`` (B, P) holds each drone's own. A contact is a drone
+    inside its safety radius of a bird or two drones closer than the sum of their safety radii
+    (a conflict, also counted apart in ``conflict``).
     """
 
     def __init__(self, config: EnvConfig, worlds: int = 1):
@@ -58,6 +73,7 @@ class DivertTask:
         self.scenario = scenario
         self.n_worlds = worlds
         self.world = World(scenario, worlds, config.neighbour_search, drones=config.drones)
+        self.n_drones = self.world.n_drones
         # What observations see of the birds; None: the truth (the perfect sensor, the default).
         self.sensor = (
             None
@@ -74,9 +90,13 @@ class DivertTask:
             rim_birds=config.rim_birds,
             max_birds=scenario.max_birds if config.max_birds is None else config.max_birds,
         )
-        self.observation = config.make_observation()
-        self.reward = config.make_reward()
-        for part in (self.observation, self.reward):
+        # One observation and reward object per drone (one in all with one drone or none).
+        views = max(self.n_drones, 1)
+        self.observations = [config.make_observation() for _ in range(views)]
+        self.rewards = [config.make_reward() for _ in range(views)]
+        self.observation = self.observations[0]
+        self.reward = self.rewards[0]
+        for part in (*self.observations, *self.rewards):
             setup = getattr(part, "setup", None)
             if callable(setup):
                 setup(self.setting)
@@ -97,9 +117,30 @@ class DivertTask:
         """A read-only copy of world ``index``'s bird and drone state."""
         return WorldView.of(self.world.state, index)
 
+    @property
+    def multi(self) -> bool:
+        """Whether the worlds fly more than one drone (stacked observations, team reward)."""
+        return self.n_drones > 1
+
     def observation_space(self) -> gym.spaces.Space[Any]:
-        """The observation space of one world."""
-        return self.observation.space()
+        """The observation space of one world: one drone's, stacked (P, ...) for P > 1."""
+        space = self.observation.space()
+        return stacked_space(space, self.n_drones) if self.multi else space
+
+    def _observe(self, context: StepContext, views: list[StepContext]) -> Any:
+        """Every world's observation: the one drone's, or each drone's stacked (B, P, ...)."""
+        if not self.multi:
+            return self.observation.build(context)
+        return stack_observations(
+            [o.build(v) for o, v in zip(self.observations, views, strict=True)]
+        )
+
+    def _views(self, context: StepContext, collided: np.ndarray | None) -> list[StepContext]:
+        """The context from each drone's point of view (only ``context`` itself with one)."""
+        if not self.multi:
+            return [context]
+        own = np.zeros((self.n_worlds, self.n_drones), bool) if collided is None else collided
+        return [drone_context(context, k, own[:, k]) for k in range(self.n_drones)]
 
     def measure(self, state: WorldState | None = None) -> StepMetrics:
         """Flock metrics of every world in ``state`` (default: the current true state), in one
@@ -142,11 +183,13 @@ class DivertTask:
             collided=none,
             sensed=self.sensed(),
         )
-        for part in (self.reward, self.observation):
-            hook = getattr(part, "reset", None)
-            if callable(hook):
-                hook(context, indices)
-        return self.observation.build(context)
+        views = self._views(context, None)
+        for parts in (self.rewards, self.observations):
+            for part, view in zip(parts, views, strict=True):
+                hook = getattr(part, "reset", None)
+                if callable(hook):
+                    hook(view, indices)
+        return self._observe(context, views)
 
     def sensed(self) -> SensedView | None:
         """The sensor's current picture of every world, with its flock metrics; None with the
@@ -200,6 +243,8 @@ class DivertTask:
         truncated = np.zeros(self.n_worlds, dtype=np.bool_)
         held = np.zeros(self.n_worlds, dtype=np.int64)
         collisions = np.zeros(self.n_worlds, dtype=np.int64)
+        conflicts = np.zeros(self.n_worlds, dtype=np.int64)
+        agent_reward = np.zeros((self.n_worlds, max(self.n_drones, 1)))
         context: StepContext | None = None
         for hold_step in range(self.decision_steps):
             # The first control step runs even with no live world (all restarting after an
@@ -213,8 +258,12 @@ class DivertTask:
                 terms[name] = terms.get(name, np.zeros(self.n_worlds)) + np.where(
                     active, value, 0.0
                 )
+            if "agent_reward" in step_info:  # summed over the hold, like the team's reward
+                agent = step_info.pop("agent_reward")
+                agent_reward = agent_reward + np.where(active[:, None], agent, 0.0)
+                conflicts += active & step_info["conflict"]
             for key, value in step_info.items():
-                info[key] = value if key not in info else np.where(active, value, info[key])
+                info[key] = value if key not in info else _where(active, value, info[key])
             terminated = np.where(active, context.terminated, terminated)
             truncated = np.where(active, context.truncated, truncated)
             held += active
@@ -223,6 +272,8 @@ class DivertTask:
         if context is None:  # decision_steps >= 1, so the loop ran
             raise RuntimeError("no control step was played")
         info = {"reward_terms": terms, **info, "collision_steps": collisions, "held_steps": held}
+        if self.multi:
+            info.update(agent_reward=agent_reward, conflict_steps=conflicts)
         success = info["outcome"] == Outcome.SUCCESS
         context = replace(
             context,
@@ -234,7 +285,7 @@ class DivertTask:
             collided=info["collision"],
             sensed=self.sensed(),
         )
-        observation = self.observation.build(context)
+        observation = self._observe(context, self._views(context, info.get("drone_contact")))
         return StepBatch(observation, reward, terminated, truncated, info)
 
     def _control_step(
@@ -258,7 +309,21 @@ class DivertTask:
         failure = (breached > ep.max_breaching_birds) & ~success
         terminated = success | failure
         truncated = (self.world.steps >= self.max_steps) & ~terminated
-        collided = m.nearest_distance < self.scenario.pursuer.safety_radius
+        extra: dict[str, np.ndarray] = {}
+        if self.multi:
+            s = self.world.state
+            nearest = nearest_per_drone(s.bird_pos, s.count, s.pursuer_pos)  # (B, P) m
+            conflicted, separation = drone_conflicts(s.pursuer_pos, self.world.safety_radii)
+            own = (nearest < self.world.safety_radii) | conflicted  # (B, P) each drone's contact
+            collided = own.any(axis=1)
+            extra = {
+                "conflict": np.asarray(conflicted.any(axis=1)),
+                "drone_separation": separation,
+                "drone_nearest": nearest,
+                "drone_contact": own,
+            }
+        else:
+            collided = m.nearest_distance < self.scenario.pursuer.safety_radius
         context = StepContext(
             setting=self.setting,
             state=self.world.state,
@@ -273,7 +338,17 @@ class DivertTask:
             collided=collided,
             hold_step=hold_step,
         )
-        terms = self.reward.terms(context)
+        if self.multi:
+            per_drone = [
+                r.terms(v)
+                for r, v in zip(
+                    self.rewards, self._views(context, extra["drone_contact"]), strict=True
+                )
+            ]
+            terms = team_terms(per_drone)
+            extra["agent_reward"] = np.stack([total(t, self.n_worlds) for t in per_drone], axis=1)
+        else:
+            terms = self.reward.terms(context)
         outcome = np.where(
             success,
             Outcome.SUCCESS,
@@ -294,8 +369,15 @@ class DivertTask:
             "goal_distance": m.goal_distance,
             "collision": collided,
             "steps": self.world.steps.copy(),
+            **extra,
         }
         return context, terms, info
+
+
+def _where(active: np.ndarray, new: np.ndarray, old: np.ndarray) -> np.ndarray:
+    """``new`` in the active worlds, ``old`` elsewhere; per-drone (B, P) arrays too."""
+    mask = active.reshape(active.shape + (1,) * (np.ndim(new) - 1))
+    return np.where(mask, new, old)
 
 
 def with_decision_steps(scenario: Scenario, steps: int) -> Scenario:
@@ -308,31 +390,38 @@ def with_decision_steps(scenario: Scenario, steps: int) -> Scenario:
         raise ValueError(f"decision_steps = {steps}: {error}") from None
 
 
-def check_actions(action: npt.ArrayLike, worlds: int) -> np.ndarray:
-    """Actions as a (worlds, 1, 2) float64 array (one drone per world); NaN, inf or a wrong shape
-    raise ValueError.
+def check_actions(action: npt.ArrayLike, worlds: int, drones: int = 1) -> np.ndarray:
+    """Actions as a (worlds, P, 2) float64 array (P = 1 for one drone or none); NaN, inf or a
+    wrong shape raise ValueError.
 
-    Finite values outside [-1, 1] are accepted: the kernel clips each component to [-1, 1] and
-    then caps the command's norm at 1.
+    One world takes (2,) with one drone and (P, 2) with P > 1; a vector env takes (worlds, 2)
+    or (worlds, P, 2). Finite values outside [-1, 1] are accepted: the kernel clips each
+    component to [-1, 1] and then caps the command's norm at 1.
     """
     a = np.asarray(action, dtype=np.float64)
-    if a.size != worlds * 2:
+    p = max(drones, 1)
+    if a.size != worlds * p * 2:
+        one = (2,) if p == 1 else (p, 2)
         raise ValueError(
-            f"action has shape {np.shape(action)}; expected {(2,) if worlds == 1 else (worlds, 2)}"
-            " (normalised pursuer acceleration, x and y)"
+            f"action has shape {np.shape(action)}; "
+            f"expected {one if worlds == 1 else (worlds, *one)}"
+            " (normalised pursuer acceleration, x and y" + (", per drone)" if p > 1 else ")")
         )
-    a = a.reshape(worlds, 1, 2)
+    a = a.reshape(worlds, p, 2)
     if not np.all(np.isfinite(a)):
         raise ValueError(f"action contains NaN or inf: {np.asarray(action).tolist()}")
     return a
 
 
 def scalar_info(info: dict[str, Any], index: int) -> dict[str, Any]:
-    """World ``index``'s entries of a batched info dict, as Python scalars."""
+    """World ``index``'s entries of a batched info dict, as Python scalars (per-drone entries
+    as (P,) arrays)."""
     out: dict[str, Any] = {}
     for key, value in info.items():
         if isinstance(value, dict):
             out[key] = scalar_info(value, index)
+        elif np.ndim(value) > 1:
+            out[key] = np.array(value[index])
         else:
             out[key] = value[index].item()
     return out

@@ -20,7 +20,7 @@ TRACK_LENGTH = 200  # steps of pursuer track kept for rendering
 
 
 class DivertEnv(gym.Env):
-    """Divert a bird flock away from protected airspace with a single drone.
+    """Divert a bird flock away from protected airspace with a drone (or a team of drones).
 
     ## Description
     A flock of double-integrator birds (separation, Cucker-Smale alignment, cohesion, attraction to
@@ -34,6 +34,14 @@ class DivertEnv(gym.Env):
     inf raises ValueError. Each action is held for ``decision_steps`` control steps of ``dt``
     (default 4 x 0.1 s: a decision every 0.4 s, ``scenario.episode.decision_period``); one
     ``step`` is one decision.
+
+    A scenario that lists P > 1 drones (``[[drones]]``) is flown by one policy for the team:
+    the action is ``Box(-1, 1, (P, 2))``, row k drone k's command; the observation stacks every
+    drone's own observation (built with that drone as drone 0) as ``(P, ...)``; the reward is the
+    team's, each term's mean over the drones (``info["agent_reward"]``: each drone's own);
+    ``info`` adds ``conflict``, ``conflict_steps``, ``drone_separation`` and per-drone
+    ``drone_nearest`` and ``drone_contact``. A contact (``collision``) is then also two drones
+    closer than the sum of their safety radii. One agent per drone: ``flockward.task.multi_env``.
 
     ## Observation space
     ``observation="vector"`` (default): a float32 vector of 14 + 3k entries, k = ``rim_birds``,
@@ -99,8 +107,9 @@ class DivertEnv(gym.Env):
     ``neighbour_search`` ("auto", "all-pairs", "grid"), ``max_episode_steps``, ``decision_steps``
     (control steps each action is held; None: the scenario's ``episode.decision_steps``),
     ``render_mode``,
-    ``drones`` (1, or 0 for the unherded control: no pursuer in the world, actions ignored,
-    observations taken from a still point at the flock centroid).
+    ``drones`` (None: the scenario's, one unless it lists ``[[drones]]``; 0 for the unherded
+    control: no pursuer in the world, actions ignored, observations taken from a still point at
+    the flock centroid).
 
     ## Version history
     v0: first release. Later changes that leave every observation value, reward and episode as
@@ -119,7 +128,8 @@ class DivertEnv(gym.Env):
     from the agent's ``reward.gamma`` and the interval. Fright's forward thrust is
     power-limited (no bird is driven past its burst speed), the starlings' separation radius
     gives wild flocks' spacing, and the pair loop sums in a vectorised order. Observation
-    layout unchanged; every number differs from v1.
+    layout unchanged; every number differs from v1. Later, leaving every one-drone episode as it
+    was: teams of drones (scenarios listing ``[[drones]]``).
 
     >>> import gymnasium as gym, flockward
     >>> env = gym.make("flockward/Divert-v2", scenario="headon")
@@ -135,7 +145,7 @@ class DivertEnv(gym.Env):
         self.task = DivertTask(self.config, 1)
         self.scenario = self.task.scenario
         self.render_mode = self.config.render_mode
-        self.action_space = action_space()
+        self.action_space = action_space(self.task.n_drones)
         self.observation_space = self.task.observation_space()
         self._track: deque[np.ndarray] = deque(maxlen=TRACK_LENGTH)
         self._last_info: dict[str, Any] = {}
@@ -158,8 +168,9 @@ class DivertEnv(gym.Env):
         return self._one(obs), dict(self._last_info)
 
     def step(self, action: npt.ArrayLike) -> tuple[Any, float, bool, bool, dict[str, Any]]:
-        """Advance one step under ``action`` (2,): observation, reward, ended, cut off, info."""
-        batch = self.task.step(check_actions(action, 1))
+        """Advance one step under ``action`` ((2,), or (P, 2) with P > 1 drones): observation,
+        reward, ended, cut off, info."""
+        batch = self.task.step(check_actions(action, 1, self.task.n_drones))
         self._track.append(self.task.state.pursuer_pos[0].copy())
         info = scalar_info(batch.info, 0)
         self._last_info = info

@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Any, TypeAlias, TypeVar, cast
 
 from flockward.config.scenarios import load_scenario
-from flockward.sim.types import Scenario
+from flockward.sim.types import MAX_DRONES, Scenario
 from flockward.task.observation import OBSERVATION_MODES, Observation
 from flockward.task.reward import HerdingReward, Reward
 
@@ -25,7 +25,7 @@ REWARDS: dict[str, type[Reward]] = {"herding": HerdingReward}  # shipped rewards
 RIM_BIRDS_RANGE = (1, 64)
 PartT = TypeVar("PartT", Observation, Reward)
 DECISION_STEPS_RANGE = (1, 1000)  # as the scenario key episode.decision_steps
-DRONE_COUNTS = (0, 1)  # 0: the unherded control, no pursuer in the world
+DRONE_COUNTS = (0, MAX_DRONES)  # 0: the unherded control, no pursuer in the world
 
 
 def resolve_scenario(
@@ -125,9 +125,10 @@ class EnvConfig:
     # scenario's episode.decision_steps)
     decision_steps: int | None = None
     render_mode: str | None = None  # None, "human" or "rgb_array" (single env only)
-    # drones per world: 1, or 0 for the unherded control (actions accepted and ignored; see
-    # StepContext.drone_pos for what observations use in place of the drone)
-    drones: int = 1
+    # drones per world: None flies the scenario's (1 unless it lists [[drones]]); 0 is the
+    # unherded control (actions accepted and ignored; see StepContext.drone_pos for what
+    # observations use in place of the drone); P copies of [pursuer] if the scenario lists none
+    drones: int | None = None
 
     def __post_init__(self) -> None:
         if not isinstance(self.scenario, str | Path | Scenario):
@@ -137,7 +138,8 @@ class EnvConfig:
         if self.overrides is not None and not isinstance(self.overrides, Mapping):
             raise ValueError(f"overrides = {self.overrides!r}: must be a dict of dotted keys")
         _positive_int("rim_birds", self.rim_birds, *RIM_BIRDS_RANGE)
-        _positive_int("drones", self.drones, *DRONE_COUNTS)
+        if self.drones is not None:
+            _positive_int("drones", self.drones, *DRONE_COUNTS)
         if self.max_birds is not None:
             _positive_int("max_birds", self.max_birds, 1)
         if self.max_episode_steps is not None:
@@ -193,7 +195,14 @@ class EnvConfig:
         return copy.deepcopy(_part(self.reward, "reward", REWARDS, ("terms",)))
 
     def check_scenario(self, scenario: Scenario) -> None:
-        """The arguments that depend on the scenario: max_birds must hold its largest flock."""
+        """The arguments that depend on the scenario: max_birds must hold its largest flock, a
+        scenario that lists its drones is flown with all of them or none."""
+        drones = self.drones
+        if scenario.drones and drones is not None and drones not in (0, scenario.drone_count):
+            raise ValueError(
+                f"drones = {drones}: scenario {scenario.name!r} lists {scenario.drone_count} "
+                "drones; fly all of them (None) or none (0)"
+            )
         if self.max_birds is not None and self.max_birds < scenario.max_birds:
             raise ValueError(
                 f"max_birds = {self.max_birds}: must be at least the scenario's largest flock "

@@ -54,7 +54,7 @@ class DivertVectorEnv(VectorEnv):
         self.task = DivertTask(self.config, self.num_envs)
         self.scenario = self.task.scenario
         self.render_mode = None
-        self.single_action_space = action_space()
+        self.single_action_space = action_space(self.task.n_drones)
         self.single_observation_space = self.task.observation_space()
         self.action_space = batch_space(self.single_action_space, self.num_envs)
         self.observation_space = batch_space(self.single_observation_space, self.num_envs)
@@ -87,8 +87,9 @@ class DivertVectorEnv(VectorEnv):
     def step(
         self, actions: npt.ArrayLike
     ) -> tuple[Any, np.ndarray, np.ndarray, np.ndarray, dict[str, Any]]:
-        """Step every world under ``actions`` (B, 2), resetting those that ended last step."""
-        actions = check_actions(actions, self.num_envs)
+        """Step every world under ``actions`` (B, 2), or (B, P, 2) with P > 1 drones, resetting
+        those that ended last step."""
+        actions = check_actions(actions, self.num_envs, self.task.n_drones)
         restarting = self._needs_reset.copy()
         if restarting.any():
             self.task.reset(np.flatnonzero(restarting))
