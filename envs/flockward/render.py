@@ -282,7 +282,7 @@ def inset_corner(
         rx0, ry0 = x0 + left * (x1 - x0), y0 + bottom * (y1 - y0)
         rx1, ry1 = rx0 + w * (x1 - x0), ry0 + h * (y1 - y0)
         score = 0.0
-        for zone in (site.protected, site.goal):
+        for zone in (*site.protected_zones, site.goal):
             zx0, zx1, zy0, zy1 = zone_extent(zone)
             overlap = max(0.0, min(zx1, rx1) - max(zx0, rx0)) * max(
                 0.0, min(zy1, ry1) - max(zy0, ry0)

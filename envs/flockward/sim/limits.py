@@ -363,7 +363,10 @@ def _check_scenario(scenario: Scenario) -> None:
     site = scenario.site
     if site.goal_bearing_deg is not None:
         for clash, other in (
-            (geometry.zones_overlap(site.goal, site.protected), "the protected zone"),
+            (
+                any(geometry.zones_overlap(site.goal, z) for z in site.protected_zones),
+                "the protected zone",
+            ),
             (geometry.zone_contains(site.goal, site.flock_start), "site.flock_start"),
         ):
             if clash:
