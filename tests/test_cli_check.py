@@ -179,3 +179,18 @@ def test_error_in_an_array_of_zone_tables_names_its_header_line(
         f"{bad}:6: key 'site.protected.2.polygon' = [[1, 1], [2, 2]]: must list 3 to 256 "
         "vertices [x, y]"
     ]
+
+
+def test_suites_are_checked_as_suites(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """A file under suites/ (or one listing [[entry]] tables) is loaded as `flockward run` loads
+    a suite, not read as a flock; a bad entry is one line naming the key and value."""
+    shipped = sorted((ROOT / "configs" / "suites").glob("*.toml"))
+    assert main(["check", *map(str, shipped)]) == 0
+    out = capsys.readouterr().out
+    assert out.count("ok  ") == len(shipped) and "suite 'standard'" in out
+    bad = tmp_path / "mine.toml"
+    bad.write_text('name = "mine"\nversion = 1\n[[entry]]\nscenario = "nowhere"\nseeds = [1, 2]\n')
+    assert main(["check", str(bad)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "'scenario'" in err[0] and "nowhere" in err[0]
+    assert main(["check", "--kind", "suite", str(bad)]) == 2

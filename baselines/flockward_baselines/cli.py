@@ -17,6 +17,7 @@ from typing import TYPE_CHECKING, Any
 
 from flockward.config.atomic import write_atomic
 from flockward.config.checking import file_errors
+from flockward.config.files import read_toml
 from flockward.config.scenarios import (
     CONFIG_KINDS,
     ConfigError,
@@ -93,9 +94,12 @@ def _cmd_check(args: argparse.Namespace) -> int:
     for name in args.files:
         path = Path(name)
         try:
-            kind = args.kind or config_kind(path)
-            errors = file_errors(path, kind)
-            line = "" if errors else _summary(path, kind)
+            kind = args.kind or _suite_or_config_kind(path)
+            if kind == "suite":
+                errors, line = [], _suite_summary(path)
+            else:
+                errors = file_errors(path, kind)
+                line = "" if errors else _summary(path, kind)
         except (ConfigError, OSError) as exc:
             errors = [str(exc) if isinstance(exc, ConfigError) else f"{name}: {exc}"]
         if errors:
@@ -105,6 +109,28 @@ def _cmd_check(args: argparse.Namespace) -> int:
         elif not args.quiet:
             print(f"ok  {name}  ({line})")
     return status
+
+
+def _suite_or_config_kind(path: Path) -> str:
+    """'suite' for a file under a suites/ directory or one listing [[entry]] tables, else what
+    ``config_kind`` says."""
+    if path.resolve().parent.name == "suites":
+        return "suite"
+    kind = config_kind(path)  # reads the file: a missing or empty one is its error
+    return "suite" if "entry" in read_toml(path) else kind
+
+
+def _suite_summary(path: Path) -> str:
+    """A suite validated as `flockward run` loads it (every entry's scenario and overrides), in
+    one line; a bad suite raises the loader's one-line ConfigError."""
+    from flockward.bench.suites import load_suite
+
+    suite = load_suite(path)
+    episodes = sum(entry.count for entry in suite.entries)
+    return (
+        f"suite {suite.name!r} version {suite.version}: {len(suite.entries)} families, "
+        f"{episodes} episodes"
+    )
 
 
 def _cmd_schema(args: argparse.Namespace) -> int:
@@ -640,21 +666,23 @@ def build_parser() -> argparse.ArgumentParser:
 
     check = sub.add_parser(
         "check",
-        help="validate scenario, flock, pursuer and sensor files",
-        description="Validate scenario, flock, drone-preset and sensor-preset TOML files and "
-        "report every "
+        help="validate scenario, flock, pursuer, sensor and suite files",
+        description="Validate scenario, flock, drone-preset, sensor-preset and suite TOML files "
+        "and report every "
         "error of each, one line each with its line number where the file shows it. A file is "
         "checked as --kind says, else as its directory says (scenarios/, flocks/, pursuers/, "
-        "sensors/), "
+        "sensors/, suites/), else as a suite if it lists [[entry]] tables, "
         "else as its keys suggest. An empty file is an error. Exit status 0 if all are valid, "
         "2 if any is not.",
         epilog=CAUTION,
     )
     check.add_argument(
-        "files", nargs="+", metavar="FILE", help="scenario, flock, drone or sensor TOML file"
+        "files", nargs="+", metavar="FILE", help="scenario, flock, drone, sensor or suite TOML file"
     )
     check.add_argument(
-        "--kind", choices=CONFIG_KINDS, help="check every FILE as this kind of config"
+        "--kind",
+        choices=(*CONFIG_KINDS, "suite"),
+        help="check every FILE as this kind of config",
     )
     check.add_argument("-q", "--quiet", action="store_true", help="print only the errors")
     check.set_defaults(handler=_cmd_check)

@@ -70,7 +70,9 @@ KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
     # challenges added (far-goal-behind, two-flocks-trailing).
     ("standard", 4): "f618b0aa220d6ec5a895adaf1d348ac0f06b64da34b243f9a02d8361cfded877",
     ("stress", 4): "29571647fd5c766449df0c12f780811b3e982a3c38fc9aef09b7af311a3bed8c",
-    ("field", 1): "e176c46081f6224413dea6bbc4bf1c686be1560ff228a0549ad1938faa20e474",
+    # Field 1: one drone against two on a large flock, gusty crosswind, radar and camera sensing,
+    # and two drones with wind and radar together.
+    ("field", 1): "2725d1294d1363518152a48ff8007d2d9bb5c59264576343a245a9825443e98a",
 }
 
 _MAX_SEED = 2**31 - 1
