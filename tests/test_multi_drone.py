@@ -374,3 +374,20 @@ def test_result_files_check_team_fields_and_accept_records_without_them():
         "has 'conflict_steps' that is not an integer in [0, collision_steps]"
     )
     assert "not a list of numbers" in episode_problem({**row, "drone_path_length": "far"})
+
+
+def test_a_one_drone_model_flies_drone_0_from_drone_0s_view():
+    # A committed one-drone policy on a team scenario: the stacked (P, 26) observation is cut to
+    # drone 0's row, which is exactly the observation the model was trained on (regression).
+    from flockward_baselines.policy import PolicyController
+
+    model = Path(__file__).resolve().parent.parent / "results/models/ppo-standard-s0.zip"
+    policy = PolicyController(str(model))
+    scenario = load_scenario("large-flock-two-drones")
+    policy.reset(scenario, seed=0)
+    env = DivertEnv(scenario=scenario)
+    observation, _ = env.reset(seed=0)
+    assert observation.shape == (2, 26)
+    np.testing.assert_array_equal(policy.act(observation, None), policy.act(observation[0], None))
+    with pytest.raises(ValueError, match="expects observations of shape"):
+        policy.act(observation[:, :20], None)

@@ -82,6 +82,11 @@ class PolicyController(Controller):
         if self._model is None:
             raise RuntimeError(f"{self.name}: call reset(scenario) before act(...)")
         expected = self._model.observation_space.shape
+        if expected is not None and tuple(np.shape(observation)[1:]) == tuple(expected):
+            # A team scenario stacks one observation per drone (P, ...): a one-drone policy
+            # flies drone 0 from drone 0's view, and the other drones hold still, as every
+            # one-drone controller's do.
+            observation = np.asarray(observation)[0]
         if expected is not None and tuple(np.shape(observation)) != tuple(expected):
             shape = np.shape(observation)
             raise ValueError(
