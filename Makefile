@@ -45,12 +45,15 @@ bench: $(STAMP)
 	$(BIN)/flockward bench
 
 # Regenerate every committed result with the shipped commands (tens of minutes on 2 cores): the
-# standard suite played by each scripted baseline, its leaderboard, the herding envelope sweeps,
+# standard suite played by each scripted baseline, its leaderboard, the field suite (teams, wind,
+# sensing) and its leaderboard, the herding envelope sweeps,
 # the bench figures and the verification report (last: it exits non-zero when a check fails).
 # Run it after any change to dynamics, reward, observation or a suite. The committed models
 # (results/models/*.zip) are played as they are: retrain them first when the change breaks them
 # (`flockward train --config configs/train/ppo-standard.toml --seed S`, then copy model.zip).
 BOARD_CONTROLLERS := boundary-arc collect-drive direct-pursuit idle no-drone
+# Team baselines, played on the field suite (two-drone families) beside the one-drone ones.
+TEAM_CONTROLLERS := sector-arc collect-drive-roles
 results: $(STAMP)
 	rm -f $(addprefix results/standard/,$(addsuffix .json,$(BOARD_CONTROLLERS)))
 	rm -f results/standard/model-*.json
@@ -61,6 +64,16 @@ results: $(STAMP)
 		$(BIN)/flockward run --suite standard --model $$m --workers 2 || exit 1; \
 	done
 	$(BIN)/flockward board --suite standard
+	rm -f results/field/*.json
+	for c in $(BOARD_CONTROLLERS) $(TEAM_CONTROLLERS); do \
+		$(BIN)/flockward run --suite field --controller $$c --workers 2 || exit 1; \
+	done
+	$(BIN)/flockward run --suite field --controller boundary-arc --param information=sensed \
+		--label boundary-arc-sensed --workers 2
+	for m in results/models/*.zip; do \
+		$(BIN)/flockward run --suite field --model $$m --workers 2 || exit 1; \
+	done
+	$(BIN)/flockward board --suite field
 	rm -f results/sweeps/envelope-push-count.json
 	$(BIN)/flockward sweep --scenario headon --controller boundary-arc \
 		--axis push_distance=10:70:7 --axis flock.count=10,30,50,100 --seeds 20 \
