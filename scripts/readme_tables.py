@@ -1,7 +1,7 @@
 """Copy the committed result tables into README.md, so its figures are never typed by hand.
 
 Each README table whose header line matches one in a committed result file (the standard
-leaderboard, the verification report) is replaced whole by that file's table. Run by
+leaderboard, the verification report, the headon training seeds) is replaced whole by that file's table. Run by
 `make results` after regenerating; tests/test_readme.py checks that the two agree.
 """
 
@@ -15,6 +15,7 @@ README = ROOT / "README.md"
 SOURCES = (
     ("results/standard/leaderboard.md", "| rank | controller"),
     ("results/verify/report.md", "| check | measured"),
+    ("results/models/ppo-headon-curve.md", "| run | success target"),
 )
 
 

@@ -59,6 +59,7 @@ def _table_rows(text: str, header: str) -> list[str]:
     [
         ("results/standard/leaderboard.md", "| rank | controller"),
         ("results/verify/report.md", "| check | measured"),
+        ("results/models/ppo-headon-curve.md", "| run | success target"),
     ],
 )
 def test_readme_tables_are_the_committed_ones(committed: str, header: str) -> None:
