@@ -1,8 +1,9 @@
 """Copy the committed result tables into README.md, so its figures are never typed by hand.
 
 Each README table whose header line matches one in a committed result file (the standard
-leaderboard, the verification report, the headon training seeds) is replaced whole by that file's table. Run by
-`make results` after regenerating; tests/test_readme.py checks that the two agree.
+leaderboard, the verification report, the headon training seeds) is replaced whole by that
+file's table. Run by `make results` and `make headon-curve` after regenerating;
+tests/test_readme.py checks that the two agree.
 """
 
 from __future__ import annotations
