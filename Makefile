@@ -6,7 +6,7 @@ BIN    := $(VENV)/bin
 TORCH  := torch==2.13.0
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test soak lint type format bench results clean
+.PHONY: demo test soak lint type format bench results headon-curve clean
 
 $(STAMP): pyproject.toml
 	@echo "== creating the virtual environment $(VENV) (a few minutes the first time)"
@@ -90,6 +90,18 @@ results: $(STAMP)
 	$(BIN)/python scripts/approach_angles.py
 	$(BIN)/flockward bench > results/bench.tmp && mv results/bench.tmp results/bench.txt
 	$(BIN)/flockward verify; status=$$?; $(BIN)/python scripts/readme_tables.py; exit $$status
+
+# PPO from scratch on headon, seeds 0, 1 and 2 one after another (about 10 minutes each on 2
+# cores; runs/ppo-headon-s* are replaced), then their mean learning curve and the table of when
+# each seed first reached 90 % success: results/models/ppo-headon-curve.{csv,png,md}.
+headon-curve: $(STAMP)
+	for s in 0 1 2; do \
+		rm -rf runs/ppo-headon-s$$s; \
+		$(BIN)/flockward train --config configs/train/ppo-headon.toml --seed $$s --quiet || exit 1; \
+	done
+	$(BIN)/flockward curves runs/ppo-headon-s0 runs/ppo-headon-s1 runs/ppo-headon-s2 \
+		--out results/models/ppo-headon-curve --title "PPO from scratch on headon"
+	$(BIN)/python scripts/readme_tables.py
 
 clean:
 	rm -rf $(VENV) build dist .pytest_cache .ruff_cache

@@ -2,9 +2,10 @@
 
 Each README table named in ``SOURCES`` is replaced whole by its committed file's table (the
 standard and field leaderboards, the verification report, the envelope's push bands and approach
-angles). A source may keep only the rows of some families (the first column), and a README table
-may be found after a marker comment instead of by its header, where one header is used twice.
-Run by `make results` after regenerating; tests/test_readme.py checks that the two agree.
+angles, the headon training seeds). A source may keep only the rows of some families (the first
+column), and a README table may be found after a marker comment instead of by its header, where
+one header is used twice. Run by `make results` and `make headon-curve` after regenerating;
+tests/test_readme.py checks that the two agree.
 """
 
 from __future__ import annotations
@@ -31,6 +32,7 @@ SOURCES = (
     Source("results/verify/report.md", "| check | measured"),
     Source("results/sweeps/envelope-bands.md", "| sweep | where"),
     Source("results/sweeps/approach-angles.md", "| goal bearing (deg)"),
+    Source("results/models/ppo-headon-curve.md", "| run | success target"),
     Source(
         "results/field/leaderboard.md",
         "| family | controller",

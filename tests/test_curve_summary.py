@@ -9,7 +9,13 @@ import pytest
 import scipy.stats
 
 from flockward_baselines.cli import main
-from flockward_baselines.curves import CurvePoint, summarise_seeds, write_curve
+from flockward_baselines.curves import (
+    CurvePoint,
+    first_reach,
+    reach_table,
+    summarise_seeds,
+    write_curve,
+)
 
 
 def _run(rates: dict[int, tuple[float, float]], scenarios=("a", "b")) -> list[CurvePoint]:
@@ -51,5 +57,19 @@ def test_curves_command(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> N
     assert "2 runs, 2 shared points" in capsys.readouterr().out
     assert (tmp_path / "out" / "mix.png").stat().st_size > 0
     assert (tmp_path / "out" / "mix.csv").read_text().startswith("timesteps,simulator_steps")
+    table = (tmp_path / "out" / "mix.md").read_text().splitlines()
+    assert [row.split(" | ")[0] for row in table[2:]] == ["| run0", "| run1"]
     assert main(["curves", str(tmp_path), "--out", str(tmp_path / "x")]) == 2
     assert "no curve.csv" in capsys.readouterr().err
+    assert main(["curves", *folders, "--out", str(tmp_path / "y"), "--target", "1.5"]) == 2
+
+
+def test_first_reach_is_the_first_point_at_the_target() -> None:
+    # Worked example: scenario-averaged success 0.0, 0.45, 0.95, 0.85 at decisions 0..30; the
+    # target 0.9 is first met at 20 (simulator steps 80); the later drop to 0.85 does not move it.
+    run = _run({0: (0.0, 0.0), 10: (0.45, 1.0), 20: (0.95, 1.0), 30: (0.85, 1.0)})
+    reached = first_reach(run, 0.9)
+    assert reached is not None and (reached.timesteps, reached.simulator_steps) == (20, 80)
+    assert first_reach(run, 0.96) is None
+    rows = reach_table({"r": run}, 0.96).splitlines()
+    assert rows[2] == "| r | 96% | not reached | - | - | 85% | 120 | 1 |"

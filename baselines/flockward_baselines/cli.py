@@ -597,7 +597,13 @@ def _cmd_train(args: argparse.Namespace) -> int:
 
 def _cmd_curves(args: argparse.Namespace) -> int:
     """Summarise the learning curves of several training runs: mean and 95 % interval."""
-    from flockward_baselines.curves import read_curve, summarise_seeds, write_seed_summary
+    from flockward.config.atomic import atomic_path
+    from flockward_baselines.curves import (
+        reach_table,
+        read_curve,
+        summarise_seeds,
+        write_seed_summary,
+    )
 
     runs = []
     for folder in args.runs:
@@ -606,6 +612,9 @@ def _cmd_curves(args: argparse.Namespace) -> int:
             print(f"{folder}: no curve.csv (a training run directory?)", file=sys.stderr)
             return EXIT_INVALID
         runs.append(points)
+    if not 0.0 < args.target <= 1.0:
+        print(f"--target {args.target}: must be a success rate in (0, 1]", file=sys.stderr)
+        return EXIT_INVALID
     rows = summarise_seeds(runs)
     if not rows:
         print("the runs share no curve point (different curve_every?)", file=sys.stderr)
@@ -614,12 +623,16 @@ def _cmd_curves(args: argparse.Namespace) -> int:
     out.parent.mkdir(parents=True, exist_ok=True)
     csv_path, png_path = out.with_suffix(".csv"), out.with_suffix(".png")
     write_seed_summary(csv_path, png_path, rows, args.title or out.stem)
+    md_path = out.with_suffix(".md")
+    names = [Path(folder).resolve().name for folder in args.runs]
+    with atomic_path(md_path) as tmp:
+        tmp.write_text(reach_table(dict(zip(names, runs, strict=True)), args.target))
     last = rows[-1]
     print(
         f"{len(runs)} runs, {len(rows)} shared points; at {last['simulator_steps']:,.0f} "
         f"simulator steps: success {last['success_mean']:.2f} [{last['success_low']:.2f}, "
         f"{last['success_high']:.2f}], breach-free {last['breach_free_mean']:.2f} -> "
-        f"{csv_path}, {png_path}"
+        f"{csv_path}, {png_path}, {md_path}"
     )
     return EXIT_OK
 
@@ -857,11 +870,15 @@ def build_parser() -> argparse.ArgumentParser:
         help="mean learning curve over training seeds, with a 95 %% interval",
         description="Read curve.csv of several training runs (one per seed), average each "
         "run's success and breach-free rates over its scenarios, and write their mean over the "
-        "runs with a Student-t 95 % interval against simulator steps as OUT.csv and OUT.png.",
+        "runs with a Student-t 95 % interval against simulator steps as OUT.csv and OUT.png; "
+        "OUT.md tables when each run first reached the --target success rate.",
     )
     curves.add_argument("runs", nargs="+", metavar="RUN_DIR", help="training run directory")
     curves.add_argument("--out", required=True, help="output path without suffix")
     curves.add_argument("--title", help="figure title (default: the file name)")
+    curves.add_argument(
+        "--target", type=float, default=0.9, help="success rate each run is timed to (OUT.md)"
+    )
     curves.set_defaults(handler=_cmd_curves)
 
     audit = sub.add_parser(

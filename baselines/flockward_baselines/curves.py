@@ -218,3 +218,42 @@ def write_seed_summary(csv_path: Path, png_path: Path, rows: Sequence[dict[str, 
     fig.tight_layout()
     with atomic_path(png_path) as tmp:
         fig.savefig(tmp, format="png")
+
+
+# ---------------------------------------------------------------------------------------------
+# Per run: when the success rate first reached a target.
+
+REACH_HEADER = (
+    "| run | success target | first reached at decisions | simulator steps | wall s "
+    "| final success | final simulator steps | final wall s |"
+)
+
+
+def first_reach(points: Sequence[CurvePoint], target: float) -> CurvePoint | None:
+    """The first curve point whose success rate, averaged over the run's scenarios, is at least
+    ``target`` (its rate the average, its wall seconds the latest), None if none is."""
+    for t, (sim_steps, success, kept) in run_rates(points).items():
+        if success >= target:
+            here = [p for p in points if p.timesteps == t]
+            return CurvePoint(t, sim_steps, max(p.wall_seconds for p in here), "all",
+                              sum(p.episodes for p in here), success, kept,
+                              float(np.median([p.median_steps for p in here])))  # fmt: skip
+    return None
+
+
+def reach_table(runs: dict[str, Sequence[CurvePoint]], target: float) -> str:
+    """A Markdown table: for each run, the first curve point at or above ``target`` success
+    (decisions, simulator steps, wall seconds since training started) and its final point."""
+    lines = [REACH_HEADER, "| --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: |"]
+    for name, points in runs.items():
+        reached = first_reach(points, target)
+        final_t, (final_sim, final_success, _) = list(run_rates(points).items())[-1]
+        final_wall = max(p.wall_seconds for p in points if p.timesteps == final_t)
+        first = (
+            f"{reached.timesteps:,} | {reached.simulator_steps:,} | {reached.wall_seconds:.0f}"
+            if reached is not None
+            else "not reached | - | -"
+        )
+        lines.append(f"| {name} | {target:.0%} | {first} | {final_success:.0%} | {final_sim:,} "
+                     f"| {final_wall:.0f} |")  # fmt: skip
+    return "\n".join(lines) + "\n"

@@ -10,7 +10,9 @@ simulator steps, see ``flockward_baselines.curves``), the final ``model.zip``, t
 held for ``decision_steps`` control steps, and the reward's shaping discount per control step is
 derived from the algorithm's gamma (``TrainConfig.env_overrides``). An optional ``[pretrain]``
 table first clones a scripted expert's actions (behaviour cloning) so that reinforcement learning
-starts from a policy that already reaches the flock. ``--resume`` continues from the newest
+starts from a policy that already reaches the flock; the clone's action deviation is set to its
+error on the demonstrations so that PPO's first updates keep it, and the critic may first be
+fitted alone to the clone's returns (``critic_warmup``). ``--resume`` continues from the newest
 checkpoint.
 """
 
@@ -36,9 +38,11 @@ from flockward.task.env_config import EnvConfig
 from flockward_baselines.curves import CurvePoint, curve_point, read_curve, write_curve
 
 if TYPE_CHECKING:  # Stable-Baselines3 is optional: imported where training needs it
+    import torch
     from stable_baselines3 import PPO, SAC
     from stable_baselines3.common.base_class import BaseAlgorithm
     from stable_baselines3.common.callbacks import BaseCallback
+    from stable_baselines3.common.policies import ActorCriticPolicy
     from stable_baselines3.common.vec_env import VecEnv
 
 ALGORITHMS = ("ppo", "sac")
@@ -90,7 +94,15 @@ PRETRAIN: dict[str, Spec] = {
     "epochs": _int(1, 10_000),  # passes over the demonstrations
     "learning_rate": _float(1e-7, 1.0),
     "batch_size": _int(8, 1_000_000),
+    # the policy's action standard deviation once cloned; left out, the clone's root-mean-square
+    # error on the demonstrations per action dimension (the maximum-likelihood value given the
+    # fitted mean), at least CLONE_STD_FLOOR
+    "clone_std": _float(0.01, 1.0),
+    # rollouts of the cloned policy whose returns fit the critic alone before PPO starts (the
+    # actor frozen), so that PPO's first advantages are not read off an untrained critic
+    "critic_warmup": _int(0, 10_000),
 }
+CLONE_STD_FLOOR = 0.05  # a clone that fits its expert exactly still explores a little
 DEMO_SEED = 100_000  # demonstration seeds start here, clear of every shipped suite's seeds
 
 
@@ -425,7 +437,16 @@ def _pretrain_settings(config: TrainConfig) -> dict[str, Any]:
 def behaviour_clone(
     model: BaseAlgorithm, observations: np.ndarray, actions: np.ndarray, config: TrainConfig
 ) -> float:
-    """Fit the policy to the demonstrations by maximum likelihood; return the final loss."""
+    """Fit the policy to the demonstrations by maximum likelihood; return the final loss.
+
+    The mean is fitted by gradient steps; the action standard deviation is then set in closed
+    form (``clone_std``, by default the clone's own error on the demonstrations). It matters
+    for what follows: PPO's clipped ratio bounds each update in units of that deviation, so a
+    clone left near Stable-Baselines3's initial deviation of 1 (a few gradient steps barely move
+    it) lets one PPO update shift its mean actions by 0.06-0.12 on average (actions span
+    [-1, 1]; collect-drive on trio, two seeds), while a deviation near the clone's error keeps
+    the shift near 0.02 (``tests/test_train.py`` holds the regression test).
+    """
     import torch
     from stable_baselines3.common.policies import ActorCriticPolicy
 
@@ -454,6 +475,70 @@ def behaviour_clone(
             optimiser.zero_grad()
             torch.autograd.backward(loss)  # loss.backward(), in its annotated spelling
             optimiser.step()
+    _set_clone_std(policy, x, y, settings.get("clone_std"))
+    return float(loss.item())
+
+
+def _set_clone_std(
+    policy: ActorCriticPolicy, x: torch.Tensor, y: torch.Tensor, std: float | None
+) -> None:
+    """Set a cloned Gaussian policy's log-std: ``std``, or its error on the demonstrations."""
+    import torch
+
+    if policy.use_sde or not isinstance(policy.log_std, torch.nn.Parameter):
+        return  # a state-dependent exploration matrix, not one deviation per action
+    with torch.no_grad():
+        if std is None:
+            mean = policy.get_distribution(x).mode().clamp(-1.0, 1.0)  # the Gaussian's mean
+            error = ((mean - y) ** 2).mean(dim=0).sqrt().clamp(CLONE_STD_FLOOR, 1.0)
+        else:
+            error = torch.full_like(policy.log_std, std)
+        policy.log_std.copy_(error.log())
+
+
+def warm_up_critic(model: BaseAlgorithm, rollouts: int) -> float:
+    """Fit the critic alone to the returns of the policy as it stands; return the last loss.
+
+    PPO weighs each action by an advantage read off its critic, which is untrained straight
+    after cloning. (Measured on trio, the warm-up changed neither how far one update moves the
+    clone nor the learning curve; the action deviation, see ``behaviour_clone``, is what keeps
+    the clone. The option stays for settings where the critic matters more.) Here
+    Stable-Baselines3's own rollout machinery plays the policy (stochastic, as PPO will) for
+    ``rollouts`` rollouts of ``n_steps`` per world, and after each one only the critic's
+    parameters are fitted (``n_epochs`` passes, ``batch_size`` minibatches, mean squared error)
+    to its lambda-returns, recomputed with the improving critic on every rollout. The actor and
+    its log-std are not touched. The decisions played count in ``model.num_timesteps``, so a
+    run's budget includes them.
+    """
+    import torch
+    from stable_baselines3 import PPO
+
+    if not isinstance(model, PPO):
+        raise ValueError(
+            "[pretrain] critic_warmup fits a PPO critic; "
+            f"{type(model).__name__} has no state-value critic"
+        )
+    if model.env is None:
+        raise ValueError("critic warm-up plays the model's environment; the model has none")
+    env = model.env
+    policy = model.policy
+    critic = [*policy.mlp_extractor.value_net.parameters(), *policy.value_net.parameters()]
+    optimiser = torch.optim.Adam(critic, lr=float(model.lr_schedule(1.0)))
+    _, callback = model._setup_learn(rollouts * model.n_steps * model.n_envs, None,
+                                     reset_num_timesteps=False)  # fmt: skip
+    loss = torch.zeros(())
+    for _ in range(rollouts):
+        model.collect_rollouts(env, callback, model.rollout_buffer, model.n_steps)
+        policy.set_training_mode(True)
+        for _ in range(model.n_epochs):
+            for batch in model.rollout_buffer.get(model.batch_size):
+                values = policy.predict_values(batch.observations).flatten()
+                loss = torch.nn.functional.mse_loss(values, batch.returns)
+                optimiser.zero_grad()
+                torch.autograd.backward(loss)
+                torch.nn.utils.clip_grad_norm_(critic, model.max_grad_norm)
+                optimiser.step()
+        policy.set_training_mode(False)
     return float(loss.item())
 
 
@@ -587,13 +672,18 @@ def train(
         log.evaluate(model, 0)  # the starting point: untrained, or freshly cloned
     if not curve.points and checkpoint is None:
         curve.evaluate(model, 0, 0)
+    warmup = (config.pretrain or {}).get("critic_warmup", 0)
+    if checkpoint is None and warmup:
+        loss = warm_up_critic(model, warmup)
+        if progress:
+            print(f"critic warm-up: {model.num_timesteps} decisions, final value loss {loss:.3g}")
 
     remaining = config.total_timesteps - model.num_timesteps
     if remaining > 0:
         model.learn(
             total_timesteps=remaining,
             callback=_periodic_callback(model, config, run_dir, log, curve, progress),
-            reset_num_timesteps=checkpoint is None,
+            reset_num_timesteps=checkpoint is None and model.num_timesteps == 0,
         )
     final = run_dir / "model.zip"
     _save_atomic(model, final)
