@@ -73,6 +73,8 @@ KNOWN_SUITE_HASHES: dict[tuple[str, int], str] = {
     # Field 1: one drone against two on a large flock, gusty crosswind, radar and camera sensing,
     # and two drones with wind and radar together.
     ("field", 1): "2725d1294d1363518152a48ff8007d2d9bb5c59264576343a245a9825443e98a",
+    # Validation 4: the standard suite's three new families added.
+    ("validation", 4): "efa7dfa1bd7a93221154549ba5daa01d655a4b93eccbae5fddf54ecd9b39f241",
 }
 
 _MAX_SEED = 2**31 - 1
