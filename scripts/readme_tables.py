@@ -34,6 +34,12 @@ SOURCES = (
     Source("results/sweeps/approach-angles.md", "| goal bearing (deg)"),
     Source("results/models/ppo-headon-curve.md", "| run | success target"),
     Source(
+        "results/models/ppo-standard-curve.md",
+        "| run | success target",
+        (),
+        "<!-- table: standard references' training -->",
+    ),
+    Source(
         "results/field/leaderboard.md",
         "| family | controller",
         ("large-flock-one-drone", "large-flock-two-drones"),
