@@ -2,8 +2,8 @@
 
 Refactors that change no behaviour must leave every committed episode bit for bit the same; this
 replays a sample of them (the first seed of every family of every committed standard file, and
-of the field suite's all-at-once family, through the ``flockward audit`` machinery) and compares each record field exactly. The expensive variant
-replays every episode of every file.
+of the field suite's all-at-once family, through the ``flockward audit`` machinery) and compares
+each record field exactly. The expensive variant replays every episode of every file.
 """
 
 from __future__ import annotations
