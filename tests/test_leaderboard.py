@@ -588,3 +588,13 @@ def test_rows_state_the_decision_period() -> None:
     assert rows["mixed"]["decision_period"] is None and rows["alpha"]["decision_period"] is None
     md = render_markdown(list(rows.values()), "standard", 3)
     assert "decides every" in md and "| held | state | defaults | 0.8 s |" in md
+
+
+def test_chart_styles_stay_distinct_past_the_palette() -> None:
+    # Regression test: a board of more controllers than colours (the field suite has 11) must not
+    # draw two controllers alike.
+    from flockward.bench.charts import MARKERS, PALETTE, style
+
+    n = len(PALETTE) * len(MARKERS)
+    pairs = {style(i)[:2] for i in range(n)}
+    assert len(pairs) == n

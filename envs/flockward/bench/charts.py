@@ -16,7 +16,21 @@ from flockward.bench.leaderboard import save_figure, scores_by_family
 from flockward.bench.statistics import performance_profile
 
 PALETTE = ("#1b7f79", "#c8553d", "#3d5a98", "#d4a017", "#7a4e9c", "#555555", "#8c564b")
+# After the palette runs out, the next controllers take the next marker and line style, so every
+# (colour, marker) pair up to len(PALETTE) * len(MARKERS) controllers is distinct.
+MARKERS = ("o", "s", "^", "D")
+LINESTYLES = ("-", "--", ":", "-.")
 THRESHOLDS = np.linspace(0.0, 1.0, 101)  # score thresholds of a performance profile
+
+
+def style(index: int) -> tuple[str, str, str]:
+    """The colour, marker and line style of the ``index``-th controller of a chart."""
+    cycle = index // len(PALETTE)
+    return (
+        PALETTE[index % len(PALETTE)],
+        MARKERS[cycle % len(MARKERS)],
+        LINESTYLES[cycle % len(LINESTYLES)],
+    )
 
 
 def write_family_chart(
@@ -42,8 +56,9 @@ def write_family_chart(
         mid = r["success_rate"]
         # Clamped at 0: at 0 % and 100 % rounding may put the bound a hair inside the rate.
         err = [[max(0.0, mid - r["success_ci_low"])], [max(0.0, r["success_ci_high"] - mid)]]
-        ax.errorbar([mid], [y], xerr=err, fmt="o", ms=5, color=PALETTE[c % len(PALETTE)],
-                    elinewidth=2, capsize=3)  # fmt: skip
+        colour, marker, _ = style(c)
+        ax.errorbar([mid], [y], xerr=err, fmt=marker, ms=5, color=colour, elinewidth=2,
+                    capsize=3)  # fmt: skip
     centres = [(len(families) - 1 - f) * step + (len(names) - 1) / 2 for f in range(len(families))]
     ax.set_yticks(centres, families)
     for f in range(1, len(families)):
@@ -56,8 +71,9 @@ def write_family_chart(
         fig.suptitle(note, fontsize=9, color="#aa0000")
     ax.grid(axis="x", color="#eeeeee", lw=0.8)
     for c, name in enumerate(names):
-        ax.plot([], [], "o", color=PALETTE[c % len(PALETTE)], label=name)
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=min(4, max(1, len(names))),
+        colour, marker, _ = style(c)
+        ax.plot([], [], marker, color=colour, label=name)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=min(3, max(1, len(names))),
               fontsize=8, frameon=False)  # fmt: skip
     fig.tight_layout()
     return save_figure(fig, Path(path))
@@ -81,9 +97,9 @@ def write_profiles(
     for i, (result, name) in enumerate(zip(results, names, strict=True)):
         tasks = list(scores_by_family(result).values())
         profile, low, high = performance_profile(tasks, THRESHOLDS, reps=reps, seed=seed)
-        colour = PALETTE[i % len(PALETTE)]
+        colour, _, line = style(i)
         ax.fill_between(THRESHOLDS, low, high, color=colour, alpha=0.25, lw=0)
-        ax.plot(THRESHOLDS, profile, color=colour, lw=2, label=name)
+        ax.plot(THRESHOLDS, profile, color=colour, ls=line, lw=2, label=name)
     ax.set_xlim(0.0, 1.0)
     ax.set_ylim(0.0, 1.02)
     ax.set_xlabel("episode score threshold")
