@@ -259,7 +259,7 @@ def test_soak_random_actions_every_scenario():
         rng = np.random.default_rng(0)
         state = venv.task.state
         for _ in range(per_scenario // (16 * venv.scenario.max_birds)):
-            obs, reward, *_ = venv.step(rng.uniform(-1.2, 1.2, (16, 2)))
+            obs, reward, *_ = venv.step(rng.uniform(-1.2, 1.2, venv.action_space.shape))
             assert np.isfinite(obs).all() and np.isfinite(reward).all()
             speed = np.hypot(state.bird_vel[..., 0], state.bird_vel[..., 1])
             active = np.arange(speed.shape[1])[None, :] < state.count[:, None]
