@@ -6,7 +6,7 @@ BIN    := $(VENV)/bin
 TORCH  := torch==2.13.0
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test soak lint type format bench results headon-curve clean
+.PHONY: demo test soak lint type format bench results headon-curve ladder-curve clean
 
 $(STAMP): pyproject.toml
 	@echo "== creating the virtual environment $(VENV) (a few minutes the first time)"
@@ -46,7 +46,8 @@ bench: $(STAMP)
 
 # Regenerate every committed result with the shipped commands (tens of minutes on 2 cores): the
 # standard suite played by each scripted baseline, its leaderboard, the field suite (teams, wind,
-# sensing) and its leaderboard, the herding envelope sweeps,
+# sensing) and its leaderboard, the ladder suite (scripted baselines and the curriculum-trained
+# models of results/models/ladder/) and its leaderboard, the herding envelope sweeps,
 # the bench figures and the verification report (last: it exits non-zero when a check fails).
 # Run it after any change to dynamics, reward, observation or a suite. The committed models
 # (results/models/*.zip) are played as they are: retrain them first when the change breaks them
@@ -74,6 +75,14 @@ results: $(STAMP)
 		$(BIN)/flockward run --suite field --model $$m --workers 2 || exit 1; \
 	done
 	$(BIN)/flockward board --suite field
+	rm -f results/ladder/*.json
+	for c in $(BOARD_CONTROLLERS); do \
+		$(BIN)/flockward run --suite ladder --controller $$c --workers 2 || exit 1; \
+	done
+	for m in results/models/ladder/*.zip; do \
+		$(BIN)/flockward run --suite ladder --model $$m --workers 2 || exit 1; \
+	done
+	$(BIN)/flockward board --suite ladder
 	rm -f results/sweeps/envelope-push-count.json
 	$(BIN)/flockward sweep --scenario headon --controller boundary-arc \
 		--axis push_distance=10:70:7 --axis flock.count=10,30,50,100 --seeds 20 \
@@ -101,6 +110,22 @@ headon-curve: $(STAMP)
 	done
 	$(BIN)/flockward curves runs/ppo-headon-s0 runs/ppo-headon-s1 runs/ppo-headon-s2 \
 		--out results/models/ppo-headon-curve --title "PPO from scratch on headon"
+	$(BIN)/python scripts/readme_tables.py
+
+# PPO from scratch on the ladder suite, with the curriculum (configs/train/ppo-ladder.toml) and
+# without it (ppo-ladder-uniform.toml), seeds 0, 1 and 2 each, one after another (about 10
+# minutes each on 2 cores; runs/ppo-ladder*-s* are replaced); then the two mean learning curves
+# and the tables of when each seed's success over the eleven ladder families first reached 60 %:
+# results/models/ppo-ladder-curve.* and results/models/ppo-ladder-uniform-curve.*.
+ladder-curve: $(STAMP)
+	for c in ppo-ladder ppo-ladder-uniform; do \
+		for s in 0 1 2; do \
+			rm -rf runs/$$c-s$$s; \
+			$(BIN)/flockward train --config configs/train/$$c.toml --seed $$s --quiet || exit 1; \
+		done; \
+		$(BIN)/flockward curves runs/$$c-s0 runs/$$c-s1 runs/$$c-s2 --target 0.6 \
+			--out results/models/$$c-curve --title "PPO from scratch, $$c" || exit 1; \
+	done
 	$(BIN)/python scripts/readme_tables.py
 
 clean:

@@ -18,15 +18,25 @@ import numpy as np
 from gymnasium.utils import seeding
 from stable_baselines3.common.vec_env.base_vec_env import VecEnv, VecEnvIndices
 
+from flockward.bench.suites import Suite
 from flockward.sim.types import Scenario
 from flockward.task.batched import DivertTask, action_space, check_actions, scalar_info
 from flockward.task.env_config import EnvConfig
+from flockward.task.outcome import Outcome
 from flockward.task.registration import ENV_ID
+from flockward_baselines.curriculum import CurriculumSettings, Ladder, family_configs
 
 # SB3's VecEnvObs and VecEnvStepReturn narrowed to what flockward produces: a (B, D) array or a
 # dict of batched arrays (never a tuple); the step is (observations, rewards, dones, infos).
 BatchObs = np.ndarray | dict[str, np.ndarray]
 BatchStep = tuple[BatchObs, np.ndarray, np.ndarray, list[dict[str, Any]]]
+
+
+def flat_action_space(drones: int) -> gym.spaces.Box:
+    """One world's action space as SB3's policies emit it: (2,), or (2P,) for P > 1 drones,
+    the (P, 2) command row by row."""
+    space = action_space(drones)
+    return gym.spaces.Box(-1.0, 1.0, (space.shape[0] * 2,), np.float32) if drones > 1 else space
 
 
 class FlockwardVecEnv(VecEnv):
@@ -53,10 +63,7 @@ class FlockwardVecEnv(VecEnv):
         self.scenario = self.task.scenario
         self.render_mode = None
         drones = self.task.n_drones
-        space = action_space(drones)
-        if drones > 1:
-            space = gym.spaces.Box(-1.0, 1.0, (2 * drones,), np.float32)
-        super().__init__(int(num_envs), self.task.observation_space(), space)
+        super().__init__(int(num_envs), self.task.observation_space(), flat_action_space(drones))
         # (worlds, drones, 2), as check_actions
         self._actions = np.zeros((self.num_envs, max(drones, 1), 2))
         self._generators: list[np.random.Generator] | None = None
@@ -212,6 +219,137 @@ class MixedVecEnv(VecEnv):
     def _part(self, index: int) -> FlockwardVecEnv:
         """The part that holds world ``index`` of the mix."""
         return self.parts[int(np.searchsorted(self._bounds, index, side="right")) - 1]
+
+
+class CurriculumVecEnv(VecEnv):
+    """``num_envs`` worlds climbing the tiers of a suite (``flockward_baselines.curriculum``).
+
+    Every family of the suite is one batched task holding a world per slot; a decision steps
+    each task that holds live slots, the others masked out, so the physics stays batched. World
+    ``i`` of family ``f`` draws from a generator seeded (seed, f, i), the curriculum's draws from
+    their own; so the same seed gives the same training stream. Infos of a world's last step
+    also carry its ``family``.
+    """
+
+    def __init__(
+        self,
+        suite: Suite,
+        settings: CurriculumSettings,
+        num_envs: int,
+        seed: int,
+        env_options: dict[str, Any],
+        overrides: dict[str, Any],
+    ):
+        self.suite = suite
+        self.settings = settings
+        self.render_mode = None
+        configs = family_configs(suite, env_options, overrides)
+        self.tasks = [DivertTask(config, num_envs) for config in configs]
+        names = [entry.family for entry in suite.entries]
+        first = self.tasks[0]
+        for task, family in zip(self.tasks[1:], names[1:], strict=True):
+            if task.observation_space() != first.observation_space():
+                raise ValueError(
+                    f"curriculum suite {suite.name!r}: family {family!r} observes "
+                    f"{task.observation_space()}, {names[0]!r} observes "
+                    f"{first.observation_space()}; a curriculum needs one observation space"
+                )
+            if task.n_drones != first.n_drones:
+                raise ValueError(
+                    f"curriculum suite {suite.name!r}: family {family!r} flies {task.n_drones} "
+                    f"drone(s), {names[0]!r} {first.n_drones}; a curriculum needs one count"
+                )
+        space = first.observation_space()
+        if not isinstance(space, gym.spaces.Box):
+            raise ValueError("a curriculum needs the vector observation (a Box space)")
+        super().__init__(int(num_envs), space, flat_action_space(first.n_drones))
+        self._seed = int(seed)
+        self._actions = np.zeros((self.num_envs, max(first.n_drones, 1), 2))
+        self.simulator_steps = 0
+        self.ladder = Ladder(suite, settings, self.num_envs, self._seed)
+
+    def _start(self, index: int) -> np.ndarray:
+        """Begin slot ``index``'s episode in its ladder family; return its observation."""
+        obs = self.tasks[self.ladder.slots[index].family].reset([index])
+        row: np.ndarray = np.asarray(obs)[index].copy()
+        return row
+
+    def reset(self) -> np.ndarray:
+        """Every slot back to the start of the ladder, every world seeded afresh."""
+        self.ladder = Ladder(self.suite, self.settings, self.num_envs, self._seed)
+        for f, task in enumerate(self.tasks):
+            task.world.rngs[:] = [
+                np.random.default_rng([self._seed, f, i]) for i in range(self.num_envs)
+            ]
+        return np.stack([self._start(i) for i in range(self.num_envs)])
+
+    def step_async(self, actions: np.ndarray) -> None:
+        """Check and keep the actions for ``step_wait``."""
+        self._actions = check_actions(actions, self.num_envs, self.tasks[0].n_drones)
+
+    def step_wait(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[dict[str, Any]]]:
+        """Step each family's task for its live slots; finished slots move on along the ladder."""
+        n = self.num_envs
+        space = self.observation_space
+        obs = np.zeros((n, *(space.shape or ())), dtype=space.dtype)
+        rewards = np.zeros(n, dtype=np.float32)
+        dones = np.zeros(n, dtype=np.bool_)
+        infos: list[dict[str, Any]] = [{} for _ in range(n)]
+        families = np.array([slot.family for slot in self.ladder.slots])
+        for f in np.unique(families):
+            live = families == f
+            batch = self.tasks[f].step(self._actions, live)
+            self.simulator_steps += int(batch.info["held_steps"][live].sum())
+            obs[live] = np.asarray(batch.observation)[live]
+            rewards[live] = batch.reward[live]
+            ended = (batch.terminated | batch.truncated) & live
+            dones |= ended
+            for i in np.flatnonzero(ended):
+                info = scalar_info(batch.info, int(i))
+                info["terminal_observation"] = obs[i].copy()
+                info["TimeLimit.truncated"] = bool(batch.truncated[i] and not batch.terminated[i])
+                info["family"] = self.suite.entries[f].family
+                infos[i] = info
+        for i in np.flatnonzero(dones):
+            self.ladder.finish(int(i), infos[i]["outcome"] == Outcome.SUCCESS)
+            obs[i] = self._start(int(i))
+        return obs, rewards, dones, infos
+
+    def seed(self, seed: int | None = None) -> Sequence[int | None]:
+        """Seed the worlds and the curriculum's draws (applied at the next reset)."""
+        if seed is not None:
+            self._seed = int(seed)
+        return [self._seed] * self.num_envs
+
+    def close(self) -> None:
+        """Nothing to release: no subprocesses, no windows."""
+        return None
+
+    def get_attr(self, attr_name: str, indices: VecEnvIndices = None) -> list[Any]:
+        """An attribute of the adapter, once per index."""
+        value = getattr(self, attr_name)
+        return [value for _ in self._get_indices(indices)]
+
+    def set_attr(self, attr_name: str, value: Any, indices: VecEnvIndices = None) -> None:
+        """Set an attribute of the adapter."""
+        setattr(self, attr_name, value)
+
+    def env_method(
+        self,
+        method_name: str,
+        *method_args: Any,
+        indices: VecEnvIndices = None,
+        **method_kwargs: Any,
+    ) -> list[Any]:
+        """Call a method of the adapter once per index."""
+        method = getattr(self, method_name)
+        return [method(*method_args, **method_kwargs) for _ in self._get_indices(indices)]
+
+    def env_is_wrapped(
+        self, wrapper_class: type[gym.Wrapper], indices: VecEnvIndices = None
+    ) -> list[bool]:
+        """False for every index: the worlds are not Gymnasium envs, so nothing wraps them."""
+        return [False for _ in self._get_indices(indices)]
 
 
 def _concat(batches: Sequence[BatchObs]) -> BatchObs:

@@ -35,6 +35,7 @@ from flockward.config.schema import Origin, Spec, convert
 from flockward.controller import Controller, StateView
 from flockward.sim.types import Scenario
 from flockward.task.env_config import EnvConfig
+from flockward_baselines.curriculum import MODES, CurriculumSettings, family_configs
 from flockward_baselines.curves import CurvePoint, curve_point, read_curve, write_curve
 
 if TYPE_CHECKING:  # Stable-Baselines3 is optional: imported where training needs it
@@ -47,6 +48,7 @@ if TYPE_CHECKING:  # Stable-Baselines3 is optional: imported where training need
 
 ALGORITHMS = ("ppo", "sac")
 CURVE_FILE = "curve.csv"
+CURRICULUM_FILE = "curriculum.csv"  # slots per tier at each curve point, with a curriculum
 
 
 def _int(lo: int, hi: int) -> Spec:
@@ -102,6 +104,12 @@ PRETRAIN: dict[str, Spec] = {
     # actor frozen), so that PPO's first advantages are not read off an untrained critic
     "critic_warmup": _int(0, 10_000),
 }
+# Optional [curriculum] table: worlds promoted up a tiered suite (flockward_baselines.curriculum).
+CURRICULUM: dict[str, Spec] = {
+    "window": _int(1, 1000),
+    "promote_at": _float(0.0, 1.0),
+    "review": _float(0.0, 1.0),
+}
 CLONE_STD_FLOOR = 0.05  # a clone that fits its expert exactly still explores a little
 DEMO_SEED = 100_000  # demonstration seeds start here, clear of every shipped suite's seeds
 
@@ -134,6 +142,9 @@ class TrainConfig:
     net_arch: tuple[int, ...] = (64, 64)
     hyperparameters: dict[str, Any] = field(default_factory=dict)
     pretrain: dict[str, Any] | None = None  # behaviour cloning of a scripted expert, see PRETRAIN
+    # worlds promoted up a tiered suite instead of a fixed scenario mix (flockward_baselines.
+    # curriculum); its families replace ``scenarios``
+    curriculum: CurriculumSettings | None = None
     observation: str = "vector"  # shipped observation name or import path package.module:Name
     reward: str = "herding"  # shipped reward name or import path package.module:Name
     source_file: str = ""
@@ -158,6 +169,19 @@ class TrainConfig:
         """The training worlds' overrides: the config's, with reward.gamma set to the agent's
         gamma so the shaping discount per control step is derived from it."""
         return {**self.overrides, "reward.gamma": self.gamma}
+
+    def worlds(self) -> list[EnvConfig]:
+        """The environment config of each training scenario, or of each family of the
+        curriculum's suite: what the learning curve plays."""
+        if self.curriculum is not None:
+            from flockward.bench.suites import load_suite
+
+            suite = load_suite(self.curriculum.suite)
+            return family_configs(suite, self.env_options, self.env_overrides)
+        return [
+            EnvConfig(scenario=s, overrides=self.env_overrides, **self.env_options)
+            for s in self.scenarios
+        ]
 
 
 def sb3_default_gamma(algorithm: str) -> float:
@@ -185,6 +209,7 @@ _TOP_KEYS: dict[str, Spec] = {
 # Top-level keys a config may hold: names, tables and the numeric _TOP_KEYS.
 _ALLOWED_KEYS = frozenset(
     {"name", "algorithm", "scenarios", "overrides", "eval_suite", "net_arch", "pretrain"}
+    | {"curriculum"}
     | {"observation", "reward"}
     | set(_TOP_KEYS)
     | set(ALGORITHMS)
@@ -210,8 +235,13 @@ def load_train_config(path: str | Path) -> TrainConfig:
     name = raw.get("name", path.stem)
     if not isinstance(name, str) or not name.replace("-", "").replace("_", "").isalnum():
         raise ConfigError(f"{label}: key 'name' = {name!r}: must be letters, digits, '-' or '_'")
-    scenarios, overrides = _scenarios(raw, label)
     given = _optional_settings(raw, algorithm, top)
+    if "curriculum" in raw:
+        given["curriculum"] = _curriculum(raw, top.child("curriculum"))
+        scenarios: list[str] = []
+        overrides = _overrides(raw, label)
+    else:
+        scenarios, overrides = _scenarios(raw, label)
     config = TrainConfig(
         name=name,
         algorithm=algorithm,
@@ -229,6 +259,43 @@ def load_train_config(path: str | Path) -> TrainConfig:
     return config
 
 
+def _curriculum(raw: dict[str, object], origin: Origin) -> CurriculumSettings:
+    """The [curriculum] table: a tiered suite, a mode and the CURRICULUM settings."""
+    from flockward.bench.suites import load_suite
+
+    table = raw["curriculum"]
+    if not isinstance(table, dict):
+        raise origin.error(table, "must be a table with suite = a tiered suite's name or path")
+    if "scenarios" in raw:
+        raise ConfigError(
+            f"{origin.file}: key 'curriculum' replaces key 'scenarios' (its suite's families "
+            "are the training worlds): give one or the other"
+        )
+    if "pretrain" in raw:
+        raise ConfigError(
+            f"{origin.file}: key 'curriculum' cannot be combined with [pretrain]: give one or "
+            "the other"
+        )
+    settings = {k: v for k, v in table.items() if k not in ("suite", "mode")}
+    for key in settings:
+        if key not in CURRICULUM:
+            raise origin.unknown(key, ["suite", "mode", *CURRICULUM])
+    mode = table.get("mode", "promote")
+    if mode not in MODES:
+        raise origin.child("mode").error(mode, "must be one of " + ", ".join(MODES))
+    suite = table.get("suite", "ladder")
+    if not isinstance(suite, str):
+        raise origin.child("suite").error(suite, "must be a suite name or TOML path")
+    try:
+        tiers = {entry.tier for entry in load_suite(suite).entries}
+    except ConfigError as error:
+        raise ConfigError(f"{origin.file}: key 'curriculum.suite': {error}") from None
+    if mode == "promote" and len(tiers) < 2:
+        raise origin.child("suite").error(suite, "must have at least two tiers to promote along")
+    return CurriculumSettings(suite=suite, mode=str(mode),
+                              **_checked_table(settings, CURRICULUM, origin))  # fmt: skip
+
+
 def _check_discount(config: TrainConfig, label: str) -> None:
     """The shaping discount follows from the agent's gamma: an override of reward.gamma that
     differs from it, or a reward.discount that differs from the derived value, is an error."""
@@ -240,13 +307,15 @@ def _check_discount(config: TrainConfig, label: str) -> None:
         )
     k = config.decision_steps
     steps = {} if k is None else {"episode.decision_steps": k}
-    for scenario in config.scenarios:
+    key = "curriculum.suite" if config.curriculum is not None else "scenarios"
+    for world in config.worlds():
+        overrides = {**(world.overrides or {}), **steps}
         try:
-            load_scenario(scenario, {**config.env_overrides, **steps})
+            load_scenario(world.scenario, overrides)  # type: ignore[arg-type]
         except ConfigError as error:
             raise ConfigError(
-                f"{label}: key 'scenarios' entry {scenario!r} with {config.algorithm} gamma "
-                f"{config.gamma!r}: {error}"
+                f"{label}: key '{key}' entry {str(world.scenario)!r} with {config.algorithm} "
+                f"gamma {config.gamma!r}: {error}"
             ) from None
 
 
@@ -262,15 +331,21 @@ def _scenarios(raw: dict[str, object], label: str) -> tuple[list[str], dict[str,
             f"{label}: key 'scenarios' = {scenarios!r}: must be a non-empty list of scenario "
             f"names ({', '.join(list_scenarios())}) or TOML paths"
         )
-    overrides = raw.get("overrides", {})
-    if not isinstance(overrides, dict):
-        raise ConfigError(f"{label}: key 'overrides' = {overrides!r}: must be a table")
+    overrides = _overrides(raw, label)
     for scenario in scenarios:
         try:
             load_scenario(scenario, overrides)
         except ConfigError as error:
             raise ConfigError(f"{label}: key 'scenarios' entry {scenario!r}: {error}") from None
     return scenarios, overrides
+
+
+def _overrides(raw: dict[str, object], label: str) -> dict[str, Any]:
+    """The config's overrides table (empty when absent)."""
+    overrides = raw.get("overrides", {})
+    if not isinstance(overrides, dict):
+        raise ConfigError(f"{label}: key 'overrides' = {overrides!r}: must be a table")
+    return overrides
 
 
 def _optional_settings(raw: dict[str, object], algorithm: str, top: Origin) -> dict[str, Any]:
@@ -370,8 +445,21 @@ def _pretrain(table: object, origin: Origin) -> dict[str, Any]:
 
 
 def make_training_env(config: TrainConfig) -> VecEnv:
-    """The SB3 VecEnv of the config: one adapter, or a mix of one adapter per scenario."""
-    from flockward_baselines.sb3 import FlockwardVecEnv, MixedVecEnv, make_vec_env
+    """The SB3 VecEnv of the config: one adapter, a mix of one adapter per scenario, or the
+    curriculum's worlds."""
+    from flockward_baselines.sb3 import (
+        CurriculumVecEnv,
+        FlockwardVecEnv,
+        MixedVecEnv,
+        make_vec_env,
+    )
+
+    if config.curriculum is not None:
+        from flockward.bench.suites import load_suite
+
+        suite = load_suite(config.curriculum.suite)
+        return CurriculumVecEnv(suite, config.curriculum, config.num_envs, config.seed,
+                                config.env_options, config.env_overrides)  # fmt: skip
 
     k = len(config.scenarios)
     shares = [config.num_envs // k + (1 if i < config.num_envs % k else 0) for i in range(k)]
@@ -691,6 +779,7 @@ def train(
         log.evaluate(model, model.num_timesteps)
     if not curve.points or curve.points[-1].timesteps != model.num_timesteps:
         curve.evaluate(model, model.num_timesteps, simulator_steps(env))
+        log_tiers(run_dir, env, model.num_timesteps)
     plot_curve(run_dir)
     env.close()
     return final
@@ -746,6 +835,23 @@ class _ValidationLog:
         _write_eval_log(self.run_dir / "eval.csv", self.rows)
 
 
+def log_tiers(run_dir: Path, env: VecEnv, steps: int) -> None:
+    """Append the curriculum's slots per tier at ``steps`` decisions to curriculum.csv (nothing
+    for an env without a curriculum)."""
+    while not hasattr(env, "ladder") and hasattr(env, "venv"):
+        env = env.venv  # through SB3's wrappers (VecMonitor)
+    ladder = getattr(env, "ladder", None)
+    if ladder is None:
+        return
+    path = run_dir / CURRICULUM_FILE
+    new = not path.is_file()
+    with path.open("a", newline="") as handle:
+        writer = csv.writer(handle)
+        if new:
+            writer.writerow(["timesteps", *(f"tier_{t}" for t in ladder.tier_numbers)])
+        writer.writerow([steps, *ladder.tier_counts()])
+
+
 def simulator_steps(env: VecEnv) -> int:
     """Control steps played by the training worlds so far (0 for an env that does not count)."""
     while not hasattr(env, "simulator_steps") and hasattr(env, "venv"):
@@ -771,9 +877,7 @@ class _CurveLog:
             return np.asarray(action)
 
         wall = time.perf_counter() - self.validation.start_wall
-        for scenario in self.config.scenarios:
-            env = EnvConfig(scenario=scenario, overrides=self.config.env_overrides,
-                            **self.config.env_options)  # fmt: skip
+        for env in self.config.worlds():
             self.points.append(
                 curve_point(policy, env, self.config.curve_episodes, steps, sim_steps, wall)
             )
@@ -836,6 +940,7 @@ def _periodic_callback(
                 self.next_eval += config.eval_every
             if now >= self.next_curve:
                 curve.evaluate(self.model, now, simulator_steps(self.training_env))
+                log_tiers(run_dir, self.training_env, now)
                 self.next_curve += config.curve_every
             return True
 

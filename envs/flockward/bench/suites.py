@@ -100,6 +100,9 @@ class SuiteEntry:
     overrides: tuple[tuple[str, object], ...]  # (dotted key, value), sorted by key
     seeds: tuple[int, int]  # first, last (inclusive)
     tier: int = 1  # rung of a difficulty ladder, 1 the easiest; suites without tiers are all 1
+    # the scenario name or resolved file path the entry was built from, for rebuilding it with
+    # further overrides (training's reward.gamma); not part of the suite's hash
+    source: str = ""
 
     @property
     def count(self) -> int:
@@ -256,6 +259,7 @@ def _entry(raw: object, n: int, label: str, base: Path) -> SuiteEntry:
         overrides=tuple(sorted(overrides.items())),
         seeds=seeds,
         tier=int(tier),  # type: ignore[call-overload]
+        source=str(base / ref) if is_path else ref,
     )
 
 
