@@ -6,7 +6,7 @@ BIN    := $(VENV)/bin
 TORCH  := torch==2.13.0
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test soak lint type format bench results headon-curve ladder-curve clean
+.PHONY: demo test soak rllib-example lint type format bench results headon-curve ladder-curve clean
 
 $(STAMP): pyproject.toml
 	@echo "== creating the virtual environment $(VENV) (a few minutes the first time)"
@@ -30,6 +30,35 @@ test: $(STAMP)
 # The long checks (a million random-action world-steps over every scenario); CI runs them too.
 soak: $(STAMP)
 	$(BIN)/python -m pytest -q -m expensive
+
+# examples/train_rllib.py in a venv of its own: ray[rllib] pins an older gymnasium (1.2.2) than
+# the main venv's, so it gets $(RLLIB_VENV), built like $(VENV) (the CPU torch first) with the pins
+# of $(RLLIB_PINS). There the example's test must run (it fails, not skips, without RLlib), and
+# flockward's Gymnasium-facing tests (the checkers, wrappers, vector env) run under that
+# gymnasium. CI runs it.
+RLLIB        := ray[rllib]==2.60.0
+RLLIB_VENV   := .venv-rllib
+RLLIB_BIN    := $(RLLIB_VENV)/bin
+RLLIB_PINS   := examples/rllib-constraints.txt
+RLLIB_STAMP  := $(RLLIB_VENV)/.installed
+
+$(RLLIB_STAMP): pyproject.toml $(RLLIB_PINS)
+	@echo "== creating the virtual environment $(RLLIB_VENV) for RLlib (about a minute)"
+	rm -rf $(RLLIB_VENV)
+	$(PYTHON) -m venv $(RLLIB_VENV)
+	$(RLLIB_BIN)/pip install --progress-bar off --upgrade pip
+	@echo "== installing $(TORCH) (CPU build)"
+	$(RLLIB_BIN)/pip install --progress-bar off "$(TORCH)"
+	@echo "== installing flockward with the learn extra, $(RLLIB) and the test tools ($(RLLIB_PINS))"
+	$(RLLIB_BIN)/pip install --progress-bar off -c $(RLLIB_PINS) -e ".[learn]" "$(RLLIB)" \
+		"$(TORCH)" pytest moviepy
+	$(RLLIB_BIN)/pip list
+	touch $(RLLIB_STAMP)
+
+rllib-example: $(RLLIB_STAMP)
+	$(RLLIB_BIN)/python -c "import gymnasium, ray; print('ray', ray.__version__, 'gymnasium', gymnasium.__version__)"
+	FLOCKWARD_REQUIRE_EXAMPLES=train_rllib.py $(RLLIB_BIN)/python -m pytest -q \
+		"tests/test_examples.py::test_example_runs[train_rllib.py]" tests/test_env.py tests/test_env_parts.py
 
 lint: $(STAMP)
 	$(BIN)/ruff check envs baselines tests examples scripts
@@ -129,4 +158,4 @@ ladder-curve: $(STAMP)
 	$(BIN)/python scripts/readme_tables.py
 
 clean:
-	rm -rf $(VENV) build dist .pytest_cache .ruff_cache
+	rm -rf $(VENV) $(RLLIB_VENV) build dist .pytest_cache .ruff_cache

@@ -4,7 +4,8 @@ Run from the repository root:  python examples/train_rllib.py [--iterations N] [
 
 RLlib is not one of flockward's extras: install it beside flockward with
 `pip install 'ray[rllib]' torch==2.13.0` (torch pinned to the CPU build, as the Makefile does).
-Note that ray[rllib] 2.60 pins gymnasium 1.2.2, so pip moves gymnasium back to that version.
+Note that ray[rllib] 2.60 pins gymnasium 1.2.2, so pip moves gymnasium back to that version;
+`make rllib-example` builds such a venv of its own (.venv-rllib) and runs this example's test there.
 
 The environment registers with RLlib like any Gymnasium environment: `env_config` holds
 `DivertEnv`'s keyword arguments (scenario, overrides, observation, ...). A Ray instance starts on

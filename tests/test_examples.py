@@ -22,11 +22,18 @@ BUDGETS = {
 }
 # Examples that need a package flockward's test extra may lack, with what installs it. RLlib
 # is no extra of flockward: ray[rllib] adds about 70 MB of wheels (pyarrow, pandas) and pins
-# an older gymnasium.
+# an older gymnasium, so `make rllib-example` runs its test in a venv of its own.
 NEEDS = {
     "run_on_ray.py": ("ray", "pip install 'flockward[ray]'"),
-    "train_rllib.py": ("ray.rllib", "pip install 'ray[rllib]' torch==2.13.0"),
+    "train_rllib.py": (
+        "ray.rllib",
+        "`make rllib-example` runs it in its own venv (.venv-rllib), "
+        "or pip install 'ray[rllib]' torch==2.13.0",
+    ),
 }
+# Examples named here (comma-separated) fail instead of skipping when their package does not
+# import: `make rllib-example` sets it, so a broken RLlib venv cannot pass as a skip.
+REQUIRED = {name for name in os.environ.get("FLOCKWARD_REQUIRE_EXAMPLES", "").split(",") if name}
 
 
 def _importable(module: str, env: dict[str, str]) -> bool:
@@ -55,7 +62,10 @@ def test_example_runs(script: str) -> None:
     }
     if script in NEEDS and not _importable(NEEDS[script][0], env):
         module, hint = NEEDS[script]
-        pytest.skip(f"{script} needs {module}, which does not import here: {hint}")
+        message = f"{script} needs {module}, which does not import here: {hint}"
+        if script in REQUIRED:
+            pytest.fail(message + " (required by FLOCKWARD_REQUIRE_EXAMPLES)")
+        pytest.skip(message)
     result = subprocess.run(
         [sys.executable, str(ROOT / "examples" / script), *BUDGETS[script]],
         capture_output=True, text=True, env=env, cwd=ROOT, timeout=300, check=False,

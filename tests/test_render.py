@@ -376,6 +376,84 @@ def test_an_animation_decides_auto_once_from_the_median_flock_span():
         animation_inset(CIRCLE_SCENARIO, frames, (480, 480), "zoom")
 
 
+def test_still_inset_off_reproduces_the_still_drawn_before_stills_had_insets(tmp_path):
+    # Regression test: still_without_inset.png was written by this same call with episode_still
+    # as it was before stills had an inset (commit cd480db); "off" keeps the file byte for byte.
+    import matplotlib
+
+    if matplotlib.__version__ != FIXTURE_MATPLOTLIB:
+        pytest.skip(f"the fixture was drawn with matplotlib {FIXTURE_MATPLOTLIB}, this is "
+                    f"{matplotlib.__version__}: pixels may differ")  # fmt: skip
+    before = FIXTURES / "still_without_inset.png"
+    for mode in ("off", "auto", "on"):
+        episode_still(WINDY_SCENARIO, episode_frames(30), tmp_path / f"{mode}.png",
+                      label="idle, seed 7", inset=mode)  # fmt: skip
+    assert (tmp_path / "off.png").read_bytes() == before.read_bytes()
+    # The flock spans about 8 m on a map over 1000 m wide: "auto" draws the inset, as "on" does.
+    assert (tmp_path / "auto.png").read_bytes() == (tmp_path / "on.png").read_bytes()
+    with Image.open(before) as old, Image.open(tmp_path / "on.png") as new:
+        assert old.size == new.size
+        assert changed_pixels(np.asarray(new.convert("RGB")), np.asarray(old.convert("RGB"))) > 500
+    with pytest.raises(ValueError, match="inset = 'zoom': choose one of auto, on, off"):
+        episode_still(WINDY_SCENARIO, episode_frames(5), tmp_path / "zoom.png", inset="zoom")
+    assert not (tmp_path / "zoom.png").exists()
+
+
+def map_panel(image: np.ndarray) -> tuple[int, int, int, int]:
+    """(top, bottom, left, right) pixel bounds of a still's map panel: the columns and rows that
+    are mostly its SLATE background (the time plots' thin grid lines are SLATE too), grown by the
+    pixel its frame line covers on each side."""
+    slate = np.all(image == np.round(np.array(to_rgb(SLATE)) * 255), axis=-1)
+    cols = np.nonzero(slate.mean(axis=0) > 0.5)[0]
+    rows = np.nonzero(slate[:, cols].mean(axis=1) > 0.5)[0]
+    return int(rows.min()) - 1, int(rows.max()) + 2, int(cols.min()) - 1, int(cols.max()) + 2
+
+
+def test_still_inset_draws_the_final_flock_at_its_mapped_places(tmp_path):
+    # Regression test of the still's inset against its documented rule: a view 50 m wide
+    # (INSET_MIN_WIDTH, the final flock spanning 8 m) centred on the final birds' bounding box, a
+    # square of 0.4 of the map panel's shorter side in the panel's upper-right corner (the
+    # destination lies under the lower one), 0.015 of that side from its edges; the legend
+    # leaves the lower-right corner (the wind label's place now) for the lower-left one.
+    frames = episode_frames(30)
+    images = {}
+    for mode in ("on", "off"):
+        episode_still(WINDY_SCENARIO, frames, tmp_path / f"{mode}.png", inset=mode)
+        with Image.open(tmp_path / f"{mode}.png") as image:
+            images[mode] = np.asarray(image.convert("RGB"))
+    on = images["on"]
+    top, bottom, left, right = map_panel(images["off"])
+    shorter = min(bottom - top, right - left)
+    side, gap = 0.4 * shorter, 0.015 * shorter
+    view_left, view_top = right - gap - side, top + gap
+    final = np.asarray(frames[-1]["bird_pos"])
+    cx, cy = (final.min(axis=0) + final.max(axis=0)) / 2.0
+
+    def around(x: float, y: float) -> np.ndarray:
+        """The 3 x 3 pixels around the place of (x, y) m in the inset."""
+        col = int(view_left + (x - (cx - 25.0)) / 50.0 * side)
+        row = int(view_top + ((cy + 25.0) - y) / 50.0 * side)
+        return on[row - 1 : row + 2, col - 1 : col + 2].reshape(-1, 3)
+
+    for x, y in final:
+        assert any(near(p, CHARCOAL) for p in around(x, y)), (x, y, around(x, y))
+    # Empty places of the view stay background.
+    for x, y in [(cx - 15.0, cy + 15.0), (cx + 15.0, cy + 15.0)]:
+        assert all(near(p, SLATE) for p in around(x, y)), (x, y, around(x, y))
+
+    def legend_pixels(image: np.ndarray, lower_left: bool) -> int:
+        """Near-white pixels (the legend's box) in a lower corner, a quarter of the panel."""
+        rows = slice(bottom - (bottom - top) // 4, bottom)
+        quarter = (right - left) // 4
+        cols = slice(left, left + quarter) if lower_left else slice(right - quarter, right)
+        return int(np.all(image[rows, cols] > 240, axis=-1).sum())
+
+    assert legend_pixels(images["off"], lower_left=False) > 2000
+    assert legend_pixels(images["off"], lower_left=True) < 100
+    assert legend_pixels(on, lower_left=True) > 2000
+    assert legend_pixels(on, lower_left=False) < 100
+
+
 def test_inset_view_widths_are_round_and_hold_the_flock() -> None:
     # Widths are 1, 2 or 5 times a power of ten metres (common practice for map scales).
     assert [inset_width(s) for s in (0.0, 12.0, 20.1, 45.0, 300.0)] == [50.0, 50.0, 100.0,
@@ -409,6 +487,14 @@ def test_show_draws_the_inset_on_request(tmp_path: Path, capsys: pytest.CaptureF
         assert main([*args, "--out", str(gifs[mode])]) == 0
     with Image.open(gifs["on"]) as on, Image.open(gifs["off"]) as off:
         assert on.n_frames == off.n_frames and on.size == off.size
+        assert changed_pixels(np.asarray(on.convert("RGB")), np.asarray(off.convert("RGB"))) > 500
+    stills = {}
+    for mode in ("on", "off"):  # a still honours --inset too
+        stills[mode] = tmp_path / f"{mode}.png"
+        args = ["show", "--scenario", str(scenario), "--controller", "idle", "--inset", mode]
+        assert main([*args, "--out", str(stills[mode])]) == 0
+    with Image.open(stills["on"]) as on, Image.open(stills["off"]) as off:
+        assert on.size == off.size
         assert changed_pixels(np.asarray(on.convert("RGB")), np.asarray(off.convert("RGB"))) > 500
     with pytest.raises(SystemExit):
         main(["show", "--inset", "zoom"])

@@ -213,7 +213,7 @@ def _cmd_show(args: argparse.Namespace) -> int:
         stride = 1 if scenario.episode.decision_steps > 1 else 2
         episode_animation(scenario, frames, out, label=label, stride=stride, inset=args.inset)
     else:
-        episode_still(scenario, frames, out, label=label)
+        episode_still(scenario, frames, out, label=label, inset=args.inset)
     print(
         f"{name} on {scenario.name}, seed {args.seed}: {record.outcome} after "
         f"{record.steps} steps, {record.breached_birds} birds breached, "
@@ -745,8 +745,9 @@ def build_parser() -> argparse.ArgumentParser:
         "--inset",
         choices=("auto", "on", "off"),
         default="auto",
-        help="a .gif's zoomed view following the flock, drawing each bird: auto (default) adds "
-        "it when the flock's median span is at most a tenth of the map's width",
+        help="a zoomed view of the flock drawing each bird (a .gif's follows the flock, a still's "
+        "shows the final flock): auto (default) adds it when the flock's median span is at most "
+        "a tenth of the map's width",
     )
     show.set_defaults(handler=_cmd_show)
 

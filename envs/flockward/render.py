@@ -246,7 +246,7 @@ def draw_wind(ax: Axes, scenario: Scenario, extent: Extent, corner: str = "upper
 
 
 def inset_box(
-    size_px: tuple[int, int], corner: str, top_clear_px: float = 0.0
+    size_px: tuple[float, float], corner: str, top_clear_px: float = 0.0
 ) -> tuple[float, float, float, float] | None:
     """The inset's (left, bottom, width, height) in figure fractions: a square of pixels in the
     frame's right-hand ``corner`` ("upper" or "lower"), an upper one starting ``top_clear_px``
@@ -262,7 +262,10 @@ def inset_box(
 
 
 def inset_corner(
-    scenario: Scenario, extent: Extent, size_px: tuple[int, int], points: np.ndarray | None = None
+    scenario: Scenario,
+    extent: Extent,
+    size_px: tuple[float, float],
+    points: np.ndarray | None = None,
 ) -> str:
     """The right-hand corner ("upper" or "lower") where the inset hides less of a map of
     ``extent`` filling the frame: counted are the share of each zone's bounding box it covers,
@@ -584,11 +587,39 @@ def _still_format(out_path: str | os.PathLike[str]) -> str:
     return fmt
 
 
+def still_inset_box(
+    scenario: Scenario,
+    fig: Figure,
+    map_ax: Axes,
+    extent: Extent,
+    avoid: np.ndarray,
+) -> tuple[str, tuple[float, float, float, float] | None]:
+    """The right-hand corner and the (left, bottom, width, height) figure fractions of a still's
+    inset: ``inset_box`` and ``inset_corner`` applied to the map panel ``map_ax`` of ``extent`` as
+    if it were a frame of its own (the still prints no status text over the map); no box when the
+    panel has no room for one."""
+    panel = map_ax.get_position()
+    panel_px = (panel.width * fig.get_figwidth() * fig.dpi,
+                panel.height * fig.get_figheight() * fig.dpi)  # fmt: skip
+    corner = inset_corner(scenario, extent, panel_px, avoid)
+    inner = inset_box(panel_px, corner)
+    if inner is None:
+        return corner, None
+    left, bottom, width, height = inner
+    return corner, (
+        panel.x0 + left * panel.width,
+        panel.y0 + bottom * panel.height,
+        width * panel.width,
+        height * panel.height,
+    )
+
+
 def episode_still(
     scenario: Scenario,
     frames: Sequence[Mapping[str, Any]],
     out_path: str | os.PathLike[str],
     label: str = "",
+    inset: str = "auto",
 ) -> Path:
     """Write a summary of one episode (PNG, SVG or PDF by the suffix of ``out_path``): a map of
     trails and three metrics over time.
@@ -597,7 +628,11 @@ def episode_still(
     ``pursuer_pos`` (P, 2) (or (2,) for one drone), ``step``, ``goal_distance`` (m), ``diameter``
     (m) and ``n_components``; optional ``breached_birds`` and ``outcome``. ``label`` (such as
     the controller and seed) joins the title; the first split and first breach are marked on
-    the time plots.
+    the time plots. ``inset`` is the animation's (``episode_inset`` on the still's map): a
+    ``FlockInset`` of the final flock, the drones and their whole tracks, in the right-hand corner
+    hiding less of the map; the wind label takes the other right-hand corner and the legend the
+    lower-left one. With "off" (or "auto" deciding against it) the still is the one drawn before
+    stills had insets.
     """
     _check_frames(frames)
     birds = _stack_birds(frames)  # (T, n, 2)
@@ -624,7 +659,13 @@ def episode_still(
     ax.set_xlabel("x (m)", fontsize=9, color=INK)
     ax.set_ylabel("y (m)", fontsize=9, color=INK)
     draw_site(ax, scenario)
-    draw_wind(ax, scenario, (x0, x1, y0, y1))
+    corner, view_box = "upper", None
+    if episode_inset(inset, list(birds), x1 - x0) == "on" and birds.shape[1] > 0:
+        centres = (birds.min(axis=1) + birds.max(axis=1)) / 2.0  # (T, 2)
+        avoid = np.concatenate([centres, drones.reshape(-1, 2)])
+        corner, view_box = still_inset_box(scenario, fig, ax, (x0, x1, y0, y1), avoid)
+    wind_corner = "lower" if view_box is not None and corner == "upper" else "upper"
+    draw_wind(ax, scenario, (x0, x1, y0, y1), wind_corner)
 
     thin = max(1, -(-len(frames) // STILL_MAX_TRAIL_POINTS))  # ceil: keep at most the cap
     keep = np.unique(np.r_[np.arange(0, len(frames), thin), len(frames) - 1])
@@ -651,6 +692,10 @@ def episode_still(
     start, end = drones[0], drones[-1]  # (P, 2) each
     ax.plot(*start.T, "o", markersize=6, color="none", markeredgecolor=CRIMSON, zorder=6)
     ax.plot(*end.T, "D", markersize=7, color=CRIMSON, markeredgecolor=INK, zorder=6)
+    if view_box is not None:
+        view = FlockInset(fig, ax, scenario, view_box)
+        view.show(True)
+        view.update(final_pos, final_vel, end, drone_segments, drone_colours)
     handles = [
         patches.Patch(
             facecolor=to_rgba(AMBER, ZONE_FILL_ALPHA), edgecolor=AMBER, label="protected"
@@ -660,7 +705,12 @@ def episode_still(
         ax.plot([], [], "o", color=CHARCOAL, markersize=4, label="final flock")[0],
         ax.plot([], [], "-D", color=CRIMSON, markersize=5, label="drone")[0],
     ]
-    ax.legend(handles=handles, loc="lower right", fontsize=8, framealpha=0.85)
+    ax.legend(
+        handles=handles,
+        loc="lower right" if view_box is None else "lower left",
+        fontsize=8,
+        framealpha=0.85,
+    )
     outcome = str(last.get("outcome", ""))
     heading = " | ".join(
         part
@@ -721,27 +771,36 @@ def blend_palette() -> np.ndarray:
     return colours[:256]
 
 
+def episode_inset(inset: str, flocks: Sequence[np.ndarray], map_width: float) -> str:
+    """The inset mode for a whole episode whose frames hold the (n, 2) bird positions ``flocks``,
+    drawn on a map ``map_width`` m wide: "auto" becomes "on" when the flock's median span over
+    the frames with birds is at most INSET_AUTO_SHARE of the map's width (``wants_inset``), else
+    "off"; "on" and "off" stay as they are. Deciding once keeps an animation's inset from
+    blinking on and off, and gives a still the same rule."""
+    wants_inset(inset, 0.0, 1.0)
+    if inset != "auto":
+        return inset
+    spans = [flock_span(pos) for pos in flocks if len(pos)]
+    if not spans:
+        return "off"
+    return "on" if wants_inset("auto", float(np.median(spans)), map_width) else "off"
+
+
 def animation_inset(
     scenario: Scenario,
     frames: Sequence[Mapping[str, Any]],
     size_px: tuple[int, int],
     inset: str,
 ) -> tuple[str, np.ndarray]:
-    """The inset mode for a whole animation and the flock's (T', 2) centres in the frames with
-    birds. "auto" becomes "on" when the flock's median span over the frames is at most
-    INSET_AUTO_SHARE of the map's width, else "off"; "on" and "off" stay as they are."""
+    """The inset mode for a whole animation (``episode_inset`` on the animation's map) and the
+    flock's (T', 2) centres in the frames with birds."""
     wants_inset(inset, 0.0, 1.0)
     flocks = [np.asarray(f["bird_pos"], dtype=np.float64).reshape(-1, 2) for f in frames]
     flocks = [pos for pos in flocks if len(pos)]
     centres = np.array([(pos.min(axis=0) + pos.max(axis=0)) / 2.0 for pos in flocks])
     centres = centres.reshape(-1, 2)
-    if inset != "auto":
-        return inset, centres
-    if not flocks:
-        return "off", centres
     x0, x1, _, _ = fit_aspect(site_extent(scenario), size_px[0] / size_px[1])
-    span = float(np.median([flock_span(pos) for pos in flocks]))
-    return ("on" if wants_inset("auto", span, x1 - x0) else "off"), centres
+    return episode_inset(inset, flocks, x1 - x0), centres
 
 
 def episode_animation(
