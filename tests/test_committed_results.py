@@ -1,9 +1,11 @@
-"""Committed standard- and field-suite results replay episode for episode (a regression test).
+"""Committed standard-, field- and ladder-suite results replay episode for episode (a regression
+test).
 
 Refactors that change no behaviour must leave every committed episode bit for bit the same; this
-replays a sample of them (the first seed of every family of every committed standard file, and
-of the field suite's all-at-once family, through the ``flockward audit`` machinery) and compares
-each record field exactly. The expensive variant replays every episode of every file.
+replays a sample of them (the first seed of every family of every committed standard file, of
+the field suite's all-at-once family and of two ladder families, through the ``flockward audit``
+machinery) and compares each record field exactly. The expensive variant replays every episode
+of every file.
 """
 
 from __future__ import annotations
@@ -20,16 +22,23 @@ from flockward.bench.suites import load_suite
 from flockward_baselines.replay import factory_from_results
 
 ROOT = Path(__file__).resolve().parents[1]
-RESULT_FILES = sorted((ROOT / "results" / "standard").glob("*.json")) + sorted(
-    (ROOT / "results" / "field").glob("*.json")
-)
-# The field suite's families sampled by the quick test: two drones, wind and radar at once.
-FIELD_SAMPLE = ("two-drones-windy-radar",)
+RESULT_FILES = [
+    path
+    for suite in ("standard", "field", "ladder")
+    for path in sorted((ROOT / "results" / suite).glob("*.json"))
+]
+# Families sampled by the quick test where a suite is not sampled whole: the field suite's two
+# drones, wind and radar at once; the ladder's first rung and its noisy, randomised one.
+SAMPLE = {
+    "field": ("two-drones-windy-radar",),
+    "ladder": ("t1-graze", "t4-oblique-noisy"),
+}
 MODELS = ROOT / "results" / "models"
 
 
 def _factory(data: dict[str, Any]) -> Any:
-    return factory_from_results(data, MODELS)
+    # The ladder's models were trained on it and are kept apart from the standard references.
+    return factory_from_results(data, MODELS / "ladder" if data["suite"] == "ladder" else MODELS)
 
 
 @pytest.mark.parametrize("path", RESULT_FILES, ids=lambda p: p.stem)
@@ -37,7 +46,7 @@ def test_first_episode_of_every_family_replays_bit_for_bit(path: Path) -> None:
     data = json.loads(path.read_text(encoding="utf-8"))
     first: dict[str, int] = {}
     for spec in load_suite(data["suite"]).episodes():
-        if data["suite"] != "field" or spec.family in FIELD_SAMPLE:
+        if data["suite"] not in SAMPLE or spec.family in SAMPLE[data["suite"]]:
             first.setdefault(spec.family, spec.index)
     report = audit_results(path, _factory(data), indices=list(first.values()))
     assert len(report.audited) == len(first) >= 1
