@@ -18,6 +18,7 @@ from flockward.sim.dynamics import (
     BUMP_PLATEAU,
     SEPARATION_FLOOR,
     THREADED_MIN_BIRDS,
+    candidate_counts,
     flock_acceleration,
     flock_context,
     neighbour_radii,
@@ -45,9 +46,9 @@ def _flock_state(n: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
 NO_DRONE = np.zeros((0, 2))
 
 
-def _kernel(flock: FlockParams, x, v, grid: bool, drones=NO_DRONE) -> np.ndarray:
+def _kernel(flock: FlockParams, x, v, grid: bool, drones=NO_DRONE, dtype=np.float64) -> np.ndarray:
     ctx = flock_context(flock.kernel_vector(), np.array([300.0, -40.0]), drones,
-                        np.zeros_like(drones), len(x), grid)  # fmt: skip
+                        np.zeros_like(drones), len(x), grid, dtype)  # fmt: skip
     out = np.zeros_like(x)
     flock_acceleration(x, v, len(x), ctx, out)
     return out
@@ -102,6 +103,45 @@ def test_pair_sums_match_the_published_laws_in_numpy(model: str, grid: bool) -> 
     want = _numpy_reference(flock, x, v)
     scale = np.abs(want).max()
     np.testing.assert_allclose(got, want, rtol=0, atol=1e-12 * scale)
+
+
+@pytest.mark.parametrize("model", MODELS)
+@pytest.mark.parametrize("grid", [False, True])
+def test_float32_pair_sums_match_the_published_laws_to_single_precision(
+    model: str, grid: bool
+) -> None:
+    # The float32 specialisation (StepWork's slot_dtype, a measurement): the same laws, with
+    # single-precision rounding. The flock sits 600 m from the origin, as on the demo site; the
+    # slots hold positions relative to one bird, so that costs nothing. Expected error, from the
+    # float32 unit roundoff u = 6e-8: a pair offset of a flock 50 m wide is off by about 50 u =
+    # 3e-6 m, which at the separation floor (0.1 m, force ~ 1/d^3) is 1e-4 of the largest term;
+    # the sums of about 300 terms add sqrt(300) u. Hence 1e-4 of the largest acceleration.
+    flock = derived(OFF, separation_gain=8.0, alignment_gain=2.0, cohesion_gain=0.3,
+                    **MODELS[model])  # fmt: skip
+    x, v = _flock_state(300, seed=3)
+    x += np.array([-600.0, 40.0])
+    got = _kernel(flock, x, v, grid, dtype=np.float32)
+    want = _numpy_reference(flock, x, v)
+    scale = np.abs(want).max()
+    np.testing.assert_allclose(got, want, rtol=0, atol=1e-4 * scale)
+    # ... and not float64 in disguise: it differs from the float64 kernel by far more than the
+    # 1e-12 of the float64 comparisons above.
+    assert np.abs(got - _kernel(flock, x, v, grid)).max() > 1e-9 * scale
+
+
+def test_candidate_counts_are_the_birds_in_each_birds_three_by_three_cells() -> None:
+    # The cell-list definition (common practice): with cells as wide as the cut-off, a bird's
+    # candidates are the birds whose cell differs from its own by at most one in each axis.
+    flock = FlockParams()
+    x, _ = _flock_state(500, seed=9)
+    cut = flock.interaction_radius
+    cells = np.floor(x / cut).astype(np.int64)
+    near = (np.abs(cells[:, None, :] - cells[None, :, :]) <= 1).all(axis=2)
+    for grid, want in ((True, near.sum(axis=1)), (False, np.full(len(x), len(x)))):
+        ctx = flock_context(flock.kernel_vector(), np.array(FAR), NO_DRONE, NO_DRONE, len(x), grid)
+        got = np.zeros(len(x), dtype=np.int64)
+        candidate_counts(x, len(x), ctx, got)
+        np.testing.assert_array_equal(got, want)
 
 
 @pytest.mark.parametrize("model", MODELS)
@@ -191,8 +231,15 @@ def test_pair_loop_compiles_to_packed_vector_instructions() -> None:
 
     fresh = numba.njit(fastmath=dynamics._FAST, error_model="numpy")(dynamics._flock_slots.py_func)
     x, v = _flock_state(40, seed=1)
-    ctx = flock_context(FlockParams().kernel_vector(), np.array(FAR), NO_DRONE, NO_DRONE, 40)
-    runs = dynamics._sort_into_slots(x, v, 40, 25.0, False, ctx[5], ctx[6])
-    fresh(0, 40, 40, ctx, runs, np.empty(16), np.zeros_like(x))
-    asm = "".join(fresh.inspect_asm(sig) for sig in fresh.signatures)
-    assert "sqrtpd" in asm  # packed square roots (x86: SSE2 xmm or AVX ymm/zmm)
+    asm = {}
+    for dtype in (np.float64, np.float32):
+        ctx = flock_context(FlockParams().kernel_vector(), np.array(FAR), NO_DRONE, NO_DRONE, 40,
+                            False, dtype)  # fmt: skip
+        runs = dynamics._sort_into_slots(x, v, 40, 25.0, False, ctx[5], ctx[6])
+        fresh(0, 40, x, v, 40, ctx, runs, np.empty(16), np.zeros_like(x))
+        asm[dtype] = fresh.inspect_asm(fresh.signatures[-1])
+    assert "sqrtpd" in asm[np.float64]  # packed square roots (x86: SSE2 xmm or AVX ymm/zmm)
+    # The float32 specialisation's loop is packed single precision, with no packed double left:
+    # a float64 literal in the loop would promote it to float64 (numba types literals float64).
+    assert "sqrtps" in asm[np.float32]
+    assert "sqrtpd" not in asm[np.float32]

@@ -35,6 +35,8 @@ FLOPS_PER_BIRD = 70
 
 SIM_SIZES = ((1, 50), (64, 50), (16, 300), (1, 2000))
 SCALING_SIZES = (250, 500, 1000, 2000)  # birds in one murmuration world
+# Larger headon flocks the grid's exponent is also fitted on (from N = 1000), in the same turns.
+GRID_LARGER_SIZES = (3500, 5000)
 SCALING_WARMUP = 5  # steps before timing, so the flock has left its initial formation
 BENCH_THREADS = 2  # the thread count the scaling figure compares with one thread
 # Control steps per policy decision for the per-decision figures: the environment's default.
@@ -137,6 +139,32 @@ def kernel_comparison(
     return {"today": t["today"] / steps, "scalar": t["scalar"] / steps}
 
 
+def precision_comparison(
+    worlds: int, birds: int, steps: int, repeats: int = 5, seconds: float = 0.3
+) -> dict[str, float]:
+    """Seconds per control step with the pair sums in float64 (the shipped kernel) and in
+    float32 (the same kernel specialised on float32 slots, ``StepWork``), from the same state,
+    timed in turns. A measurement only: the environments always run float64 (DEVELOPERS.md says
+    why)."""
+    from flockward.sim.dynamics import StepWork
+
+    runs: dict[str, Callable[[], object]] = {}
+    for name, dtype in (("float64", np.float64), ("float32", np.float32)):
+        world = _world(worlds, birds)
+        world._work = StepWork(worlds, world.max_birds, slot_dtype=dtype)
+        start = world.state.copy()
+        action = np.zeros((worlds, world.n_drones, 2))
+
+        def run(world: World = world, start: WorldState = start, action: Any = action) -> None:
+            _restore(world, start)
+            for _ in range(steps):
+                world.step(action)
+
+        runs[name] = run
+    t = _timed_together(runs, repeats, seconds)
+    return {k: v / steps for k, v in t.items()}
+
+
 def thread_scaling(
     worlds: int, birds: int, steps: int, threads: int = 2, repeats: int = 5, seconds: float = 0.3
 ) -> dict[int, float]:
@@ -196,17 +224,32 @@ def per_decision_rate(world_steps_per_s: float, control_steps_per_decision: int 
 
 
 def grid_exponent(
-    sizes: tuple[int, ...] = SCALING_SIZES, repeats: int = 5, seconds: float = 0.2
+    sizes: tuple[int, ...] = SCALING_SIZES,
+    larger: tuple[int, ...] = GRID_LARGER_SIZES,
+    repeats: int = 5,
+    seconds: float = 0.2,
 ) -> dict[str, Any]:
     """Seconds per step with the grid forced for the headon flock (a disc at 3 m spacing whose
     separation holds) and the fitted exponent over ``sizes``; also the mean number of birds within
     the interaction cut-off per bird (it still grows while the disc is not much wider than the
-    cut-off: edge birds have fewer) and the exponent against the number of neighbour pairs."""
+    cut-off: edge birds have fewer) and the exponent against the number of neighbour pairs; and
+    the mean number of candidates the pair loop scans per bird (its 3 x 3 cells, itself included)
+    with the exponent against their total, which is what the pair loop's cost follows.
+
+    The exponent is also fitted in every repeat (all sizes take turns within a repeat), and its
+    range over the repeats is reported beside the fit of the medians: on a shared machine it
+    spreads by several hundredths. The ``larger`` sizes, timed in the same turns, give the
+    exponent from N = 1000 on, where the disc is many cells wide; the fit over ``sizes`` is
+    unchanged by them."""
     from scipy.spatial import cKDTree
+
+    from flockward.sim.dynamics import candidate_counts, flock_context
 
     runs: dict[str, Callable[[], object]] = {}
     neighbours = []
-    for birds in sizes:
+    candidates = []
+    every = (*sizes, *larger)
+    for birds in every:
         world = _world(1, birds, "grid")
         for _ in range(SCALING_WARMUP):
             world.step(np.zeros((1, world.n_drones, 2)))
@@ -214,6 +257,12 @@ def grid_exponent(
         tree = cKDTree(start.bird_pos[0, :birds])
         pairs = tree.query_pairs(world.scenario.flock.interaction_radius, output_type="ndarray")
         neighbours.append(2 * len(pairs) / birds)
+        x = np.ascontiguousarray(start.bird_pos[0, :birds])
+        ctx = flock_context(world.params[0], world.destination[0], start.pursuer_pos[0],
+                            start.pursuer_vel[0], birds, use_grid=True)  # fmt: skip
+        scanned = np.zeros(birds, dtype=np.int64)
+        candidate_counts(x, birds, ctx, scanned)
+        candidates.append(float(scanned.mean()))
         action = np.zeros((1, world.n_drones, 2))
 
         def run(world: World = world, start: WorldState = start, action: Any = action) -> None:
@@ -221,15 +270,32 @@ def grid_exponent(
             world.step(action)
 
         runs[str(birds)] = run
-    t = _timed_together(runs, repeats, seconds)
-    times = [t[str(birds)] for birds in sizes]
-    pair_counts = [birds * k for birds, k in zip(sizes, neighbours, strict=True)]
+    turns = _timed_turns(runs, repeats, seconds)
+    all_times = [statistics.median(turns[str(birds)]) for birds in every]
+    k = len(sizes)
+    times = all_times[:k]
+    pair_counts = [birds * n for birds, n in zip(every, neighbours, strict=True)]
+    scanned_counts = [birds * c for birds, c in zip(every, candidates, strict=True)]
+    per_repeat = [
+        _slope(list(sizes), [turns[str(birds)][r] for birds in sizes]) for r in range(repeats)
+    ]
+    upper = [(birds, t) for birds, t in zip(every, all_times, strict=True) if birds >= 1000]
     return {
         "N": list(sizes),
         "seconds": times,
         "exponent": _slope(list(sizes), times),
-        "neighbours": neighbours,
-        "exponent per pair": _slope(pair_counts, times),
+        "exponent per repeat": (min(per_repeat), max(per_repeat)),
+        "neighbours": neighbours[:k],
+        "exponent per pair": _slope(pair_counts[:k], times),
+        "candidates": candidates[:k],
+        "exponent per candidate": _slope(scanned_counts[:k], times),
+        "pairs exponent": _slope(list(sizes), pair_counts[:k]),
+        "larger N": list(larger),
+        "larger seconds": all_times[k:],
+        "larger neighbours": neighbours[k:],
+        "larger candidates": candidates[k:],
+        "exponent from 1000": _slope([b for b, _ in upper], [t for _, t in upper]),
+        "sizes from 1000": [b for b, _ in upper],
     }
 
 
@@ -415,6 +481,14 @@ def _timed_together(
 ) -> dict[str, float]:
     """Median wall seconds of one call of each run. The runs take turns within every repeat, so
     a change in the machine's load hits all of them alike; a turn lasts about ``seconds``."""
+    return {name: statistics.median(t) for name, t in _timed_turns(runs, repeats, seconds).items()}
+
+
+def _timed_turns(
+    runs: dict[str, Callable[[], object]], repeats: int, seconds: float
+) -> dict[str, list[float]]:
+    """Wall seconds of one call of each run in every repeat (``_timed_together`` without the
+    median, for figures fitted per repeat)."""
     calls = {}
     for name, run in runs.items():
         run()  # warm-up: compilation, caches
@@ -428,7 +502,7 @@ def _timed_together(
             for _ in range(calls[name]):
                 run()
             times[name].append((time.perf_counter() - start) / calls[name])
-    return {name: statistics.median(t) for name, t in times.items()}
+    return times
 
 
 def _scaling_runs(birds: int) -> tuple[dict[str, Callable[[], object]], bool]:
@@ -589,6 +663,19 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
             f"   scalar {t['scalar'] * 1e3:7.3f}   speed-up x{t['scalar'] / t['today']:.2f}"
         )
     results["versus_scalar"] = versus
+    emit(
+        "  pair sums in float32 against float64, same state, in turns (ms/step; not an env option):"
+    )
+    precision: dict[str, dict[str, float]] = {}
+    for worlds, birds in SIM_SIZES[1:]:
+        steps = max(2, int(20_000 / (worlds * birds)))
+        tp = precision_comparison(worlds, birds, steps, repeats, 0.1 if quick else 0.3)
+        precision[f"{worlds}x{birds}"] = tp
+        emit(
+            f"    (B, N) = ({worlds:>2}, {birds:>4}): float64 {tp['float64'] * 1e3:7.3f}"
+            f"   float32 {tp['float32'] * 1e3:7.3f}   speed-up x{tp['float64'] / tp['float32']:.2f}"
+        )
+    results["float32_pair_sums"] = precision
     emit(f"  threads, 1 against {BENCH_THREADS} (numba layer {threading_layer()}), ms/step:")
     threads: dict[str, dict[int, float]] = {}
     for worlds, birds in ((64, 50), (1, 2000)):
@@ -645,11 +732,31 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
         "  grid, headon flock (separation holds), ms per step: "
         + ", ".join(f"N = {n} {t * 1e3:.2f}" for n, t in sizes)
     )
+    low, high = headon["exponent per repeat"]
     emit(
-        f"  grid fitted exponent, headon flock: k = {headon['exponent']:.2f} in N; neighbours"
+        f"  grid fitted exponent, headon flock: k = {headon['exponent']:.2f} in N (fitted per"
+        f" repeat: {low:.2f} to {high:.2f}); neighbours"
         " within the cut-off per bird "
         + ", ".join(f"{k:.0f}" for k in headon["neighbours"])
         + f"; k = {headon['exponent per pair']:.2f} in neighbour pairs"
+    )
+    rows = zip(headon["N"], headon["seconds"], headon["candidates"], strict=True)
+    per_candidate = [t / (n * c) * 1e9 for n, t, c in rows]
+    emit(
+        "  grid, headon flock: candidates scanned per bird (3 x 3 cells of the cut-off) "
+        + ", ".join(f"{c:.0f}" for c in headon["candidates"])
+        + f"; k = {headon['exponent per candidate']:.2f} in candidates; ns per candidate per step "
+        + ", ".join(f"{c:.1f}" for c in per_candidate)
+        + f"; neighbour pairs grow as N^{headon['pairs exponent']:.2f}"
+    )
+    larger = zip(
+        headon["larger N"], headon["larger seconds"], headon["larger candidates"], strict=True
+    )
+    emit(
+        "  grid, headon flock, larger: "
+        + ", ".join(f"N = {n} {t * 1e3:.2f} ms ({c:.0f} candidates per bird)" for n, t, c in larger)
+        + f"; k = {headon['exponent from 1000']:.2f} in N over N = "
+        + ", ".join(str(n) for n in headon["sizes from 1000"])
     )
     results["grid_headon"] = headon
     split = step_split(seconds=0.1 if quick else 0.3, repeats=repeats)

@@ -92,6 +92,12 @@ then taken in another order than one pair after the other: results agree with th
 about 1e-15 relative per force evaluation, not bit for bit, and diverge over an episode as
 chaotic dynamics do; they are the same on every run, in single and vector envs.
 
+Precision: float64 throughout. The pair sums can be compiled for float32 slots as well (the same
+functions specialised by numba on float32 arrays, every literal typed by ``jit.like``; state, each
+bird's own terms and the integration stay float64), which `flockward bench` times and
+scripts/float32_check.py compares over whole episodes; no environment uses it (DEVELOPERS.md,
+"Precision", says why).
+
 Threads (opt-in, ``threads`` of ``step_worlds``): worlds are split over numba's threads, or, with
 fewer worlds than threads, one large world's birds in blocks of ``BIRD_BLOCK``. Every world has
 its own work space and every bird's sums are the same code on the same slots, so the result is
@@ -113,6 +119,8 @@ from flockward.sim.jit import (
     compiled_kernel,
     compiled_parallel,
     compiled_uncached,
+    is_single,
+    like,
 )
 from flockward.sim.types import MAX_NEIGHBOURS, K
 
@@ -383,7 +391,11 @@ def _sort_into_slots(
     """Copy the birds into visiting order as struct-of-arrays ``soa`` (4, N): x, y, vx, vy per
     slot, with ``index`` (2, N) = sorted cell keys and the bird in each slot. On the grid the slots
     go by cell key, so each column of a bird's 3 x 3 cells is one contiguous run of slots; with
-    all pairs by index, one run of all birds. Returns the number of runs per bird (3 or 1)."""
+    all pairs by index, one run of all birds. Returns the number of runs per bird (3 or 1).
+
+    Float32 slots (the single-precision measurement, see ``StepWork``) hold positions relative to
+    the first slot's bird, so that their rounding is that of the flock's extent, not of the
+    site's; float64 slots hold the positions as they are (the origin is 0.0 and x - 0.0 is x)."""
     keys = index[0]
     order = index[1]
     if use_grid:
@@ -393,10 +405,14 @@ def _sort_into_slots(
     else:
         for i in range(n):
             order[i] = i
+    ox = oy = 0.0
+    if is_single(soa) and n > 0:
+        ox = x[order[0], 0]
+        oy = x[order[0], 1]
     for a in range(n):
         i = order[a]
-        soa[0, a] = x[i, 0]
-        soa[1, a] = x[i, 1]
+        soa[0, a] = x[i, 0] - ox
+        soa[1, a] = x[i, 1] - oy
         soa[2, a] = v[i, 0]
         soa[3, a] = v[i, 1]
     return 3 if use_grid else 1
@@ -464,11 +480,14 @@ def _topological_radius(dk2: float, limit2: float, reach: float, r_coh: float) -
 @compiled_inline
 def _ramp(z: float, h: float, inv_width: float) -> float:
     """``bump(z, h)`` without branches (``inv_width`` = 1 / (1 - h)): t clipped to [0, 1] by
-    selects, so for z < h it is exactly 1 and for z >= 1 exactly 0, as ``bump``."""
+    selects, so for z < h it is exactly 1 and for z >= 1 exactly 0, as ``bump``. Computed in
+    the floating type of ``z`` (``like``)."""
+    zero = like(0.0, z)
+    one = like(1.0, z)
     t = (z - h) * inv_width
-    t = t if t > 0.0 else 0.0
-    t = t if t < 1.0 else 1.0
-    return 1.0 - t * t * (3.0 - 2.0 * t)
+    t = t if t > zero else zero
+    t = t if t < one else one
+    return one - t * t * (like(3.0, z) - like(2.0, z) * t)
 
 
 @compiled_inline
@@ -500,25 +519,29 @@ def _pair_sums(
     in the run: its offset and velocity difference are 0, so it adds only its weight 1 to aw and
     cw, which is the 1 of the local normalisation 1 + sum_j w_ij (the caller does not add it).
     Distances are floored before every division (d_floor, _TINY), so no inf or NaN arises from
-    finite positions.
+    finite positions. Computed in the slots' floating type: the scalars come in that type and
+    every literal goes through ``like``, so float32 slots give a float32 loop.
     """
-    inv_rsep = 1.0 / r_sep
-    sx = sy = alx = aly = aw = cx = cy = cw = 0.0
+    zero = like(0.0, xi)
+    one = like(1.0, xi)
+    tiny = like(_TINY, xi)
+    inv_rsep = one / r_sep
+    sx = sy = alx = aly = aw = cx = cy = cw = zero
     for s in range(px.shape[0]):
         dx = px[s] - xi
         dy = py[s] - yi
         d2 = dx * dx + dy * dy
         d = math.sqrt(d2)
         dc = d if d > d_floor else d_floor
-        de = d if d > _TINY else _TINY
+        de = d if d > tiny else tiny
         # k_sep (r_sep/dc - 1)^2 ramp / d with one division: (r_sep - dc)^2 / (dc^2 d).
         q = r_sep - dc
-        f = k_sep * q * q * _ramp(d * inv_rsep, 0.0, 1.0) / (dc * dc * de)
+        f = k_sep * q * q * _ramp(d * inv_rsep, zero, one) / (dc * dc * de)
         sx -= f * dx
         sy -= f * dy
         w = _ramp(d * inv_ra, plateau, inv_width)
         if cucker_smale:
-            w *= math.pow(1.0 + d2 * inv_sig2, -beta)
+            w *= math.pow(one + d2 * inv_sig2, -beta)
         alx += w * (pvx[s] - vxi)
         aly += w * (pvy[s] - vyi)
         aw += w
@@ -531,11 +554,21 @@ def _pair_sums(
 
 @compiled_kernel(_FAST)
 def _flock_slots(
-    lo: int, hi: int, n: int, ctx: ForceContext, runs: int, nearest: np.ndarray, out: np.ndarray
+    lo: int,
+    hi: int,
+    x: np.ndarray,
+    v: np.ndarray,
+    n: int,
+    ctx: ForceContext,
+    runs: int,
+    nearest: np.ndarray,
+    out: np.ndarray,
 ) -> None:
     """The acceleration of the birds in slots [lo, hi) into ``out`` (by bird index); the slots
-    were filled by ``_sort_into_slots``. Compiled once and called by both the serial and the
-    threaded force (not inlined), so both run the same machine code: the same sums bit for bit."""
+    were filled by ``_sort_into_slots`` from ``x`` and ``v``. Compiled once and called by both the
+    serial and the threaded force (not inlined), so both run the same machine code: the same sums
+    bit for bit. The pair sums run in the slots' floating type; each bird's own terms (speed,
+    destination, fear) read its float64 state, which float64 slots hold unchanged."""
     prm, destination, drones, drone_vel, use_grid, index, soa = ctx
     keys = index[0]
     order = index[1]
@@ -564,6 +597,12 @@ def _flock_slots(
     k_top = int(prm[_C_TOPK])
     reach = prm[_C_TOPC]
     limit2 = (r_coh / reach) * (r_coh / reach)
+    # The pair sums' scalars in the slots' floating type (unchanged for float64 slots).
+    s_rsep = like(r_sep, soa[0, 0])
+    s_ksep = like(k_sep, soa[0, 0])
+    s_floor = like(d_floor, soa[0, 0])
+    s_sig2 = like(inv_sig2, soa[0, 0])
+    s_beta = like(beta, soa[0, 0])
     for a in range(lo, hi):
         i = order[a]
         xi = soa[0, a]
@@ -588,17 +627,19 @@ def _flock_slots(
             pvx = soa[2, start:stop]
             pvy = soa[3, start:stop]
             # Two call sites with a constant model flag: the Motsch-Tadmor loop has no pow call.
-            inv_ra = 1.0 / r_a
-            inv_rc = 1.0 / r_c
+            inv_ra = like(1.0 / r_a, xi)
+            inv_rc = like(1.0 / r_c, xi)
+            s_plateau = like(plateau, xi)
+            s_width = like(inv_width, xi)
             if cucker_smale:
                 sums = _pair_sums(
-                    px, py, pvx, pvy, xi, yi, vxi, vyi, r_sep, k_sep, d_floor,
-                    inv_ra, inv_rc, plateau, inv_width, True, inv_sig2, beta,
+                    px, py, pvx, pvy, xi, yi, vxi, vyi, s_rsep, s_ksep, s_floor,
+                    inv_ra, inv_rc, s_plateau, s_width, True, s_sig2, s_beta,
                 )  # fmt: skip
             else:
                 sums = _pair_sums(
-                    px, py, pvx, pvy, xi, yi, vxi, vyi, r_sep, k_sep, d_floor,
-                    inv_ra, inv_rc, plateau, inv_width, False, inv_sig2, beta,
+                    px, py, pvx, pvy, xi, yi, vxi, vyi, s_rsep, s_ksep, s_floor,
+                    inv_ra, inv_rc, s_plateau, s_width, False, s_sig2, s_beta,
                 )  # fmt: skip
             sx += sums[0]
             sy += sums[1]
@@ -617,10 +658,12 @@ def _flock_slots(
         aly *= scale
         cx *= k_coh / cw
         cy *= k_coh / cw
-        speed, ux, uy = _heading(vxi, vyi)
-        tx, ty = _destination_request(i, informed, destination, xi, yi, ux, uy, k_dst, cruise)
+        # The bird's own terms from its float64 state (the slots' values, for float64 slots).
+        bx, by, bvx, bvy = x[i, 0], x[i, 1], v[i, 0], v[i, 1]
+        speed, ux, uy = _heading(bvx, bvy)
+        tx, ty = _destination_request(i, informed, destination, bx, by, ux, uy, k_dst, cruise)
         fx, fy, ox, oy, fear = _fear_requests(
-            xi, yi, vxi, vyi, drones, drone_vel, r_alarm, r_dodge, a_flee, a_dodge, relative,
+            bx, by, bvx, bvy, drones, drone_vel, r_alarm, r_dodge, a_flee, a_dodge, relative,
             cruise, burst, power_limited,
         )  # fmt: skip
         ax, ay = _allocate(sx, sy, ox, oy, fx, fy, alx, aly, cx, cy, tx, ty, a_max)
@@ -652,6 +695,22 @@ def neighbour_radii(x: np.ndarray, n: int, ctx: ForceContext, out: np.ndarray) -
         out[i, 0] = out[i, 1] = _topological_radius(dk2, limit * limit, reach, r_coh)
 
 
+@compiled
+def candidate_counts(x: np.ndarray, n: int, ctx: ForceContext, out: np.ndarray) -> None:
+    """Every bird's number of candidate slots (N,) into ``out``: the slots its pair sums scan,
+    itself included (all N with all pairs; its 3 x 3 cells on the grid). For measurements: the
+    pair loop's cost is about proportional to the total."""
+    prm, _, _, _, use_grid, index, soa = ctx
+    cut = max(prm[_C_RSEP], prm[_C_RALI], prm[_C_RCOH])
+    runs = _sort_into_slots(x, x, n, cut, use_grid, index, soa)
+    for a in range(n):
+        total = 0
+        for r in range(runs):
+            start, stop = _slot_run(use_grid, index[0], a, r, n)
+            total += stop - start
+        out[index[1, a]] = total
+
+
 @compiled_inline
 def _heading(vx: float, vy: float) -> tuple[float, float, float]:
     """Speed and unit velocity; a bird at rest heads east (any fixed choice keeps it defined)."""
@@ -673,7 +732,7 @@ def flock_acceleration(
     prm = ctx[0]
     cut = max(prm[_C_RSEP], prm[_C_RALI], prm[_C_RCOH])
     runs = _sort_into_slots(x, v, n, cut, ctx[4], ctx[5], ctx[6])
-    _flock_slots(0, n, n, ctx, runs, np.empty(MAX_NEIGHBOURS), out)
+    _flock_slots(0, n, x, v, n, ctx, runs, np.empty(MAX_NEIGHBOURS), out)
 
 
 @compiled_parallel(_FAST)
@@ -688,7 +747,8 @@ def flock_acceleration_threaded(
     runs = _sort_into_slots(x, v, n, cut, ctx[4], ctx[5], ctx[6])
     for block in numba.prange((n + BIRD_BLOCK - 1) // BIRD_BLOCK):
         lo = block * BIRD_BLOCK
-        _flock_slots(lo, min(lo + BIRD_BLOCK, n), n, ctx, runs, np.empty(MAX_NEIGHBOURS), out)
+        hi = min(lo + BIRD_BLOCK, n)
+        _flock_slots(lo, hi, x, v, n, ctx, runs, np.empty(MAX_NEIGHBOURS), out)
 
 
 # One substep of the integrator for a given force function: x, v, a, v_pred, n, h, ctx, wx, wy.
@@ -1003,10 +1063,12 @@ class StepWork:
     """Work space of ``step_worlds`` for B worlds of up to N birds, one set per world so that
     worlds can run on different threads."""
 
-    def __init__(self, worlds: int, birds: int):
+    def __init__(self, worlds: int, birds: int, slot_dtype: type = np.float64):
         m = max(birds, 1)
         self.vectors = np.zeros((worlds, 2, m, 2))  # accelerations, predicted velocities
-        self.slots = np.zeros((worlds, 4, m))  # x, y, vx, vy in visiting order
+        # x, y, vx, vy in visiting order; float32 slots (a measurement, not an env setting) run
+        # the pair sums in single precision, the state and every per-bird term stay float64
+        self.slots: np.ndarray = np.zeros((worlds, 4, m), dtype=slot_dtype)
         self.index = np.zeros((worlds, 2, m), dtype=np.int64)  # cell keys, bird per slot
 
 
@@ -1086,8 +1148,10 @@ def flock_context(
     drone_vel: np.ndarray,
     birds: int,
     use_grid: bool = False,
+    slot_dtype: type = np.float64,
 ) -> ForceContext:
-    """The ``ctx`` tuple ``flock_acceleration`` reads for one world, with fresh work space."""
+    """The ``ctx`` tuple ``flock_acceleration`` reads for one world, with fresh work space
+    (``slot_dtype``: the floating type of the pair sums, see ``StepWork``)."""
     m = max(birds, 1)
     return (
         np.ascontiguousarray(params, dtype=np.float64),
@@ -1096,7 +1160,7 @@ def flock_context(
         np.ascontiguousarray(drone_vel, dtype=np.float64).reshape(-1, 2),
         bool(use_grid),
         np.zeros((2, m), dtype=np.int64),
-        np.zeros((4, m)),
+        np.zeros((4, m), dtype=slot_dtype),
     )
 
 

@@ -11,6 +11,10 @@ loop with an early exit. Its fast-math flags are listed, with the reasons, besid
 ``flockward.sim.dynamics``: reassociation, contraction, no signed zeros, reciprocals; never
 nnan/ninf (no assumption that values are finite) or afn.
 
+``like`` gives a literal the floating type of a value beside it, so that a function numba
+specialises on float32 arrays computes in float32 (a bare Python float is float64 to numba and
+promotes everything it touches); beside float64 it is the literal itself, the same machine code.
+
 Parallel code (``compiled_parallel``) runs on numba's workqueue threading layer unless
 NUMBA_THREADING_LAYER names another: measured on 2 cores with another process busy, numba's
 OpenMP layer ran 2 threads 2.7 to 3 times slower than one (its threads spin while waiting), the
@@ -21,10 +25,12 @@ from __future__ import annotations
 
 import os
 from collections.abc import Callable
-from typing import ParamSpec, TypeVar, cast
+from typing import Any, ParamSpec, TypeVar, cast
 
 import numba
 import numpy as np
+from numba.core import types
+from numba.extending import overload
 
 # numba's threading layer for parallel code, unless NUMBA_THREADING_LAYER says otherwise: chosen
 # by measurement with another process holding a core (see `flockward bench` and the speed notes).
@@ -93,3 +99,42 @@ def _touch_threads(out: np.ndarray) -> None:
 def start_threads() -> None:
     """Start numba's thread pool (a tiny parallel loop), so its threading layer can be read."""
     _touch_threads(np.zeros(4))
+
+
+def like(value: float, x: float) -> float:
+    """``value`` in the floating type of ``x``: a float64 literal stays float64 beside a float64
+    ``x`` (the same constant, the same machine code) and becomes float32 beside a float32 one,
+    so a kernel specialised on float32 arrays does not silently compute in float64 (numba types
+    every Python float literal as float64, and float32 op float64 gives float64)."""
+    return value
+
+
+@overload(like, inline="always")
+def _like(value: Any, x: Any) -> Callable[[Any, Any], Any]:
+    # numba compares the typing and implementation signatures, annotations included: both say Any.
+    if isinstance(x, types.Float) and x.bitwidth == 32:
+
+        def single(value: Any, x: Any) -> Any:
+            return np.float32(value)
+
+        return single
+
+    def unchanged(value: Any, x: Any) -> Any:
+        return value
+
+    return unchanged
+
+
+def is_single(a: np.ndarray) -> bool:
+    """Whether array ``a`` holds float32 (a constant where compiled: the branch is removed)."""
+    return bool(a.dtype == np.float32)
+
+
+@overload(is_single, inline="always")
+def _is_single(a: Any) -> Callable[[Any], Any]:
+    flag = isinstance(a, types.Array) and a.dtype == types.float32
+
+    def constant(a: Any) -> Any:
+        return flag
+
+    return constant
