@@ -633,6 +633,28 @@ def to_json(results: dict[str, object]) -> str:
     return json.dumps(plain(results), indent=1)
 
 
+def _paired_rows(
+    emit: Callable[[str], None],
+    compare: Callable[..., dict[str, float]],
+    names: tuple[str, str],
+    repeats: int,
+    quick: bool,
+) -> dict[str, dict[str, float]]:
+    """Time two kernels in turns at each size past the first, one line each (ms per step and
+    the first's speed-up over the second, ``names`` = (first, second))."""
+    first, second = names
+    rows: dict[str, dict[str, float]] = {}
+    for worlds, birds in SIM_SIZES[1:]:
+        steps = max(2, int(20_000 / (worlds * birds)))
+        t = compare(worlds, birds, steps, repeats, 0.1 if quick else 0.3)
+        rows[f"{worlds}x{birds}"] = t
+        emit(
+            f"    (B, N) = ({worlds:>2}, {birds:>4}): {first} {t[first] * 1e3:7.3f}"
+            f"   {second} {t[second] * 1e3:7.3f}   speed-up x{t[second] / t[first]:.2f}"
+        )
+    return rows
+
+
 def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[str, object]:
     """Measure and print everything; return the figures (also useful to tests)."""
     repeats = 3 if quick else 5
@@ -653,29 +675,15 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
         grid = simulator_rate(1, birds, 5, repeats, "grid")
         emit(f"  N = {birds}: grid / all-pairs = {grid / pairs:5.2f}x")
     emit("  today's kernel against the scalar kernel it replaced, same state, in turns (ms/step):")
-    versus: dict[str, dict[str, float]] = {}
-    for worlds, birds in SIM_SIZES[1:]:
-        steps = max(2, int(20_000 / (worlds * birds)))
-        t = kernel_comparison(worlds, birds, steps, repeats, 0.1 if quick else 0.3)
-        versus[f"{worlds}x{birds}"] = t
-        emit(
-            f"    (B, N) = ({worlds:>2}, {birds:>4}): today {t['today'] * 1e3:7.3f}"
-            f"   scalar {t['scalar'] * 1e3:7.3f}   speed-up x{t['scalar'] / t['today']:.2f}"
-        )
-    results["versus_scalar"] = versus
+    results["versus_scalar"] = _paired_rows(
+        emit, kernel_comparison, ("today", "scalar"), repeats, quick
+    )
     emit(
         "  pair sums in float32 against float64, same state, in turns (ms/step; not an env option):"
     )
-    precision: dict[str, dict[str, float]] = {}
-    for worlds, birds in SIM_SIZES[1:]:
-        steps = max(2, int(20_000 / (worlds * birds)))
-        tp = precision_comparison(worlds, birds, steps, repeats, 0.1 if quick else 0.3)
-        precision[f"{worlds}x{birds}"] = tp
-        emit(
-            f"    (B, N) = ({worlds:>2}, {birds:>4}): float64 {tp['float64'] * 1e3:7.3f}"
-            f"   float32 {tp['float32'] * 1e3:7.3f}   speed-up x{tp['float64'] / tp['float32']:.2f}"
-        )
-    results["float32_pair_sums"] = precision
+    results["float32_pair_sums"] = _paired_rows(
+        emit, precision_comparison, ("float32", "float64"), repeats, quick
+    )
     emit(f"  threads, 1 against {BENCH_THREADS} (numba layer {threading_layer()}), ms/step:")
     threads: dict[str, dict[int, float]] = {}
     for worlds, birds in ((64, 50), (1, 2000)):

@@ -837,11 +837,11 @@ class _ValidationLog:
 
 def log_tiers(run_dir: Path, env: VecEnv, steps: int) -> None:
     """Append the curriculum's slots per tier at ``steps`` decisions to curriculum.csv (nothing
-    for an env without a curriculum)."""
+    without a curriculum, or in uniform mode, where slots have no tier)."""
     while not hasattr(env, "ladder") and hasattr(env, "venv"):
         env = env.venv  # through SB3's wrappers (VecMonitor)
     ladder = getattr(env, "ladder", None)
-    if ladder is None:
+    if ladder is None or ladder.settings.mode == "uniform":
         return
     path = run_dir / CURRICULUM_FILE
     new = not path.is_file()
