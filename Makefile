@@ -108,8 +108,11 @@ results: $(STAMP)
 	for c in $(BOARD_CONTROLLERS); do \
 		$(BIN)/flockward run --suite ladder --controller $$c --workers 2 || exit 1; \
 	done
-	for m in results/models/ladder/*.zip; do \
+	for m in results/models/ladder/ppo-*.zip; do \
 		$(BIN)/flockward run --suite ladder --model $$m --workers 2 || exit 1; \
+	done
+	for m in results/models/ladder/sac-*.zip; do \
+		$(BIN)/flockward run --suite ladder --model $$m --param algorithm=sac --workers 2 || exit 1; \
 	done
 	$(BIN)/flockward board --suite ladder
 	rm -f results/sweeps/envelope-push-count.json
@@ -141,19 +144,26 @@ headon-curve: $(STAMP)
 		--out results/models/ppo-headon-curve --title "PPO from scratch on headon"
 	$(BIN)/python scripts/readme_tables.py
 
-# PPO from scratch on the ladder suite, with the curriculum (configs/train/ppo-ladder.toml) and
-# without it (ppo-ladder-uniform.toml), seeds 0, 1 and 2 each, one after another (about 10
-# minutes each on 2 cores; runs/ppo-ladder*-s* are replaced); then the two mean learning curves
-# and the tables of when each seed's success over the eleven ladder families first reached 60 %:
-# results/models/ppo-ladder-curve.* and results/models/ppo-ladder-uniform-curve.*.
+# From scratch on the ladder suite: PPO with the curriculum (configs/train/ppo-ladder.toml) and
+# without it (ppo-ladder-uniform.toml), SAC with it (sac-ladder.toml); seeds 0, 1 and 2 each,
+# one after another (10 to 30 minutes each on 2 cores; runs/*-ladder*-s* are replaced). The models
+# (and the curriculum's worlds per tier) are copied to results/models/ladder/; then each config's
+# mean learning curve and the table of when each seed's success over the eleven ladder families
+# first reached 60 % are written: results/models/{ppo-ladder,ppo-ladder-uniform,sac-ladder}-curve.*.
+# `make results` then plays the models on the ladder suite.
 ladder-curve: $(STAMP)
-	for c in ppo-ladder ppo-ladder-uniform; do \
+	mkdir -p results/models/ladder
+	for c in ppo-ladder ppo-ladder-uniform sac-ladder; do \
 		for s in 0 1 2; do \
 			rm -rf runs/$$c-s$$s; \
 			$(BIN)/flockward train --config configs/train/$$c.toml --seed $$s --quiet || exit 1; \
+			cp runs/$$c-s$$s/model.zip results/models/ladder/$$c-s$$s.zip; \
+			if [ -f runs/$$c-s$$s/curriculum.csv ]; then \
+				cp runs/$$c-s$$s/curriculum.csv results/models/ladder/$$c-s$$s-tiers.csv; \
+			fi; \
 		done; \
 		$(BIN)/flockward curves runs/$$c-s0 runs/$$c-s1 runs/$$c-s2 --target 0.6 \
-			--out results/models/$$c-curve --title "PPO from scratch, $$c" || exit 1; \
+			--out results/models/$$c-curve --title "From scratch on the ladder: $$c" || exit 1; \
 	done
 	$(BIN)/python scripts/readme_tables.py
 

@@ -2,7 +2,7 @@
 
 Each README table named in ``SOURCES`` is replaced whole by its committed file's table (the
 standard and field leaderboards, the verification report, the envelope's push bands and approach
-angles, the headon training seeds). A source may keep only the rows of some families (the first
+angles, the headon, standard and ladder training seeds, the ladder leaderboard). A source may keep only the rows of some families (the first
 column), and a README table may be found after a marker comment instead of by its header, where
 one header is used twice. Run by `make results` and `make headon-curve` after regenerating;
 tests/test_readme.py checks that the two agree.
@@ -38,6 +38,30 @@ SOURCES = (
         "| run | success target",
         (),
         "<!-- table: standard references' training -->",
+    ),
+    Source(
+        "results/models/ppo-ladder-curve.md",
+        "| run | success target",
+        (),
+        "<!-- table: ladder curriculum training -->",
+    ),
+    Source(
+        "results/models/ppo-ladder-uniform-curve.md",
+        "| run | success target",
+        (),
+        "<!-- table: ladder uniform training -->",
+    ),
+    Source(
+        "results/ladder/leaderboard.md",
+        "| rank | controller",
+        (),
+        "<!-- table: ladder leaderboard -->",
+    ),
+    Source(
+        "results/ladder/leaderboard.md",
+        "| family | controller",
+        ("t3-oblique", "t5-murmuration"),
+        "<!-- table: ladder, two families -->",
     ),
     Source(
         "results/field/leaderboard.md",
