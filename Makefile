@@ -108,10 +108,10 @@ results: $(STAMP)
 	for c in $(BOARD_CONTROLLERS); do \
 		$(BIN)/flockward run --suite ladder --controller $$c --workers 2 || exit 1; \
 	done
-	for m in results/models/ladder/ppo-*.zip; do \
+	for m in $(wildcard results/models/ladder/ppo-*.zip); do \
 		$(BIN)/flockward run --suite ladder --model $$m --workers 2 || exit 1; \
 	done
-	for m in results/models/ladder/sac-*.zip; do \
+	for m in $(wildcard results/models/ladder/sac-*.zip); do \
 		$(BIN)/flockward run --suite ladder --model $$m --param algorithm=sac --workers 2 || exit 1; \
 	done
 	$(BIN)/flockward board --suite ladder
