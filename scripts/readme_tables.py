@@ -1,11 +1,12 @@
 """Copy the committed result tables into README.md, so its figures are never typed by hand.
 
 Each README table named in ``SOURCES`` is replaced whole by its committed file's table (the
-standard and field leaderboards, the verification report, the envelope's push bands and approach
-angles, the headon, standard and ladder training seeds, the ladder leaderboard). A source may keep only the rows of some families (the first
-column), and a README table may be found after a marker comment instead of by its header, where
-one header is used twice. Run by `make results` and `make headon-curve` after regenerating;
-tests/test_readme.py checks that the two agree.
+standard, field and ladder leaderboards, the verification report, the envelope's push bands and
+approach angles, the headon, standard and ladder training seeds). A source may keep only the rows
+of some families (the first column), and a README table may be found after a marker comment
+instead of by its header, where one header is used twice. Run by `make results`, `make
+headon-curve` and `make ladder-curve` after regenerating; tests/test_readme.py checks that the
+two agree.
 """
 
 from __future__ import annotations
