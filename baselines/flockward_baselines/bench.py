@@ -106,6 +106,20 @@ def _restore(world: World, start: WorldState) -> None:
         np.copyto(getattr(world.state, name), getattr(start, name))
 
 
+def _replay_from_here(world: World, steps: int) -> Callable[[], None]:
+    """A run that restores ``world`` to its present state and plays ``steps`` idle control
+    steps: every call times the same work."""
+    start = world.state.copy()
+    action = np.zeros((world.n_worlds, world.n_drones, 2))
+
+    def run() -> None:
+        _restore(world, start)
+        for _ in range(steps):
+            world.step(action)
+
+    return run
+
+
 def kernel_comparison(
     worlds: int, birds: int, steps: int, repeats: int = 5, seconds: float = 0.3
 ) -> dict[str, float]:
@@ -152,15 +166,7 @@ def precision_comparison(
     for name, dtype in (("float64", np.float64), ("float32", np.float32)):
         world = _world(worlds, birds)
         world._work = StepWork(worlds, world.max_birds, slot_dtype=dtype)
-        start = world.state.copy()
-        action = np.zeros((worlds, world.n_drones, 2))
-
-        def run(world: World = world, start: WorldState = start, action: Any = action) -> None:
-            _restore(world, start)
-            for _ in range(steps):
-                world.step(action)
-
-        runs[name] = run
+        runs[name] = _replay_from_here(world, steps)
     t = _timed_together(runs, repeats, seconds)
     return {k: v / steps for k, v in t.items()}
 
@@ -173,15 +179,7 @@ def thread_scaling(
     for count in (1, threads):
         world = _world(worlds, birds)
         world.threads = count
-        start = world.state.copy()
-        action = np.zeros((worlds, world.n_drones, 2))
-
-        def run(world: World = world, start: WorldState = start, action: Any = action) -> None:
-            _restore(world, start)
-            for _ in range(steps):
-                world.step(action)
-
-        runs[str(count)] = run
+        runs[str(count)] = _replay_from_here(world, steps)
     t = _timed_together(runs, repeats, seconds)
     return {int(k): v / steps for k, v in t.items()}
 
