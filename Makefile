@@ -6,7 +6,8 @@ BIN    := $(VENV)/bin
 TORCH  := torch==2.13.0
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test soak rllib-example lint type format bench results headon-curve ladder-curve clean
+.PHONY: demo test soak rllib-example lint type format bench results headon-curve standard-curve \
+	ladder-curve clean
 
 $(STAMP): pyproject.toml
 	@echo "== creating the virtual environment $(VENV) (a few minutes the first time)"
@@ -79,8 +80,9 @@ bench: $(STAMP)
 # models of results/models/ladder/) and its leaderboard, the herding envelope sweeps,
 # the bench figures and the verification report (last: it exits non-zero when a check fails).
 # Run it after any change to dynamics, reward, observation or a suite. The committed models
-# (results/models/*.zip) are played as they are: retrain them first when the change breaks them
-# (`flockward train --config configs/train/ppo-standard.toml --seed S`, then copy model.zip).
+# (results/models/{ppo,sac}-*.zip) are played as they are: retrain them first when the change
+# breaks them (`make standard-curve`, or one seed with `flockward train --config
+# configs/train/ppo-standard.toml --seed S`, then copy model.zip).
 BOARD_CONTROLLERS := boundary-arc collect-drive direct-pursuit idle no-drone
 # Team baselines, played on the field suite (two-drone families) beside the one-drone ones.
 TEAM_CONTROLLERS := sector-arc collect-drive-roles
@@ -90,8 +92,11 @@ results: $(STAMP)
 	for c in $(BOARD_CONTROLLERS); do \
 		$(BIN)/flockward run --suite standard --controller $$c --workers 2 || exit 1; \
 	done
-	for m in results/models/*.zip; do \
+	for m in $(wildcard results/models/ppo-*.zip); do \
 		$(BIN)/flockward run --suite standard --model $$m --workers 2 || exit 1; \
+	done
+	for m in $(wildcard results/models/sac-*.zip); do \
+		$(BIN)/flockward run --suite standard --model $$m --param algorithm=sac --workers 2 || exit 1; \
 	done
 	$(BIN)/flockward board --suite standard
 	rm -f results/field/*.json
@@ -100,8 +105,11 @@ results: $(STAMP)
 	done
 	$(BIN)/flockward run --suite field --controller boundary-arc --param information=sensed \
 		--label boundary-arc-sensed --workers 2
-	for m in results/models/*.zip; do \
+	for m in $(wildcard results/models/ppo-*.zip); do \
 		$(BIN)/flockward run --suite field --model $$m --workers 2 || exit 1; \
+	done
+	for m in $(wildcard results/models/sac-*.zip); do \
+		$(BIN)/flockward run --suite field --model $$m --param algorithm=sac --workers 2 || exit 1; \
 	done
 	$(BIN)/flockward board --suite field
 	rm -f results/ladder/*.json
@@ -142,6 +150,25 @@ headon-curve: $(STAMP)
 	done
 	$(BIN)/flockward curves runs/ppo-headon-s0 runs/ppo-headon-s1 runs/ppo-headon-s2 \
 		--out results/models/ppo-headon-curve --title "PPO from scratch on headon"
+	$(BIN)/python scripts/readme_tables.py
+
+# The standard leaderboard's learned references, from scratch on the standard mix: PPO
+# (configs/train/ppo-standard.toml) and SAC (sac-standard.toml), seeds 0, 1 and 2 each, one after
+# another (runs/*-standard-s* are replaced). The models are copied to results/models/, then each
+# config's mean learning curve and the table of when each seed's success over the nine scenarios
+# first reached 60 % are written: results/models/{ppo,sac}-standard-curve.*. `make results` then
+# plays the models on the standard and field suites.
+standard-curve: $(STAMP)
+	for c in ppo-standard sac-standard; do \
+		for s in 0 1 2; do \
+			rm -rf runs/$$c-s$$s; \
+			$(BIN)/flockward train --config configs/train/$$c.toml --seed $$s --quiet || exit 1; \
+			cp runs/$$c-s$$s/model.zip results/models/$$c-s$$s.zip; \
+		done; \
+		$(BIN)/flockward curves runs/$$c-s0 runs/$$c-s1 runs/$$c-s2 --target 0.6 \
+			--out results/models/$$c-curve --title "From scratch on the standard mix: $$c" \
+			|| exit 1; \
+	done
 	$(BIN)/python scripts/readme_tables.py
 
 # From scratch on the ladder suite: PPO with the curriculum (configs/train/ppo-ladder.toml) and

@@ -306,6 +306,28 @@ def test_cli_runs_a_saved_model(tiny: Path, tmp_path: Path) -> None:
     assert _episodes(again / "tiny" / "model-tiny-policy.json") == _episodes(path)
 
 
+def test_a_model_played_as_another_algorithm_is_refused_in_one_line(
+    tiny: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # Stable-Baselines3's PPO.load of a SAC zip fails deep inside the policy's constructor
+    # (a TypeError about use_sde); the run names the algorithm the zip was saved by instead.
+    pytest.importorskip("stable_baselines3")
+    from stable_baselines3 import SAC
+
+    from flockward.task.env import DivertEnv
+
+    zip_path = tmp_path / "soft.zip"
+    SAC("MlpPolicy", DivertEnv("trio"), policy_kwargs={"net_arch": [8]}, device="cpu").save(
+        zip_path
+    )
+    args = ["run", "--suite", str(tiny), "--model", str(zip_path), "--results", str(tmp_path)]
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert len(err.strip().splitlines()) == 1, err
+    assert "saved by SAC, played as PPO: add --param algorithm=sac" in err
+    assert main([*args, "--param", "algorithm=sac"]) == 0
+
+
 # ---------------------------------------------------------------------------------------------
 # Runs never hide a failure.
 

@@ -498,12 +498,12 @@ def _cmd_run(args: argparse.Namespace) -> int:
         if (args.controller is None) == (args.model is None):
             raise ValueError("give exactly one of --controller NAME and --model FILE.zip")
         if args.model is not None:
-            from flockward_baselines.policy import PolicyController
+            from flockward_baselines.policy import DEFAULT_ALGORITHM, PolicyController
 
             name = f"model-{Path(args.model).stem}"
             factory = partial(PolicyController, args.model, **params)
-            PolicyController(args.model, **params)  # fail here, not in a worker
-            defaults = _parameters(PolicyController(args.model))
+            played = PolicyController(args.model, **params)  # fail here, not in a worker
+            defaults = {**played.parameters(), "algorithm": DEFAULT_ALGORITHM}
         else:
             from flockward_baselines.controllers import make_controller
 

@@ -9,6 +9,8 @@ to call, and each worker process loads the model once.
 from __future__ import annotations
 
 import hashlib
+import json
+import zipfile
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -21,6 +23,7 @@ if TYPE_CHECKING:  # Stable-Baselines3 is optional: imported on the first reset
     from stable_baselines3.common.base_class import BaseAlgorithm
 
 ALGORITHMS = ("ppo", "a2c", "sac", "td3", "ddpg")
+DEFAULT_ALGORITHM = "ppo"  # what --model plays without --param algorithm=...
 
 # Loaded models by (resolved path, algorithm): one load per process, shared by the episodes.
 _CACHE: dict[tuple[str, str], BaseAlgorithm] = {}
@@ -35,18 +38,39 @@ def _sha256(path: Path) -> str:
     return digest.hexdigest()
 
 
+def saved_algorithm(path: Path) -> str | None:
+    """The algorithm that saved an SB3 zip, read from the module of its policy class in the
+    zip's ``data`` entry (``stable_baselines3.sac.policies`` is SAC); None if it cannot tell."""
+    try:
+        with zipfile.ZipFile(path) as archive:
+            data = json.loads(archive.read("data"))
+        module = str(data["policy_class"]["__module__"])
+    except (OSError, KeyError, TypeError, ValueError, zipfile.BadZipFile):
+        return None
+    parts = module.split(".")
+    if len(parts) >= 2 and parts[0] == "stable_baselines3" and parts[1] in ALGORITHMS:
+        return parts[1]
+    return None
+
+
 class PolicyController(Controller):
     """Deterministic ``model.predict`` of a saved SB3 model on the observation alone."""
 
     information_level = "observation"
 
-    def __init__(self, model: str | Path, algorithm: str = "ppo") -> None:
+    def __init__(self, model: str | Path, algorithm: str = DEFAULT_ALGORITHM) -> None:
         path = Path(model)
         if path.suffix != ".zip" or not path.is_file():
             raise ValueError(f"--model {model}: needs an existing .zip saved by model.save(...)")
         if algorithm not in ALGORITHMS:
             raise ValueError(
                 f"--param algorithm={algorithm}: must be one of {', '.join(ALGORITHMS)}"
+            )
+        saved = saved_algorithm(path)
+        if saved is not None and saved != algorithm:
+            raise ValueError(
+                f"--model {model}: saved by {saved.upper()}, played as {algorithm.upper()}: "
+                f"add --param algorithm={saved}"
             )
         self.path = path.resolve()
         self.algorithm = algorithm

@@ -9,7 +9,7 @@ from typing import Any
 
 from flockward.controller import Controller
 from flockward_baselines.controllers import make_controller
-from flockward_baselines.policy import PolicyController
+from flockward_baselines.policy import DEFAULT_ALGORITHM, PolicyController
 
 
 def factory_from_results(
@@ -24,6 +24,8 @@ def factory_from_results(
     params = data["controller_parameters"]
     if "model_sha256" in params:
         model = Path(models_dir) / Path(params["model"]).name
-        return functools.partial(PolicyController, model, params.get("algorithm", "ppo"))
+        return functools.partial(
+            PolicyController, model, params.get("algorithm", DEFAULT_ALGORITHM)
+        )
     arguments = data.get("controller_arguments", params)
     return functools.partial(make_controller, data["controller"], **arguments)
