@@ -495,6 +495,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
         suite = load_suite(args.suite)
         params: dict[str, Any] = dict(_controller_param(item) for item in args.param)
         factory: Callable[[], Controller]
+        defaults: dict[str, Any] | None
         if (args.controller is None) == (args.model is None):
             raise ValueError("give exactly one of --controller NAME and --model FILE.zip")
         if args.model is not None:
