@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import dataclasses
 import functools
+import json
 from pathlib import Path
 
 import numpy as np
@@ -120,6 +121,37 @@ def test_uniform_mode_draws_every_family_and_never_promotes():
     assert ladder.slots[0].tier == 4 and len(ladder.slots[0].recent) == 0
 
 
+def test_a_saved_climb_is_restored_slot_by_slot():
+    ladder = Ladder(_ladder_suite(), _settings(), slots=3, seed=4)
+    for _ in range(4):
+        ladder.finish(0, True)  # slot 0: 4 of 4, up to tier index 1
+    ladder.finish(0, True)
+    ladder.finish(2, False)
+    saved = ladder.state()
+    assert [s["tier"] for s in saved] == [1, 0, 0]
+    again = Ladder(_ladder_suite(), _settings(), slots=3, seed=4, resumed_at=512)
+    again.restore(saved)
+    assert again.state() == saved and again.tier_counts() == [2, 1, 0, 0, 0]
+    assert all(again.family_tier[s.family] <= s.tier for s in again.slots)
+    with pytest.raises(ValueError, match="state of 2 worlds, this run has 3"):
+        again.restore(saved[:2])
+    with pytest.raises(ValueError, match=r"tier index 7 outside 0\.\.4"):
+        again.restore([{"tier": 7, "recent": []}] * 3)
+
+
+def test_a_resumed_env_starts_on_the_saved_tiers_with_fresh_streams(tmp_path):
+    suite = load_suite(_two_tiers(tmp_path))
+    fresh = CurriculumVecEnv(suite, _settings(review=0.0), 4, 9, {}, {})
+    resumed = CurriculumVecEnv(suite, _settings(review=0.0), 4, 9, {}, {})
+    resumed.resume([{"tier": 1, "recent": []}] * 4, decisions=512)
+    start, restart = fresh.reset(), resumed.reset()
+    assert fresh.ladder.tier_counts() == [4, 0] and resumed.ladder.tier_counts() == [0, 4]
+    assert {resumed.ladder.family_tier[s.family] for s in resumed.ladder.slots} == {1}
+    assert not np.array_equal(start, restart)  # other families, other world streams
+    resumed.reset()  # a later reset (not a resume) starts the climb over
+    assert resumed.ladder.tier_counts() == [4, 0]
+
+
 def _play(env: CurriculumVecEnv, steps: int, seed: int):
     rng = np.random.default_rng(seed)
     frames = [env.reset()]
@@ -202,9 +234,16 @@ n_epochs = 1
     assert [c[0] for c in counts] == [256, 512] and all(sum(c[1:]) == 4 for c in counts)
     curve = (run / "curve.csv").read_text()
     assert {"trio-close", "trio-b", "headon"} <= {line.split(",")[3] for line in curve.split()[1:]}
+    saved = json.loads((run / "checkpoints" / "step_512.json").read_text())
+    assert len(saved["ladder"]) == 4 and saved["simulator_steps"] > 0
     train(dataclasses.replace(load_train_config(cfg), total_timesteps=768), run, resume=True,
           progress=False)  # fmt: skip
     assert len((run / CURRICULUM_FILE).read_text().split()) == 4  # resumed rows appended
+    # The curve's simulator steps go on from the checkpoint's count, not from zero.
+    steps = {int(t): int(s) for t, s, *_ in (r.split(",") for r in curve.split()[1:])}
+    after = [r.split(",") for r in (run / "curve.csv").read_text().split()[1:]]
+    resumed = {int(r[1]) for r in after if int(r[0]) == 768}
+    assert len(resumed) == 1 and resumed.pop() > steps[512] == saved["simulator_steps"]
 
 
 @pytest.mark.parametrize(

@@ -61,12 +61,17 @@ class Slot:
 class Ladder:
     """The tier of every slot, the family of its current episode, and promotion."""
 
-    def __init__(self, suite: Suite, settings: CurriculumSettings, slots: int, seed: int):
+    def __init__(
+        self, suite: Suite, settings: CurriculumSettings, slots: int, seed: int, resumed_at: int = 0
+    ):
         self.settings = settings
         self.tier_numbers = sorted({entry.tier for entry in suite.entries})
         self.families = [entry.family for entry in suite.entries]
         self.family_tier = [self.tier_numbers.index(entry.tier) for entry in suite.entries]
-        self._draws = np.random.default_rng([seed, DRAW_STREAM])
+        # A resumed run draws a stream of its own (salted by the decisions at the checkpoint),
+        # not the start's again; a fresh run's stream is (seed, DRAW_STREAM) as always.
+        key = [seed, DRAW_STREAM, resumed_at] if resumed_at else [seed, DRAW_STREAM]
+        self._draws = np.random.default_rng(key)
         start = 0 if settings.mode == "promote" else len(self.tier_numbers) - 1
         self.slots = [Slot(start, 0, deque(maxlen=settings.window)) for _ in range(slots)]
         for slot in self.slots:
@@ -78,6 +83,28 @@ class Ladder:
         for slot in self.slots:
             counts[slot.tier] += 1
         return counts
+
+    def state(self) -> list[dict[str, Any]]:
+        """Each slot's tier (index, easiest 0) and its window of outcomes there, for a
+        checkpoint: what ``restore`` needs to resume the climb where it stopped."""
+        return [{"tier": slot.tier, "recent": list(slot.recent)} for slot in self.slots]
+
+    def restore(self, state: list[dict[str, Any]]) -> None:
+        """Put every slot back on the tier ``state`` gives (``state()`` of a ladder on the same
+        suite with as many slots) and draw its next family there."""
+        if len(state) != len(self.slots):
+            raise ValueError(
+                f"curriculum state of {len(state)} worlds, this run has {len(self.slots)}"
+            )
+        top = len(self.tier_numbers) - 1
+        for slot, saved in zip(self.slots, state, strict=True):
+            tier = int(saved["tier"])
+            if not 0 <= tier <= top:
+                raise ValueError(f"curriculum state: tier index {tier} outside 0..{top}")
+            slot.tier = tier
+            slot.recent.clear()
+            slot.recent.extend(bool(x) for x in saved["recent"])
+            slot.family = self.draw_family(slot.tier)
 
     def draw_family(self, tier: int) -> int:
         """A family for an episode at ``tier``: one of the tier's, or a lower tier's to review."""

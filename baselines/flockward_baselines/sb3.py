@@ -266,7 +266,16 @@ class CurriculumVecEnv(VecEnv):
         self._seed = int(seed)
         self._actions = np.zeros((self.num_envs, max(first.n_drones, 1), 2))
         self.simulator_steps = 0
+        self._resumed_at = 0  # decisions at the checkpoint a resumed run started from
+        self._resume_state: list[dict[str, Any]] | None = None
         self.ladder = Ladder(suite, settings, self.num_envs, self._seed)
+
+    def resume(self, ladder_state: list[dict[str, Any]], decisions: int) -> None:
+        """Continue a run from a checkpoint taken after ``decisions``: the next reset puts the
+        slots back on their saved tiers (``Ladder.state``), and the worlds and the curriculum
+        draw streams of their own, salted by ``decisions``, instead of the start's again."""
+        self._resume_state = ladder_state
+        self._resumed_at = int(decisions)
 
     def _start(self, index: int) -> np.ndarray:
         """Begin slot ``index``'s episode in its ladder family; return its observation."""
@@ -275,11 +284,16 @@ class CurriculumVecEnv(VecEnv):
         return row
 
     def reset(self) -> np.ndarray:
-        """Every slot back to the start of the ladder, every world seeded afresh."""
-        self.ladder = Ladder(self.suite, self.settings, self.num_envs, self._seed)
+        """Every slot back to the start of the ladder (or, after ``resume``, to its saved tier),
+        every world seeded afresh."""
+        salt = [self._resumed_at] if self._resumed_at else []
+        self.ladder = Ladder(self.suite, self.settings, self.num_envs, self._seed, self._resumed_at)
+        if self._resume_state is not None:
+            self.ladder.restore(self._resume_state)
+            self._resume_state = None
         for f, task in enumerate(self.tasks):
             task.world.rngs[:] = [
-                np.random.default_rng([self._seed, f, i]) for i in range(self.num_envs)
+                np.random.default_rng([self._seed, f, i, *salt]) for i in range(self.num_envs)
             ]
         return np.stack([self._start(i) for i in range(self.num_envs)])
 

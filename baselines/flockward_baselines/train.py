@@ -19,6 +19,7 @@ checkpoint.
 from __future__ import annotations
 
 import csv
+import json
 import math
 import time
 from dataclasses import dataclass, field
@@ -49,6 +50,7 @@ if TYPE_CHECKING:  # Stable-Baselines3 is optional: imported where training need
 ALGORITHMS = ("ppo", "sac")
 CURVE_FILE = "curve.csv"
 CURRICULUM_FILE = "curriculum.csv"  # slots per tier at each curve point, with a curriculum
+RESUMED_STEPS = "resumed_simulator_steps"  # set on a resumed run's env: control steps before it
 
 
 def _int(lo: int, hi: int) -> Spec:
@@ -748,6 +750,7 @@ def train(
         raise ValueError(f"--resume: no checkpoint under {run_dir / 'checkpoints'}")
     if checkpoint is not None:
         model = _algorithm_class(config.algorithm).load(str(checkpoint), env=env, device="cpu")
+        _restore_progress(env, checkpoint, model.num_timesteps)
     else:
         model = _new_model(config, env, run_dir, progress)
     model.set_logger(configure(str(run_dir), ["csv", "tensorboard"]))
@@ -853,10 +856,49 @@ def log_tiers(run_dir: Path, env: VecEnv, steps: int) -> None:
 
 
 def simulator_steps(env: VecEnv) -> int:
-    """Control steps played by the training worlds so far (0 for an env that does not count)."""
+    """Control steps played by the training worlds so far (0 for an env that does not count),
+    those before the checkpoint a resumed run started from included."""
+    before = int(getattr(env, RESUMED_STEPS, 0))
     while not hasattr(env, "simulator_steps") and hasattr(env, "venv"):
         env = env.venv  # through SB3's wrappers (VecMonitor)
-    return int(getattr(env, "simulator_steps", 0))
+    return before + int(getattr(env, "simulator_steps", 0))
+
+
+def _save_progress(env: VecEnv, path: Path) -> None:
+    """Beside a checkpoint: the control steps played so far and the curriculum's tiers, which
+    SB3's zip does not hold, so that ``--resume`` continues the curve and the climb."""
+    inner = env
+    while not hasattr(inner, "ladder") and hasattr(inner, "venv"):
+        inner = inner.venv
+    ladder = getattr(inner, "ladder", None)
+    state = {
+        "simulator_steps": simulator_steps(env),
+        "ladder": ladder.state() if ladder is not None else None,
+    }
+    with atomic_path(path) as tmp:
+        tmp.write_text(json.dumps(state), encoding="utf-8")
+
+
+def _restore_progress(env: VecEnv, checkpoint: Path, decisions: int) -> None:
+    """Put back what ``_save_progress`` wrote beside ``checkpoint``; a checkpoint without it
+    (an older run) resumes with the count from zero and every world on the first tier."""
+    path = checkpoint.with_suffix(".json")
+    if not path.is_file():
+        return
+    try:
+        state = json.loads(path.read_text(encoding="utf-8"))
+        steps = int(state["simulator_steps"])
+        ladder = state["ladder"]
+    except (ValueError, KeyError, TypeError) as error:
+        raise ValueError(
+            f"{path}: not a progress file written with the checkpoint ({error})"
+        ) from None
+    setattr(env, RESUMED_STEPS, steps)
+    inner = env
+    while not hasattr(inner, "resume") and hasattr(inner, "venv"):
+        inner = inner.venv
+    if ladder is not None and hasattr(inner, "resume"):
+        inner.resume(ladder, decisions)
 
 
 @dataclass
@@ -933,6 +975,7 @@ def _periodic_callback(
                 )
                 self.last, self.tick = now, time.perf_counter()
             if now >= self.next_ckpt:
+                _save_progress(self.training_env, run_dir / "checkpoints" / f"step_{now}.json")
                 _save_atomic(self.model, run_dir / "checkpoints" / f"step_{now}.zip")
                 self.next_ckpt += config.checkpoint_every
             if now >= self.next_eval:
