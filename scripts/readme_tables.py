@@ -53,6 +53,18 @@ SOURCES = (
         "<!-- table: ladder uniform training -->",
     ),
     Source(
+        "results/models/sac-standard-curve.md",
+        "| run | success target",
+        (),
+        "<!-- table: standard SAC references' training -->",
+    ),
+    Source(
+        "results/models/sac-ladder-curve.md",
+        "| run | success target",
+        (),
+        "<!-- table: ladder SAC training -->",
+    ),
+    Source(
         "results/ladder/leaderboard.md",
         "| rank | controller",
         (),
