@@ -43,6 +43,16 @@ BENCH_THREADS = 2  # the thread count the scaling figure compares with one threa
 CONTROL_STEPS_PER_DECISION = EpisodeParams().decision_steps
 PPO_PER_CONTROL_STEP = f"{ENV_ID}, 1 step/decision"
 PPO_DEFAULT = f"{ENV_ID}, {CONTROL_STEPS_PER_DECISION} steps/decision"
+PPO_THREADED = f"{PPO_DEFAULT}, {BENCH_THREADS} threads"
+PPO_NO_SIMULATOR = "no simulator, flockward's spaces"
+PPO_CARTPOLE = "CartPole-v1"
+# The share of CartPole's PPO decisions per second that flockward's default decision interval
+# aims at (speed issue); the bench prints what the simulator would need to reach it.
+PPO_TARGET_SHARE = 0.7
+# Force evaluations per control step: one fresh evaluation, then one per substep (the
+# Verlet-Heun integrator of sim.dynamics re-evaluates at each substep's predicted velocity).
+FORCE_EVALUATIONS_PER_CONTROL_STEP = EpisodeParams().substeps + 1
+PPO_BIRDS = 50  # the headon flock the PPO figures play
 NEIGHBOUR_SEARCHES = ("auto", "all-pairs", "grid")
 
 # What scaling_table returns. Its "table" holds one list per column: "N" (flock sizes), one per
@@ -393,8 +403,50 @@ def env_rates(worlds: int = 64, steps: int = 200, repeats: int = 5) -> dict[str,
     return out
 
 
+def no_simulator_env(num_envs: int, observation_space: Any, action_space: Any, length: int) -> Any:
+    """An SB3 VecEnv with the given spaces that returns zeros and ends every episode after
+    ``length`` decisions: PPO on it costs what PPO itself costs on those spaces."""
+    from stable_baselines3.common.vec_env.base_vec_env import VecEnv
+
+    class NoSimulator(VecEnv):
+        def __init__(self) -> None:
+            super().__init__(num_envs, observation_space, action_space)
+            self.zeros = np.zeros((num_envs, *observation_space.shape), observation_space.dtype)
+            self.decisions = 0
+
+        def reset(self) -> np.ndarray:
+            return self.zeros.copy()
+
+        def step_async(self, actions: np.ndarray) -> None:
+            self.decisions += 1
+
+        def step_wait(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[dict[str, Any]]]:
+            ended = self.decisions % length == 0
+            done = np.full(num_envs, ended)
+            infos = [{"terminal_observation": self.zeros[0]} if ended else {} for _ in done]
+            return self.zeros.copy(), np.zeros(num_envs, np.float32), done, infos
+
+        def close(self) -> None:
+            return None
+
+        def get_attr(self, attr_name: str, indices: Any = None) -> list[Any]:
+            return [None] * num_envs
+
+        def set_attr(self, attr_name: str, value: Any, indices: Any = None) -> None:
+            return None
+
+        def env_method(self, method_name: str, *args: Any, indices: Any = None, **kw: Any) -> Any:
+            return [None] * num_envs
+
+        def env_is_wrapped(self, wrapper_class: Any, indices: Any = None) -> list[bool]:
+            return [False] * num_envs
+
+    return NoSimulator()
+
+
 def ppo_rates(worlds: int = 16, timesteps: int = 16 * 256, repeats: int = 3) -> dict[str, float]:
-    """PPO (MlpPolicy, CPU, identical hyperparameters) steps per second on both tasks."""
+    """PPO (MlpPolicy, CPU, identical hyperparameters) steps per second on flockward, on
+    CartPole, and on a vector env with flockward's spaces and no simulator (PPO's own cost)."""
     import torch
     from stable_baselines3 import PPO
     from stable_baselines3.common.env_util import make_vec_env as sb3_make_vec_env
@@ -402,14 +454,25 @@ def ppo_rates(worlds: int = 16, timesteps: int = 16 * 256, repeats: int = 3) -> 
     from flockward_baselines.sb3 import make_vec_env
 
     torch.set_num_threads(1)
+    default = make_vec_env(num_envs=worlds, seed=0, scenario="headon")
+    episode = EpisodeParams()
     envs = {
         # One decision per control step (an env step costs the simulator what CartPole's costs),
         # and the default decision interval (what training pays per decision).
         PPO_PER_CONTROL_STEP: make_vec_env(
             num_envs=worlds, seed=0, scenario="headon", decision_steps=1
         ),
-        PPO_DEFAULT: make_vec_env(num_envs=worlds, seed=0, scenario="headon"),
-        "CartPole-v1": sb3_make_vec_env("CartPole-v1", n_envs=worlds, seed=0),
+        PPO_DEFAULT: default,
+        PPO_THREADED: _threaded(
+            partial(make_vec_env, num_envs=worlds, seed=0, scenario="headon"), BENCH_THREADS
+        ),
+        PPO_NO_SIMULATOR: no_simulator_env(
+            worlds,
+            default.observation_space,
+            default.action_space,
+            episode.max_steps // CONTROL_STEPS_PER_DECISION,
+        ),
+        PPO_CARTPOLE: sb3_make_vec_env("CartPole-v1", n_envs=worlds, seed=0),
     }
     out: dict[str, float] = {}
     for name, venv in envs.items():
@@ -422,6 +485,82 @@ def ppo_rates(worlds: int = 16, timesteps: int = 16 * 256, repeats: int = 3) -> 
 
         out[name] = _median_rate(run, repeats)
     return out
+
+
+def _threaded(make: Callable[[], Any], threads: int) -> Any:
+    """``make()`` with its worlds stepped on ``threads`` numba threads (FLOCKWARD_THREADS)."""
+    from flockward.sim.world import THREADS_VARIABLE
+
+    before = os.environ.get(THREADS_VARIABLE)
+    os.environ[THREADS_VARIABLE] = str(threads)
+    try:
+        return make()
+    finally:
+        if before is None:
+            del os.environ[THREADS_VARIABLE]
+        else:
+            os.environ[THREADS_VARIABLE] = before
+
+
+def ppo_budget(
+    rates: dict[str, float],
+    share: float = PPO_TARGET_SHARE,
+    pair_evaluations: float = (
+        CONTROL_STEPS_PER_DECISION
+        * FORCE_EVALUATIONS_PER_CONTROL_STEP
+        * PPO_BIRDS
+        * (PPO_BIRDS - 1)
+    ),
+) -> dict[str, float]:
+    """Seconds per decision that PPO itself and the simulator with its task take now, and what
+    the simulator may take for flockward to reach ``share`` of CartPole's decisions per second.
+
+    PPO's own cost is its time on the no-simulator env with flockward's spaces; the rest of a
+    flockward decision is the environment's. "allowed" <= 0 means the share is out of reach even
+    with a simulator that costs nothing. Per pair: the environment's seconds divided by the
+    ordered pair evaluations of one world's decision (an upper bound on the pair loop's cost).
+    """
+    ppo_own = 1.0 / rates[PPO_NO_SIMULATOR]
+    environment = 1.0 / rates[PPO_DEFAULT] - ppo_own
+    allowed = 1.0 / (share * rates[PPO_CARTPOLE]) - ppo_own
+    return {
+        "ppo_own": ppo_own,
+        "environment": environment,
+        "allowed": allowed,
+        "speed_up_needed": environment / allowed if allowed > 0 else math.inf,
+        "pair_evaluations": pair_evaluations,
+        "per_pair_now": environment / pair_evaluations,
+        "per_pair_allowed": allowed / pair_evaluations,
+    }
+
+
+def machine() -> dict[str, object]:
+    """What the figures were measured on: the CPU (vector width changes the kernel's ratios),
+    its cores and the versions of numba and NumPy."""
+    import platform
+
+    import numba
+
+    name, flags = platform.processor() or platform.machine(), set[str]()
+    try:
+        with open("/proc/cpuinfo", encoding="utf-8") as info:
+            fields = dict(
+                (key.strip(), value.strip())
+                for key, _, value in (line.partition(":") for line in info)
+                if key.strip() in ("model name", "cpu family", "model", "flags")
+            )
+        name = f"{fields['model name']} (family {fields['cpu family']}, model {fields['model']})"
+        flags = set(fields["flags"].split())
+    except (OSError, KeyError):
+        pass
+    widest = next((f for f in ("avx512f", "avx2", "avx", "sse4_2") if f in flags), "unknown")
+    return {
+        "cpu": name,
+        "cores": os.cpu_count() or 0,
+        "widest_vector_extension": widest,
+        "numba": numba.__version__,
+        "numpy": np.__version__,
+    }
 
 
 def runner_times(suite_name: str = "smoke") -> dict[int, float]:
@@ -658,6 +797,12 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
     repeats = 3 if quick else 5
     results: dict[str, object] = {}
     emit("flockward bench: medians over repeats after a warm-up; ratios from this run only")
+    host = machine()
+    emit(
+        f"machine: {host['cpu']}, {host['cores']} cores, widest vector extension "
+        f"{host['widest_vector_extension']}; numba {host['numba']}, NumPy {host['numpy']}"
+    )
+    results["machine"] = host
     emit("\nSimulator kernel (one thread, float64):")
     sim: dict[tuple[int, int], float] = {}
     for worlds, birds in SIM_SIZES:
@@ -776,7 +921,26 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
         ppo = ppo_rates()
         for name, rate in ppo.items():
             emit(f"  {name:<40} {rate:10,.0f}")
-        for name in (PPO_PER_CONTROL_STEP, PPO_DEFAULT):
-            emit(f"  {name} / CartPole: {ppo[name] / ppo['CartPole-v1']:6.2f}")
+        for name in (PPO_PER_CONTROL_STEP, PPO_DEFAULT, PPO_THREADED):
+            emit(f"  {name} / CartPole: {ppo[name] / ppo[PPO_CARTPOLE]:6.2f}")
+        budget = ppo_budget(ppo)
+        emit(
+            f"  per decision of {PPO_DEFAULT}: PPO itself {budget['ppo_own'] * 1e6:.0f} us,"
+            f" simulator and task {budget['environment'] * 1e6:.0f} us for"
+            f" {budget['pair_evaluations']:,.0f} ordered pair evaluations"
+            f" ({CONTROL_STEPS_PER_DECISION} control steps x {FORCE_EVALUATIONS_PER_CONTROL_STEP}"
+            f" force evaluations x {PPO_BIRDS} x {PPO_BIRDS - 1}),"
+            f" {budget['per_pair_now'] * 1e9:.1f} ns a pair all told"
+        )
+        if budget["allowed"] > 0:
+            reach = (
+                f"the simulator and task may take {budget['allowed'] * 1e6:.0f} us: "
+                f"x{budget['speed_up_needed']:.1f} faster than now,"
+                f" {budget['per_pair_allowed'] * 1e9:.1f} ns a pair all told"
+            )
+        else:
+            reach = "out of reach even with a simulator that costs nothing"
+        emit(f"  to reach {PPO_TARGET_SHARE:.2f} of CartPole's decisions/s: {reach}")
         results["ppo"] = ppo
+        results["ppo_budget"] = budget
     return results
