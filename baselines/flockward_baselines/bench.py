@@ -43,7 +43,7 @@ BENCH_THREADS = 2  # the thread count the scaling figure compares with one threa
 CONTROL_STEPS_PER_DECISION = EpisodeParams().decision_steps
 PPO_PER_CONTROL_STEP = f"{ENV_ID}, 1 step/decision"
 PPO_DEFAULT = f"{ENV_ID}, {CONTROL_STEPS_PER_DECISION} steps/decision"
-PPO_THREADED = f"{PPO_DEFAULT}, {BENCH_THREADS} threads"
+PPO_THREADED = f"{PPO_DEFAULT}, simulator on {BENCH_THREADS} threads"
 PPO_NO_SIMULATOR = "no simulator, flockward's spaces"
 PPO_CARTPOLE = "CartPole-v1"
 # The share of CartPole's PPO decisions per second that flockward's default decision interval
@@ -919,8 +919,9 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
     if not quick:
         emit("\nPPO (MlpPolicy, CPU, 16 worlds, same hyperparameters), decisions/s:")
         ppo = ppo_rates()
+        width = max(map(len, ppo))
         for name, rate in ppo.items():
-            emit(f"  {name:<40} {rate:10,.0f}")
+            emit(f"  {name:<{width}} {rate:10,.0f}")
         for name in (PPO_PER_CONTROL_STEP, PPO_DEFAULT, PPO_THREADED):
             emit(f"  {name} / CartPole: {ppo[name] / ppo[PPO_CARTPOLE]:6.2f}")
         budget = ppo_budget(ppo)
