@@ -1,7 +1,9 @@
 """A Controller that plays a saved Stable-Baselines3 model (the zip written by ``model.save``).
 
 The model sees only the Gymnasium observation (information level "observation") and acts
-deterministically, so a policy's score is reproducible. The zip is loaded on the first reset,
+deterministically, so a policy's score is reproducible: its network is evaluated by
+``fixed_forward`` (float64, sums in index order), which gives the same action on every CPU where
+torch's kernels do not; a network that module does not cover is played by ``model.predict``. The zip is loaded on the first reset,
 not on construction: a factory building one controller per episode stays cheap to pickle and
 to call, and each worker process loads the model once.
 """
@@ -18,6 +20,7 @@ import numpy as np
 
 from flockward.controller import Controller, StateView
 from flockward.sim.types import Scenario
+from flockward_baselines.fixed_forward import FixedForward, fixed_forward
 
 if TYPE_CHECKING:  # Stable-Baselines3 is optional: imported on the first reset
     from stable_baselines3.common.base_class import BaseAlgorithm
@@ -25,8 +28,9 @@ if TYPE_CHECKING:  # Stable-Baselines3 is optional: imported on the first reset
 ALGORITHMS = ("ppo", "a2c", "sac", "td3", "ddpg")
 DEFAULT_ALGORITHM = "ppo"  # what --model plays without --param algorithm=...
 
-# Loaded models by (resolved path, algorithm): one load per process, shared by the episodes.
-_CACHE: dict[tuple[str, str], BaseAlgorithm] = {}
+# Loaded models by (resolved path, algorithm): one load per process, shared by the episodes, with
+# their fixed-order networks (None where fixed_forward does not cover the policy).
+_CACHE: dict[tuple[str, str], tuple[BaseAlgorithm, FixedForward | None]] = {}
 
 
 def _sha256(path: Path) -> str:
@@ -77,12 +81,13 @@ class PolicyController(Controller):
         self.name = f"model-{path.stem}"
         self._digest = _sha256(self.path)  # read once: it identifies the model in result files
         self._model: BaseAlgorithm | None = None
+        self._forward: FixedForward | None = None
 
     def parameters(self) -> dict[str, Any]:
         """The model by file name and content hash (not path: the same model may move)."""
         return {"model": self.path.name, "model_sha256": self._digest, "algorithm": self.algorithm}
 
-    def _load(self) -> BaseAlgorithm:
+    def _load(self) -> tuple[BaseAlgorithm, FixedForward | None]:
         """The model from this process's cache, loaded on first use."""
         key = (str(self.path), self.algorithm)
         if key not in _CACHE:
@@ -93,13 +98,14 @@ class PolicyController(Controller):
                     "playing a saved model needs Stable-Baselines3: pip install 'flockward[learn]'"
                 ) from None
             cls = getattr(stable_baselines3, self.algorithm.upper())
-            _CACHE[key] = cls.load(str(self.path), device="cpu")
+            model = cls.load(str(self.path), device="cpu")
+            _CACHE[key] = (model, fixed_forward(model))
         return _CACHE[key]
 
     def reset(self, scenario: Scenario, seed: int | None = None) -> None:
         """Load the model (once per process); a policy keeps no memory between steps."""
         if self._model is None:
-            self._model = self._load()
+            self._model, self._forward = self._load()
 
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
         """The model's deterministic action for this observation."""
@@ -117,5 +123,7 @@ class PolicyController(Controller):
                 f"{self.path.name} expects observations of shape {tuple(expected)}, got "
                 f"{tuple(shape)}: it was trained with other observation settings"
             )
+        if self._forward is not None:
+            return self._forward(observation)
         action, _ = self._model.predict(observation, deterministic=True)
         return np.asarray(action, dtype=np.float64).reshape(-1)

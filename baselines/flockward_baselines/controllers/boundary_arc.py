@@ -38,6 +38,7 @@ import numpy as np
 
 from flockward.controller import Controller, StateView
 from flockward.sim.geometry import convex_hull, signed_distance, site_zone_arrays, zone_center
+from flockward.sim.portable import dot2
 from flockward.sim.types import FlockParams, Scenario
 from flockward_baselines.controllers.steering import around, fly_to
 
@@ -188,7 +189,7 @@ class BoundaryArc(Controller):
         toward_goal = _unit(self._goal - centroid)
         speed = float(np.hypot(*flock_vel))
         if speed > 1e-9:
-            sideways = flock_vel - float(flock_vel @ toward_goal) * toward_goal
+            sideways = flock_vel - float(dot2(flock_vel, toward_goal)) * toward_goal
             bend = self.drift_correction * sideways / speed
             # Capped: turning the push too far across the flock's flight stretches it apart.
             cap = math.tan(math.radians(self.max_correction_deg))
@@ -209,7 +210,7 @@ class BoundaryArc(Controller):
         closeness = 1.0 - max(gap, 0.0) / self.zone_margin
         away = _unit(grad)
         # Never push toward the zone: drop the part of the goal direction that points into it.
-        into = min(0.0, float(toward_goal @ away))
+        into = min(0.0, float(dot2(toward_goal, away)))
         return _unit(toward_goal - into * away + closeness * away)
 
     def act(self, observation: Any, state: StateView | None) -> np.ndarray:
@@ -277,7 +278,7 @@ class BoundaryArc(Controller):
 
         def station(offset: float) -> tuple[np.ndarray, float]:
             u = _bearing(centre_angle + offset)
-            reach = float(np.max(rel @ u)) + push  # support function: every bird >= push away
+            reach = float(np.max(dot2(rel, u))) + push  # support function: every bird >= push away
             return centroid + reach * u, reach
 
         gaps = np.hypot(*(birds - pos).T)

@@ -12,6 +12,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from flockward.sim.portable import dot2
 from flockward.sim.types import PursuerParams, Scenario
 
 
@@ -85,8 +86,8 @@ def around(pos: np.ndarray, target: np.ndarray, centre: np.ndarray, keep_out: fl
     target = np.asarray(target, dtype=np.float64)
     centre = np.asarray(centre, dtype=np.float64)
     seg = target - pos
-    length2 = float(seg @ seg)
-    t = 0.0 if length2 == 0.0 else min(1.0, max(0.0, float((centre - pos) @ seg) / length2))
+    length2 = float(dot2(seg, seg))
+    t = 0.0 if length2 == 0.0 else min(1.0, max(0.0, float(dot2(centre - pos, seg)) / length2))
     closest = pos + t * seg
     if float(np.hypot(*(closest - centre))) >= keep_out:
         return target
@@ -122,7 +123,7 @@ def keep_apart(
             offset = positions[k] - positions[j]
             gap = float(np.hypot(offset[0], offset[1]))
             away = offset / gap if gap > 1e-9 else np.array([1.0, 0.0]) * (1 if k > j else -1)
-            closing = max(0.0, -float((velocities[k] - velocities[j]) @ away))  # m/s
+            closing = max(0.0, -float(dot2(velocities[k] - velocities[j], away)))  # m/s
             brake = closing**2 / (2.0 * min(fleet[k].max_accel, fleet[j].max_accel))
             reach = factor * (fleet[k].safety_radius + fleet[j].safety_radius) + brake
             if gap < reach:

@@ -87,7 +87,8 @@ def _command_energy(action: np.ndarray, max_accel: np.ndarray, dt: float) -> flo
     for command, amax in zip(commands, max_accel, strict=True):
         u = np.clip(command, -1.0, 1.0)
         u = u / max(1.0, float(np.hypot(*u)))
-        total += float((u * amax) @ (u * amax)) * dt
+        accel = u * amax
+        total += float(accel[0] * accel[0] + accel[1] * accel[1]) * dt
     return total
 
 

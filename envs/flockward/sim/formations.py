@@ -10,6 +10,7 @@ import math
 
 import numpy as np
 
+from flockward.sim.portable import bearings, polar_points
 from flockward.sim.types import FORMATIONS
 
 # Golden angle in radians, the divergence angle of the sunflower (Vogel 1979) spiral.
@@ -51,7 +52,7 @@ def _disc(count: int, spacing: float, rng: np.random.Generator) -> np.ndarray:
     k = np.arange(count, dtype=np.float64)
     r = c * np.sqrt(k + 0.5)
     theta = k * _GOLDEN_ANGLE
-    return np.column_stack((r * np.cos(theta), r * np.sin(theta)))
+    return polar_points(r, theta)
 
 
 def _hex(count: int, spacing: float, rng: np.random.Generator) -> np.ndarray:
@@ -68,7 +69,7 @@ def _hex(count: int, spacing: float, rng: np.random.Generator) -> np.ndarray:
     dist = np.hypot(points[:, 0], points[:, 1])
     # Ties on a shell are broken by angle so the subset does not depend on sort stability.
     shell = np.round(dist / spacing, 9)
-    angle = np.round(np.arctan2(points[:, 1], points[:, 0]), 9)
+    angle = np.round(bearings(points), 9)
     order = np.lexsort((angle, shell))
     return points[order[:count]]
 

@@ -212,7 +212,7 @@ def polygon_area(vertices: np.ndarray) -> float:
     """Signed shoelace area (m^2): positive for counter-clockwise vertex order."""
     v = np.asarray(vertices, dtype=np.float64)
     x, y = v[:, 0], v[:, 1]
-    return 0.5 * float(np.dot(x, np.roll(y, -1)) - np.dot(np.roll(x, -1), y))
+    return 0.5 * float(np.sum(x * np.roll(y, -1)) - np.sum(np.roll(x, -1) * y))
 
 
 def zone_center(zone: Zone) -> tuple[float, float]:
@@ -269,7 +269,7 @@ def polygon_is_simple(vertices: np.ndarray) -> bool:
         a, b = v[i], v[(i + 1) % n]
         # Neighbouring edges meet at b; they overlap only if the path turns straight back.
         c = v[(i + 2) % n]
-        if _orient(a, b, c) == 0.0 and np.dot(a - b, c - b) > 0.0:
+        if _orient(a, b, c) == 0.0 and float(np.sum((a - b) * (c - b))) > 0.0:
             return False
         for j in range(i + 2, n):
             if i == 0 and j == n - 1:

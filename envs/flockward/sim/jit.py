@@ -19,11 +19,21 @@ Parallel code (``compiled_parallel``) runs on numba's workqueue threading layer 
 NUMBA_THREADING_LAYER names another: measured on 2 cores with another process busy, numba's
 OpenMP layer ran 2 threads 2.7 to 3 times slower than one (its threads spin while waiting), the
 workqueue layer no slower than one thread.
+
+Every function is compiled for one named CPU, ``COMPILE_TARGET`` (x86-64 machines only), not for
+the machine it runs on: with the kernel's reassociation flags LLVM picks vector widths and fused
+multiply-adds by its cost model for the target, so the same seed gave other bits on an AVX-512
+server than on an AVX2 one. Haswell's instruction set (AVX2 and FMA, x86-64-v3) runs on every
+x86-64 CPU made since about 2015; a machine without it fails on the first compiled call
+(illegal instruction). NUMBA_CPU_NAME set in the environment wins (then results are only
+reproducible on that target). Intel's vector maths library (SVML), if installed, is kept out for
+the same reason.
 """
 
 from __future__ import annotations
 
 import os
+import platform
 from collections.abc import Callable
 from typing import Any, ParamSpec, TypeVar, cast
 
@@ -37,6 +47,13 @@ from numba.extending import overload
 THREADING_LAYER = "workqueue"
 if "NUMBA_THREADING_LAYER" not in os.environ:
     numba.config.THREADING_LAYER = THREADING_LAYER  # type: ignore[attr-defined]
+
+# The CPU every function is compiled for, so results do not depend on the machine (see above).
+COMPILE_TARGET = "haswell"
+if platform.machine() in ("x86_64", "AMD64") and "NUMBA_CPU_NAME" not in os.environ:
+    numba.config.CPU_NAME = COMPILE_TARGET  # type: ignore[attr-defined]
+    numba.config.CPU_FEATURES = ""  # type: ignore[attr-defined]  # the target's own features only
+numba.config.DISABLE_INTEL_SVML = 1  # type: ignore[attr-defined]
 
 P = ParamSpec("P")
 R = TypeVar("R")

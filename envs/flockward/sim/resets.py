@@ -12,6 +12,7 @@ import numpy as np
 
 from flockward.sim.formations import formation_offsets
 from flockward.sim.limits import derived
+from flockward.sim.portable import matmul
 from flockward.sim.types import SCALABLE_GAINS, FlockParams, Scenario
 
 __all__ = ["RESET_DRAWS", "ResetSample", "sample_reset"]
@@ -44,7 +45,7 @@ def _group(
     offsets = formation_offsets(flock.formation, count, flock.spacing, rng)
     c, s = math.cos(heading), math.sin(heading)
     rotation = np.array(((c, -s), (s, c)))
-    bird_pos = centre + offsets @ rotation.T
+    bird_pos = centre + matmul(offsets, rotation.T)
     bird_vel = np.tile(np.array((c, s)) * flock.speed, (count, 1))
     return bird_pos, bird_vel
 

@@ -29,6 +29,7 @@ import math
 
 import numpy as np
 
+from flockward.sim.portable import bearings, polar_points
 from flockward.sim.types import SensorParams, WorldState
 
 
@@ -54,8 +55,8 @@ def polar_measure(
     """(n, 2) sensed positions: range and bearing from ``origin`` with Gaussian errors."""
     d = true_pos - origin
     r = np.hypot(d[:, 0], d[:, 1]) + range_noise * normals[:, 0]
-    theta = np.arctan2(d[:, 1], d[:, 0]) + bearing_noise * normals[:, 1]
-    sensed: np.ndarray = origin + np.stack([r * np.cos(theta), r * np.sin(theta)], axis=1)
+    theta = bearings(d) + bearing_noise * normals[:, 1]
+    sensed: np.ndarray = origin + polar_points(r, theta)
     return sensed
 
 

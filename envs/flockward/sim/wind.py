@@ -36,6 +36,7 @@ import math
 import numpy as np
 
 from flockward.sim.jit import compiled
+from flockward.sim.portable import cholesky2, expm_series, matmul
 from flockward.sim.types import TURBULENCE_W20_KT, WindParams
 
 FOOT = 0.3048  # m
@@ -75,25 +76,27 @@ def dryden_psd_hz(
 def _lateral_filter(sigma: float, length: float, speed: float, h: float) -> tuple[np.ndarray, ...]:
     """The lateral filter sqrt(pi) H_v for unit white noise, discretised exactly over ``h``:
     transition A_d (2, 2), noise factor chol(Q_d) (2, 2), output row C (2,), stationary
-    covariance P (2, 2)."""
-    from scipy.linalg import expm, solve_discrete_lyapunov
+    covariance P (2, 2).
 
+    A_d and Q_d come from Van Loan's matrix exponential, P in closed form: the filter's double
+    pole at -1/t makes A P + P A^T + b b^T = 0 solve to P = diag(t/4, t^3/4), and exact
+    discretisation keeps the continuous stationary covariance. Computed without BLAS or LAPACK
+    (``flockward.sim.portable``), so the coefficients are the same bits on every CPU."""
     t = length / speed
     gain = sigma * math.sqrt(length / speed)
     # (gain sqrt(3) t s + gain) / (t^2 s^2 + 2 t s + 1) in controllable canonical form.
     a = np.array([[-2.0 / t, -1.0 / t**2], [1.0, 0.0]])
-    b = np.array([[1.0], [0.0]])
     c = np.array([gain * math.sqrt(3.0) / t, gain / t**2])
     m = np.zeros((4, 4))
     m[:2, :2] = -a
-    m[:2, 2:] = b @ b.T
+    m[0, 2] = 1.0  # b b^T with b = (1, 0)
     m[2:, 2:] = a.T
-    e = expm(m * h)
+    e = expm_series(m * h)
     a_d = e[2:, 2:].T
-    q_d = a_d @ e[:2, 2:]
+    q_d = matmul(a_d, e[:2, 2:])
     q_d = 0.5 * (q_d + q_d.T)
-    p = solve_discrete_lyapunov(a_d, q_d)
-    return a_d, np.linalg.cholesky(q_d), c, p
+    p = np.array([[t / 4.0, 0.0], [0.0, t**3 / 4.0]])
+    return a_d, cholesky2(q_d), c, p
 
 
 @compiled
@@ -136,7 +139,8 @@ class DrydenGusts:
         # (u, z1, z2): the longitudinal gust and the lateral filter's state, stationary at start
         self.state = np.empty(3)
         self.state[0] = sigma * float(rng.standard_normal())
-        self.state[1:] = np.linalg.cholesky(p) @ rng.standard_normal(2)
+        start = matmul(cholesky2(p), rng.standard_normal(2)[:, None])
+        self.state[1:] = start[:, 0]
         self._block = np.empty((0, 2))  # gusts made but not yet handed out
         self._row = 0
 

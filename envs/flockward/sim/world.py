@@ -17,6 +17,7 @@ import os
 import numpy as np
 
 from flockward.sim.dynamics import StepWork, choose_grid, step_worlds
+from flockward.sim.portable import matmul
 from flockward.sim.resets import sample_reset
 from flockward.sim.types import FlockParams, Scenario, WorldState
 from flockward.sim.wind import DrydenGusts, gust_generator, wind_axes
@@ -171,7 +172,7 @@ class World:
             for b in np.flatnonzero(live):
                 gusts = self.gusts[b]
                 if gusts is not None:
-                    self.wind[b] = self.steady_wind + gusts.next(self.substeps) @ self._wind_axes.T
+                    self.wind[b] = self.steady_wind + matmul(gusts.next(self.substeps), self._wind_axes.T)
         s = self.state
         step_worlds(
             s.bird_pos,
