@@ -536,10 +536,13 @@ def ppo_budget(
 
 def machine() -> dict[str, object]:
     """What the figures were measured on: the CPU (vector width changes the kernel's ratios),
-    its cores and the versions of numba and NumPy."""
+    its cores, the CPU numba compiles for (``sim.jit.COMPILE_TARGET`` unless NUMBA_CPU_NAME
+    says otherwise) and the versions of numba and NumPy."""
     import platform
 
     import numba
+
+    import flockward.sim.jit  # noqa: F401  (it names the CPU numba compiles for)
 
     name, flags = platform.processor() or platform.machine(), set[str]()
     try:
@@ -558,6 +561,7 @@ def machine() -> dict[str, object]:
         "cpu": name,
         "cores": os.cpu_count() or 0,
         "widest_vector_extension": widest,
+        "compiled_for": numba.config.CPU_NAME or "this CPU",  # type: ignore[attr-defined]
         "numba": numba.__version__,
         "numpy": np.__version__,
     }
@@ -800,7 +804,8 @@ def run_bench(quick: bool = False, emit: Callable[[str], None] = print) -> dict[
     host = machine()
     emit(
         f"machine: {host['cpu']}, {host['cores']} cores, widest vector extension "
-        f"{host['widest_vector_extension']}; numba {host['numba']}, NumPy {host['numpy']}"
+        f"{host['widest_vector_extension']}, compiled for {host['compiled_for']}; "
+        f"numba {host['numba']}, NumPy {host['numpy']}"
     )
     results["machine"] = host
     emit("\nSimulator kernel (one thread, float64):")

@@ -3,9 +3,9 @@
 The model sees only the Gymnasium observation (information level "observation") and acts
 deterministically, so a policy's score is reproducible: its network is evaluated by
 ``fixed_forward`` (float64, sums in index order), which gives the same action on every CPU where
-torch's kernels do not; a network that module does not cover is played by ``model.predict``. The zip is loaded on the first reset,
-not on construction: a factory building one controller per episode stays cheap to pickle and
-to call, and each worker process loads the model once.
+torch's kernels do not; a network that module does not cover is played by ``model.predict``.
+The zip is loaded on the first reset, not on construction: a factory building one controller
+per episode stays cheap to pickle and to call, and each worker process loads the model once.
 """
 
 from __future__ import annotations

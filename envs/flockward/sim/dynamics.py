@@ -90,7 +90,9 @@ before division. Compiled with ``error_model="numpy"`` (no exception exit in the
 fast-math flags of ``_FAST``, LLVM vectorises it (AVX2: 4 pairs per instruction). The sums are
 then taken in another order than one pair after the other: results agree with the scalar loop to
 about 1e-15 relative per force evaluation, not bit for bit, and diverge over an episode as
-chaotic dynamics do; they are the same on every run, in single and vector envs.
+chaotic dynamics do; they are the same on every run, in single and vector envs, and on every
+x86-64 CPU, because the order LLVM picks depends on the target and ``sim.jit`` compiles for one
+named target, not the host.
 
 Precision: float64 throughout. The pair sums can be compiled for float32 slots as well (the same
 functions specialised by numba on float32 arrays, every literal typed by ``jit.like``; state, each

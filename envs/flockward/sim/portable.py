@@ -32,7 +32,7 @@ def matmul(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """The matrix product of a (..., n, k) and b (k, m), summed over k in index order."""
     a = np.asarray(a, dtype=np.float64)
     b = np.asarray(b, dtype=np.float64)
-    out = a[..., :, 0, None] * b[0]
+    out: np.ndarray = a[..., :, 0, None] * b[0]
     for j in range(1, b.shape[0]):
         out = out + a[..., :, j, None] * b[j]
     return out

@@ -172,7 +172,9 @@ class World:
             for b in np.flatnonzero(live):
                 gusts = self.gusts[b]
                 if gusts is not None:
-                    self.wind[b] = self.steady_wind + matmul(gusts.next(self.substeps), self._wind_axes.T)
+                    self.wind[b] = self.steady_wind + matmul(
+                        gusts.next(self.substeps), self._wind_axes.T
+                    )
         s = self.state
         step_worlds(
             s.bird_pos,
