@@ -67,6 +67,11 @@ class FixedForward:
     def __call__(self, observation: np.ndarray) -> np.ndarray:
         """The deterministic action for one flat observation."""
         x = np.asarray(observation, dtype=np.float64).reshape(-1)
+        if x.shape[0] != self.layers[0].weight.shape[1]:
+            raise ValueError(
+                f"observation of {x.shape[0]} values: the policy takes "
+                f"{self.layers[0].weight.shape[1]}"
+            )
         for layer in self.layers:
             x = _dense(x, layer.weight, layer.bias, layer.activation)
         if self.squashed:

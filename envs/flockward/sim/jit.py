@@ -23,11 +23,13 @@ workqueue layer no slower than one thread.
 Every function is compiled for one named CPU, ``COMPILE_TARGET`` (x86-64 machines only), not for
 the machine it runs on: with the kernel's reassociation flags LLVM picks vector widths and fused
 multiply-adds by its cost model for the target, so the same seed gave other bits on an AVX-512
-server than on an AVX2 one. Haswell's instruction set (AVX2 and FMA, x86-64-v3) runs on every
-x86-64 CPU made since about 2015; a machine without it fails on the first compiled call
-(illegal instruction). NUMBA_CPU_NAME set in the environment wins (then results are only
-reproducible on that target). Intel's vector maths library (SVML), if installed, is kept out for
-the same reason.
+server than on an AVX2 one. Haswell's instruction set (AVX2 and FMA, x86-64-v3) runs on most
+x86-64 machines, not all (some low-power CPUs and virtual machines hide AVX2); a machine without
+it fails on the first compiled call (illegal instruction). NUMBA_CPU_NAME set in the
+environment wins (then results are only reproducible on that target). Intel's vector maths
+library (SVML), if installed, is kept out for the same reason, by NUMBA_DISABLE_INTEL_SVML set
+before numba is first imported (numba reads it on import, so this holds when flockward imports
+numba first).
 """
 
 from __future__ import annotations
@@ -36,6 +38,8 @@ import os
 import platform
 from collections.abc import Callable
 from typing import Any, ParamSpec, TypeVar, cast
+
+os.environ.setdefault("NUMBA_DISABLE_INTEL_SVML", "1")  # before numba's import reads it
 
 import numba
 import numpy as np
@@ -53,7 +57,6 @@ COMPILE_TARGET = "haswell"
 if platform.machine() in ("x86_64", "AMD64") and "NUMBA_CPU_NAME" not in os.environ:
     numba.config.CPU_NAME = COMPILE_TARGET  # type: ignore[attr-defined]
     numba.config.CPU_FEATURES = ""  # type: ignore[attr-defined]  # the target's own features only
-numba.config.DISABLE_INTEL_SVML = 1  # type: ignore[attr-defined]
 
 P = ParamSpec("P")
 R = TypeVar("R")
